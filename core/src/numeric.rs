@@ -1,0 +1,161 @@
+//! Small dense linear algebra and scalar root finding used by the stage analyses.
+
+/// Occurs when a linear system has no unique solution (a pivot vanished).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SingularMatrix {
+    /// Column at which elimination found no usable pivot.
+    pub column: usize,
+}
+
+/// Dense square matrix in row-major order.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DenseMatrix {
+    size: usize,
+    entries: Vec<f64>,
+}
+
+impl DenseMatrix {
+    pub fn zeros(size: usize) -> Self {
+        DenseMatrix { size, entries: vec![0.0; size * size] }
+    }
+    pub fn size(&self) -> usize {
+        self.size
+    }
+    pub fn clear(&mut self) {
+        self.entries.iter_mut().for_each(|entry| *entry = 0.0);
+    }
+    /// Adds to entry (row, column); out-of-range indices are a caller bug and are ignored
+    /// in release builds rather than aborting the analysis.
+    pub fn add(&mut self, row: usize, column: usize, value: f64) {
+        debug_assert!(row < self.size && column < self.size);
+        if let Some(entry) = self.entries.get_mut(row * self.size + column) {
+            *entry += value;
+        }
+    }
+    pub fn get(&self, row: usize, column: usize) -> f64 {
+        self.entries.get(row * self.size + column).copied().unwrap_or(0.0)
+    }
+
+    /// Solves `self · x = rhs` by Gaussian elimination with partial pivoting, consuming a
+    /// copy of the matrix. Returns `x`.
+    pub fn solve(&self, rhs: &[f64]) -> Result<Vec<f64>, SingularMatrix> {
+        let n = self.size;
+        let mut a = self.entries.clone();
+        let mut b: Vec<f64> = rhs.to_vec();
+        b.resize(n, 0.0);
+        let scale = a.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
+        for column in 0..n {
+            let mut pivot_row = column;
+            let mut pivot_abs = 0.0;
+            for row in column..n {
+                let value = a.get(row * n + column).copied().unwrap_or(0.0).abs();
+                if value > pivot_abs {
+                    pivot_abs = value;
+                    pivot_row = row;
+                }
+            }
+            if !(pivot_abs > scale * 1e-300) || !pivot_abs.is_finite() {
+                return Err(SingularMatrix { column });
+            }
+            if pivot_row != column {
+                for k in 0..n {
+                    a.swap(pivot_row * n + k, column * n + k);
+                }
+                b.swap(pivot_row, column);
+            }
+            let pivot = a.get(column * n + column).copied().unwrap_or(1.0);
+            for row in (column + 1)..n {
+                let factor = a.get(row * n + column).copied().unwrap_or(0.0) / pivot;
+                if factor == 0.0 {
+                    continue;
+                }
+                for k in column..n {
+                    let upper = a.get(column * n + k).copied().unwrap_or(0.0);
+                    if let Some(entry) = a.get_mut(row * n + k) {
+                        *entry -= factor * upper;
+                    }
+                }
+                let upper_b = b.get(column).copied().unwrap_or(0.0);
+                if let Some(entry) = b.get_mut(row) {
+                    *entry -= factor * upper_b;
+                }
+            }
+        }
+        let mut x = vec![0.0; n];
+        for row in (0..n).rev() {
+            let mut sum = b.get(row).copied().unwrap_or(0.0);
+            for k in (row + 1)..n {
+                sum -= a.get(row * n + k).copied().unwrap_or(0.0) * x.get(k).copied().unwrap_or(0.0);
+            }
+            let diagonal = a.get(row * n + row).copied().unwrap_or(1.0);
+            if let Some(entry) = x.get_mut(row) {
+                *entry = sum / diagonal;
+            }
+        }
+        if x.iter().all(|v| v.is_finite()) {
+            Ok(x)
+        } else {
+            Err(SingularMatrix { column: n.saturating_sub(1) })
+        }
+    }
+}
+
+/// Finds a root of `f` in [low, high] by bisection, given a sign change; at most
+/// `max_iterations` halvings. `None` when the ends do not bracket a root.
+pub fn bisect(
+    mut f: impl FnMut(f64) -> f64,
+    mut low: f64,
+    mut high: f64,
+    tolerance: f64,
+    max_iterations: usize,
+) -> Option<f64> {
+    let mut f_low = f(low);
+    let f_high = f(high);
+    if !(f_low.is_finite() && f_high.is_finite()) || f_low * f_high > 0.0 {
+        return None;
+    }
+    for _ in 0..max_iterations {
+        let middle = 0.5 * (low + high);
+        if (high - low).abs() <= tolerance {
+            return Some(middle);
+        }
+        let f_middle = f(middle);
+        if !f_middle.is_finite() {
+            return None;
+        }
+        if (f_middle < 0.0) == (f_low < 0.0) {
+            low = middle;
+            f_low = f_middle;
+        } else {
+            high = middle;
+        }
+    }
+    Some(0.5 * (low + high))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn solves_a_pivoting_system() {
+        // 0x + 2y = 5, 3x + 4y = 6 → y = 2.5, x = −4/3; the zero first pivot forces a swap.
+        let mut m = DenseMatrix::zeros(2);
+        m.add(0, 0, 0.0);
+        m.add(0, 1, 2.0);
+        m.add(1, 0, 3.0);
+        m.add(1, 1, 4.0);
+        let x = m.solve(&[5.0, 6.0]).unwrap_or_default();
+        assert!((x[0] - (-4.0 / 3.0)).abs() < 1e-12 && (x[1] - 2.5).abs() < 1e-12, "{x:?}");
+    }
+
+    #[test]
+    fn reports_singular() {
+        let mut m = DenseMatrix::zeros(2);
+        m.add(0, 0, 1.0);
+        m.add(0, 1, 1.0);
+        m.add(1, 0, 2.0);
+        m.add(1, 1, 2.0);
+        assert!(m.solve(&[1.0, 2.0]).is_err());
+    }
+}

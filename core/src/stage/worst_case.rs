@@ -1,0 +1,462 @@
+//! Worst case over tolerances, supplies, device spread and temperature.
+//!
+//! Method: for every uncertain parameter, evaluate the stage with that parameter alone at
+//! each end of its range (one-at-a-time sensitivities); for each margin, set every parameter
+//! to the end that hurt that margin; then refine by coordinate search — flip each parameter
+//! (and try the nominal temperature, since temperature effects can cross) and keep any change
+//! that makes the margin worse, until a pass changes nothing. A test checks this against
+//! exhaustive enumeration of all corners.
+
+use serde::Serialize;
+
+use super::exact::{loop_gain, LoopGain};
+use super::handbook::analyse_state;
+use super::margins::{devices_at, evaluate_corner, margin_value, CornerMetrics, MarginKind, DC_MARGINS};
+use super::network::{Corner, DiodeLaw, SolveError, StageNetwork};
+use super::{BiasScheme, Load, StageDesign};
+use crate::device::ebers_moll::EbersMoll;
+
+/// One uncertain quantity. Sides are 0 for Q1's half and 1 for Q2's.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(tag = "parameter", content = "side", rename_all = "snake_case")]
+pub enum Parameter {
+    CollectorResistor(u8),
+    CrossResistor(u8),
+    BaseResistor(u8),
+    EmitterResistor,
+    CollectorSupply,
+    BiasSupply,
+    Hfe(u8),
+    VceSat(u8),
+    VbeSat(u8),
+    Temperature,
+    LoadResistance(u8),
+}
+
+impl Parameter {
+    pub fn label(self) -> String {
+        match self {
+            Parameter::CollectorResistor(s) => format!("RC of Q{}", s + 1),
+            Parameter::CrossResistor(s) => format!("R1 from Q{} collector to Q{} base", s + 1, 2 - s),
+            Parameter::BaseResistor(s) => format!("R2 of Q{} base", s + 1),
+            Parameter::EmitterResistor => "RE".to_string(),
+            Parameter::CollectorSupply => "collector supply".to_string(),
+            Parameter::BiasSupply => "bias supply".to_string(),
+            Parameter::Hfe(s) => format!("hFE of Q{}", s + 1),
+            Parameter::VceSat(s) => format!("VCE(sat) of Q{}", s + 1),
+            Parameter::VbeSat(s) => format!("VBE(sat) of Q{}", s + 1),
+            Parameter::Temperature => "temperature".to_string(),
+            Parameter::LoadResistance(s) => format!("load resistance on Q{}", s + 1),
+        }
+    }
+}
+
+/// Where a parameter sits: low end, nominal, high end.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Setting {
+    Low,
+    Nominal,
+    High,
+}
+
+/// The parameters that apply to a design.
+pub fn parameters(design: &StageDesign) -> Vec<Parameter> {
+    let values = design.values();
+    let mut list = Vec::with_capacity(20);
+    for side in 0..2u8 {
+        list.push(Parameter::CollectorResistor(side));
+        list.push(Parameter::CrossResistor(side));
+        list.push(Parameter::BaseResistor(side));
+    }
+    if values.bias == BiasScheme::SelfBias {
+        list.push(Parameter::EmitterResistor);
+    }
+    list.push(Parameter::CollectorSupply);
+    if values.bias == BiasScheme::Fixed {
+        list.push(Parameter::BiasSupply);
+    }
+    for side in 0..2u8 {
+        list.push(Parameter::Hfe(side));
+        list.push(Parameter::VceSat(side));
+        list.push(Parameter::VbeSat(side));
+    }
+    let conditions = &design.input().conditions;
+    if conditions.t_max_c > conditions.t_min_c {
+        list.push(Parameter::Temperature);
+    }
+    for (side, load) in design.input().loads.iter().enumerate() {
+        if matches!(load, Load::Resistance { .. }) {
+            list.push(Parameter::LoadResistance(side as u8));
+        }
+    }
+    list
+}
+
+/// Nominal temperature: 25 °C, or the nearest end of the range when 25 °C is outside it.
+pub fn nominal_temperature_c(design: &StageDesign) -> f64 {
+    let conditions = &design.input().conditions;
+    25.0f64.clamp(conditions.t_min_c, conditions.t_max_c)
+}
+
+/// Applies one parameter setting to a corner (which starts at nominal).
+pub fn apply(design: &StageDesign, corner: &mut Corner, parameter: Parameter, setting: Setting) {
+    let input = design.input();
+    let r_tol = input.conditions.resistor_tolerance;
+    let s_tol = input.supplies.tolerance;
+    let factor = |tol: f64| match setting {
+        Setting::Low => 1.0 - tol,
+        Setting::Nominal => 1.0,
+        Setting::High => 1.0 + tol,
+    };
+    let spread = match setting {
+        Setting::Low => -1.0,
+        Setting::Nominal => 0.0,
+        Setting::High => 1.0,
+    };
+    let nominal = Corner::nominal(design, corner.temperature_c);
+    let side = |s: u8| usize::from(s.min(1));
+    match parameter {
+        Parameter::CollectorResistor(s) => {
+            corner.collector_resistor_ohm[side(s)] = nominal.collector_resistor_ohm[side(s)] * factor(r_tol)
+        }
+        Parameter::CrossResistor(s) => {
+            corner.cross_resistor_ohm[side(s)] = nominal.cross_resistor_ohm[side(s)] * factor(r_tol)
+        }
+        Parameter::BaseResistor(s) => {
+            corner.base_resistor_ohm[side(s)] = nominal.base_resistor_ohm[side(s)] * factor(r_tol)
+        }
+        Parameter::EmitterResistor => corner.emitter_resistor_ohm = nominal.emitter_resistor_ohm * factor(r_tol),
+        Parameter::CollectorSupply => corner.collector_supply_v = nominal.collector_supply_v * factor(s_tol),
+        Parameter::BiasSupply => corner.bias_supply_v = nominal.bias_supply_v * factor(s_tol),
+        Parameter::Hfe(s) => corner.spread[side(s)].hfe = spread,
+        Parameter::VceSat(s) => corner.spread[side(s)].vce_sat = spread,
+        Parameter::VbeSat(s) => corner.spread[side(s)].vbe_sat = spread,
+        Parameter::Temperature => {
+            corner.temperature_c = match setting {
+                Setting::Low => input.conditions.t_min_c,
+                Setting::Nominal => nominal_temperature_c(design),
+                Setting::High => input.conditions.t_max_c,
+            }
+        }
+        Parameter::LoadResistance(s) => corner.load_resistance_factor[side(s)] = factor(r_tol),
+    }
+}
+
+/// Builds the corner for a full assignment of settings.
+pub fn corner_for(design: &StageDesign, assignment: &[(Parameter, Setting)]) -> Corner {
+    let mut corner = Corner::nominal(design, nominal_temperature_c(design));
+    // Temperature first: `apply` reads the nominal passive values independently of it.
+    for &(parameter, setting) in assignment {
+        apply(design, &mut corner, parameter, setting);
+    }
+    corner
+}
+
+/// The worst case of one margin.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct WorstCase {
+    pub kind: MarginKind,
+    pub nominal: f64,
+    pub worst: f64,
+    /// Settings of the parameters that are off nominal at the worst corner.
+    pub corner: Vec<(Parameter, Setting)>,
+    pub temperature_c: f64,
+    /// Parameters that move the margin most at the worst corner, largest first, with the
+    /// improvement a flip of each would give.
+    pub limiting: Vec<(Parameter, f64)>,
+    /// Corners evaluated for this margin.
+    pub evaluations: usize,
+}
+
+/// Worst cases of every margin, plus the largest resistor dissipations and supply power.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct WorstCaseReport {
+    pub margins: Vec<WorstCase>,
+    /// Per resistor of the network: the largest dissipation found over all corners evaluated,
+    /// W, and at the corner set for maximum dissipation of that resistor.
+    pub resistor_dissipation_w: Vec<(String, f64)>,
+    pub supply_power_w: f64,
+    pub total_evaluations: usize,
+}
+
+/// Generic search: `evaluate` gives the margin (larger is better) at a corner, or `None`
+/// when it cannot be evaluated there (treated as no information).
+fn search(
+    design: &StageDesign,
+    params: &[Parameter],
+    sensitivities: &[(Option<f64>, Option<f64>)],
+    nominal: f64,
+    mut evaluate: impl FnMut(&Corner) -> Option<f64>,
+) -> (f64, Vec<(Parameter, Setting)>, Vec<(Parameter, f64)>, usize) {
+    let mut evaluations = 0;
+    let mut assignment: Vec<(Parameter, Setting)> = params
+        .iter()
+        .zip(sensitivities)
+        .map(|(&p, &(low, high))| {
+            let setting = match (low, high) {
+                (Some(l), Some(h)) if l <= h && l < nominal => Setting::Low,
+                (Some(l), Some(h)) if h < l && h < nominal => Setting::High,
+                (Some(_), None) => Setting::Low,
+                (None, Some(_)) => Setting::High,
+                _ => Setting::Nominal,
+            };
+            (p, setting)
+        })
+        .collect();
+    evaluations += 1;
+    let mut worst = match evaluate(&corner_for(design, &assignment)) {
+        Some(value) if value <= nominal => value,
+        // The combined corner was no worse than nominal (or could not be solved): start the
+        // coordinate search from nominal instead.
+        _ => {
+            assignment.iter_mut().for_each(|(_, s)| *s = Setting::Nominal);
+            nominal
+        }
+    };
+    for _pass in 0..4 {
+        let mut changed = false;
+        for index in 0..assignment.len() {
+            let Some(&(parameter, current)) = assignment.get(index) else { continue };
+            let candidates: &[Setting] = match parameter {
+                Parameter::Temperature => &[Setting::Low, Setting::Nominal, Setting::High],
+                _ => &[Setting::Low, Setting::High, Setting::Nominal],
+            };
+            for &candidate in candidates {
+                if candidate == current {
+                    continue;
+                }
+                let mut trial = assignment.clone();
+                if let Some(slot) = trial.get_mut(index) {
+                    slot.1 = candidate;
+                }
+                evaluations += 1;
+                if let Some(value) = evaluate(&corner_for(design, &trial)) {
+                    if value < worst - 1e-12 * worst.abs().max(1e-30) {
+                        worst = value;
+                        assignment = trial;
+                        changed = true;
+                        break;
+                    }
+                }
+            }
+        }
+        if !changed {
+            break;
+        }
+    }
+    // Limiting parameters: how much flipping each would improve the margin.
+    let mut limiting = Vec::new();
+    for index in 0..assignment.len() {
+        let Some(&(parameter, current)) = assignment.get(index) else { continue };
+        if current == Setting::Nominal {
+            continue;
+        }
+        let mut trial = assignment.clone();
+        if let Some(slot) = trial.get_mut(index) {
+            slot.1 = if current == Setting::Low { Setting::High } else { Setting::Low };
+        }
+        evaluations += 1;
+        if let Some(value) = evaluate(&corner_for(design, &trial)) {
+            if value > worst {
+                limiting.push((parameter, value - worst));
+            }
+        }
+    }
+    limiting.sort_by(|a, b| b.1.total_cmp(&a.1));
+    limiting.truncate(4);
+    let off_nominal = assignment.into_iter().filter(|(_, s)| *s != Setting::Nominal).collect();
+    (worst, off_nominal, limiting, evaluations)
+}
+
+/// Ebers–Moll models of both transistors at a corner.
+pub fn models_at(design: &StageDesign, base: &EbersMoll, corner: &Corner) -> [EbersMoll; 2] {
+    let sheet = design.transistor();
+    let scaled = base.at_temperature(corner.temperature_c, sheet.hfe_tempco_per_c, sheet.icbo_doubling_c);
+    let mut models = [scaled, scaled];
+    for (model, spread) in models.iter_mut().zip(corner.spread) {
+        model.beta_forward = sheet.hfe_at(corner.temperature_c, spread.hfe);
+    }
+    models
+}
+
+/// Diode law at a corner's temperature.
+pub fn diode_at(design: &StageDesign, temperature_c: f64) -> DiodeLaw {
+    let diode = design.diode();
+    DiodeLaw {
+        saturation_current_a: diode.saturation_current_a(temperature_c),
+        emission_coefficient: diode.emission_coefficient,
+        temperature_c,
+    }
+}
+
+/// Loop gain at a corner (exact model).
+pub fn loop_gain_at(design: &StageDesign, base: &EbersMoll, corner: &Corner) -> Option<LoopGain> {
+    let network = StageNetwork::build(design, corner);
+    let devices = devices_at(design, corner);
+    let states = [analyse_state(&network, 0, devices).ok()?, analyse_state(&network, 1, devices).ok()?];
+    let models = models_at(design, base, corner);
+    loop_gain(&network, &models, &diode_at(design, corner.temperature_c), [&states[0], &states[1]]).ok()
+}
+
+/// Runs the worst-case search for every DC margin and the loop gain.
+pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCaseReport, SolveError> {
+    let params = parameters(design);
+    let nominal_corner = Corner::nominal(design, nominal_temperature_c(design));
+    let (nominal_metrics, _) = evaluate_corner(design, &nominal_corner)?;
+    let mut total_evaluations = 1;
+    let mut one_at_a_time: Vec<(Option<CornerMetrics>, Option<CornerMetrics>)> = Vec::with_capacity(params.len());
+    let mut dissipation = nominal_metrics.resistor_dissipation_w.clone();
+    let mut supply_power_w = nominal_metrics.supply_power_w;
+    let record = |metrics: &CornerMetrics, dissipation: &mut Vec<(String, f64)>, power: &mut f64| {
+        for ((_, worst), (_, value)) in dissipation.iter_mut().zip(&metrics.resistor_dissipation_w) {
+            *worst = worst.max(*value);
+        }
+        *power = power.max(metrics.supply_power_w);
+    };
+    for &parameter in &params {
+        let mut pair = (None, None);
+        for setting in [Setting::Low, Setting::High] {
+            let corner = corner_for(design, &[(parameter, setting)]);
+            total_evaluations += 1;
+            let metrics = evaluate_corner(design, &corner).ok().map(|(m, _)| m);
+            if let Some(m) = &metrics {
+                record(m, &mut dissipation, &mut supply_power_w);
+            }
+            if setting == Setting::Low {
+                pair.0 = metrics;
+            } else {
+                pair.1 = metrics;
+            }
+        }
+        one_at_a_time.push(pair);
+    }
+    let mut margins = Vec::new();
+    for kind in DC_MARGINS {
+        let nominal = margin_value(kind, &nominal_metrics, design).unwrap_or(f64::NAN);
+        let sensitivities: Vec<(Option<f64>, Option<f64>)> = one_at_a_time
+            .iter()
+            .map(|(low, high)| {
+                (
+                    low.as_ref().and_then(|m| margin_value(kind, m, design)),
+                    high.as_ref().and_then(|m| margin_value(kind, m, design)),
+                )
+            })
+            .collect();
+        let mut temperature_c = nominal_corner.temperature_c;
+        let (worst, corner, limiting, evaluations) = search(design, &params, &sensitivities, nominal, |c| {
+            let metrics = evaluate_corner(design, c).ok().map(|(m, _)| m)?;
+            margin_value(kind, &metrics, design)
+        });
+        if let Some(&(_, setting)) = corner.iter().find(|(p, _)| *p == Parameter::Temperature) {
+            let mut probe = nominal_corner;
+            apply(design, &mut probe, Parameter::Temperature, setting);
+            temperature_c = probe.temperature_c;
+        }
+        // Record dissipation at this margin's worst corner too.
+        if let Ok((metrics, _)) = evaluate_corner(design, &corner_for(design, &corner)) {
+            record(&metrics, &mut dissipation, &mut supply_power_w);
+        }
+        total_evaluations += evaluations + 1;
+        margins.push(WorstCase { kind, nominal, worst, corner, temperature_c, limiting, evaluations });
+    }
+    // Maximum dissipation of each resistor: its own corner from the one-at-a-time signs.
+    for (index, (name, worst)) in dissipation.iter_mut().enumerate() {
+        let assignment: Vec<(Parameter, Setting)> = params
+            .iter()
+            .zip(&one_at_a_time)
+            .map(|(&p, (low, high))| {
+                let pick = |m: &Option<CornerMetrics>| {
+                    m.as_ref().and_then(|m| m.resistor_dissipation_w.get(index)).map(|(_, d)| *d).unwrap_or(0.0)
+                };
+                (p, if pick(high) >= pick(low) { Setting::High } else { Setting::Low })
+            })
+            .collect();
+        total_evaluations += 1;
+        if let Ok((metrics, _)) = evaluate_corner(design, &corner_for(design, &assignment)) {
+            if let Some((other_name, value)) = metrics.resistor_dissipation_w.get(index) {
+                if other_name == name {
+                    *worst = worst.max(*value);
+                }
+            }
+            supply_power_w = supply_power_w.max(metrics.supply_power_w);
+        }
+    }
+    // Loop gain with the exact model.
+    if let Some(nominal_gain) = loop_gain_at(design, base_model, &nominal_corner) {
+        let nominal = nominal_gain.loop_gain;
+        let sensitivities: Vec<(Option<f64>, Option<f64>)> = params
+            .iter()
+            .map(|&p| {
+                let at = |s: Setting| loop_gain_at(design, base_model, &corner_for(design, &[(p, s)])).map(|g| g.loop_gain);
+                (at(Setting::Low), at(Setting::High))
+            })
+            .collect();
+        total_evaluations += 2 * params.len();
+        let (worst, corner, limiting, evaluations) = search(design, &params, &sensitivities, nominal, |c| {
+            loop_gain_at(design, base_model, c).map(|g| g.loop_gain)
+        });
+        let temperature_c = corner_for(design, &corner).temperature_c;
+        total_evaluations += evaluations;
+        margins.push(WorstCase { kind: MarginKind::LoopGain, nominal, worst, corner, temperature_c, limiting, evaluations });
+    } else {
+        margins.push(WorstCase {
+            kind: MarginKind::LoopGain,
+            nominal: 0.0,
+            worst: 0.0,
+            corner: Vec::new(),
+            temperature_c: nominal_corner.temperature_c,
+            limiting: Vec::new(),
+            evaluations: 1,
+        });
+    }
+    Ok(WorstCaseReport { margins, resistor_dissipation_w: dissipation, supply_power_w, total_evaluations })
+}
+
+/// Exhaustive search over every low/high combination (and, for temperature, also nominal),
+/// for checking [`analyse`]; cost grows as 2^n, so use on designs with few parameters.
+pub fn exhaustive_worst(design: &StageDesign, kind: MarginKind) -> Option<f64> {
+    let params = parameters(design);
+    let n = params.len();
+    if n > 20 {
+        return None;
+    }
+    let mut worst = f64::INFINITY;
+    let temperature_settings: &[Setting] = &[Setting::Low, Setting::Nominal, Setting::High];
+    for mask in 0u32..(1u32 << n) {
+        let base: Vec<(Parameter, Setting)> = params
+            .iter()
+            .enumerate()
+            .map(|(i, &p)| (p, if mask & (1 << i) != 0 { Setting::High } else { Setting::Low }))
+            .collect();
+        let has_temperature = params.contains(&Parameter::Temperature);
+        let variants: Vec<Vec<(Parameter, Setting)>> = if has_temperature {
+            temperature_settings
+                .iter()
+                .filter_map(|&t| {
+                    // Only the masks with temperature Low enumerate the three settings, so
+                    // each combination is visited once.
+                    let index = params.iter().position(|p| *p == Parameter::Temperature)?;
+                    if mask & (1 << index) != 0 {
+                        return None;
+                    }
+                    let mut v = base.clone();
+                    if let Some(slot) = v.get_mut(index) {
+                        slot.1 = t;
+                    }
+                    Some(v)
+                })
+                .collect()
+        } else {
+            vec![base]
+        };
+        for assignment in variants {
+            if let Ok((metrics, _)) = evaluate_corner(design, &corner_for(design, &assignment)) {
+                if let Some(value) = margin_value(kind, &metrics, design) {
+                    worst = worst.min(value);
+                }
+            }
+        }
+    }
+    worst.is_finite().then_some(worst)
+}

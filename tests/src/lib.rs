@@ -1,0 +1,1 @@
+//! Empty library: this crate exists for its integration tests in `tests/checks/`.
