@@ -36,19 +36,25 @@ impl DenseMatrix {
         self.entries.get(row * self.size + column).copied().unwrap_or(0.0)
     }
 
-    /// Solves `self · x = rhs` by Gaussian elimination with partial pivoting, consuming a
-    /// copy of the matrix. Returns `x`.
+    /// Solves `self · x = rhs` by Gaussian elimination with partial pivoting on a copy of the
+    /// matrix. Returns `x`.
+    // Indices stay below `size`, and `entries.len() == size²` by construction, so direct
+    // indexing cannot go out of bounds; it keeps this innermost loop tight.
+    #[allow(clippy::indexing_slicing)]
     pub fn solve(&self, rhs: &[f64]) -> Result<Vec<f64>, SingularMatrix> {
         let n = self.size;
         let mut a = self.entries.clone();
         let mut b: Vec<f64> = rhs.to_vec();
         b.resize(n, 0.0);
+        if a.len() != n * n {
+            return Err(SingularMatrix { column: 0 });
+        }
         let scale = a.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
         for column in 0..n {
             let mut pivot_row = column;
             let mut pivot_abs = 0.0;
             for row in column..n {
-                let value = a.get(row * n + column).copied().unwrap_or(0.0).abs();
+                let value = a[row * n + column].abs();
                 if value > pivot_abs {
                     pivot_abs = value;
                     pivot_row = row;
@@ -63,34 +69,25 @@ impl DenseMatrix {
                 }
                 b.swap(pivot_row, column);
             }
-            let pivot = a.get(column * n + column).copied().unwrap_or(1.0);
+            let pivot = a[column * n + column];
             for row in (column + 1)..n {
-                let factor = a.get(row * n + column).copied().unwrap_or(0.0) / pivot;
+                let factor = a[row * n + column] / pivot;
                 if factor == 0.0 {
                     continue;
                 }
                 for k in column..n {
-                    let upper = a.get(column * n + k).copied().unwrap_or(0.0);
-                    if let Some(entry) = a.get_mut(row * n + k) {
-                        *entry -= factor * upper;
-                    }
+                    a[row * n + k] -= factor * a[column * n + k];
                 }
-                let upper_b = b.get(column).copied().unwrap_or(0.0);
-                if let Some(entry) = b.get_mut(row) {
-                    *entry -= factor * upper_b;
-                }
+                b[row] -= factor * b[column];
             }
         }
         let mut x = vec![0.0; n];
         for row in (0..n).rev() {
-            let mut sum = b.get(row).copied().unwrap_or(0.0);
+            let mut sum = b[row];
             for k in (row + 1)..n {
-                sum -= a.get(row * n + k).copied().unwrap_or(0.0) * x.get(k).copied().unwrap_or(0.0);
+                sum -= a[row * n + k] * x[k];
             }
-            let diagonal = a.get(row * n + row).copied().unwrap_or(1.0);
-            if let Some(entry) = x.get_mut(row) {
-                *entry = sum / diagonal;
-            }
+            x[row] = sum / a[row * n + row];
         }
         if x.iter().all(|v| v.is_finite()) {
             Ok(x)

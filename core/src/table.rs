@@ -75,7 +75,7 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
             .worst_case
             .resistor_dissipation_w
             .iter()
-            .find(|(n, _)| n == name)
+            .find(|(n, _)| *n == name)
             .map(|(_, w)| *w)
             .unwrap_or(0.0);
         // The exact states include the steering diodes' current, which the piecewise model
@@ -84,7 +84,7 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
             .exact_states
             .iter()
             .filter_map(|s| s.as_ref().ok())
-            .filter_map(|s| s.branch_currents.iter().find(|(n, _)| n == name).map(|(_, i)| *i))
+            .filter_map(|s| s.branch_currents.iter().find(|(n, _)| *n == name).map(|(_, i)| *i))
             .map(|i| i * i)
             .fold(0.0, f64::max);
         let resistance = match name {
@@ -163,7 +163,7 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
         let emitter_v = report
             .handbook_states
             .iter()
-            .filter_map(|s| s.node_voltages.iter().find(|(name, _)| name == "E").map(|(_, v)| v.abs()))
+            .filter_map(|s| s.node_voltages.iter().find(|(name, _)| *name == "E").map(|(_, v)| v.abs()))
             .fold(0.0, f64::max)
             * (1.0 + input.supplies.tolerance);
         capacitor(5, "emitter bypass capacitor", values.emitter_bypass_capacitor_f, emitter_v, 0.2, &mut rows);

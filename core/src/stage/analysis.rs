@@ -311,7 +311,7 @@ pub fn cautions(design: &StageDesign, worst: &WorstCaseReport) -> Vec<String> {
         .resistor_dissipation_w
         .iter()
         .filter(|(_, w)| *w > 0.25)
-        .map(|(n, _)| n.as_str())
+        .map(|(n, _)| *n)
         .collect();
     if !hot.is_empty() {
         list.push(format!("{} dissipate over 0.25 W and run hot: keep clearance and do not touch in operation", hot.join(", ")));

@@ -11,12 +11,12 @@ use crate::device::ebers_moll::{BjtOperatingPoint, EbersMoll};
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct ExactState {
     pub on_side: usize,
-    pub node_voltages: Vec<(String, f64)>,
-    pub branch_currents: Vec<(String, f64)>,
+    pub node_voltages: Vec<(&'static str, f64)>,
+    pub branch_currents: Vec<(&'static str, f64)>,
     /// Collector and base currents of Q1 and Q2 (into the terminals).
     pub collector_current_a: [f64; 2],
     pub base_current_a: [f64; 2],
-    pub diode_currents: Vec<(String, f64)>,
+    pub diode_currents: Vec<(&'static str, f64)>,
     /// IC/IB of the ON transistor: below βF means it is saturated.
     pub on_forced_gain: f64,
     pub on_collector_emitter_v: f64,
@@ -47,12 +47,12 @@ impl std::fmt::Display for ExactError {
     }
 }
 
-fn named(network: &StageNetwork, v: &[f64]) -> (Vec<(String, f64)>, Vec<(String, f64)>) {
-    let nodes = network.node_names.iter().zip(v).map(|(n, x)| (n.to_string(), *x)).collect();
+fn named(network: &StageNetwork, v: &[f64]) -> (Vec<(&'static str, f64)>, Vec<(&'static str, f64)>) {
+    let nodes = network.node_names.iter().zip(v).map(|(n, x)| (*n, *x)).collect();
     let branches = network
         .resistors
         .iter()
-        .map(|r| (r.name.to_string(), StageNetwork::resistor_current(r, v)))
+        .map(|r| (r.name, StageNetwork::resistor_current(r, v)))
         .collect();
     (nodes, branches)
 }
@@ -93,7 +93,7 @@ fn state_from(network: &StageNetwork, solution: &ExactSolution, on: usize) -> Ex
             .diodes
             .iter()
             .zip(&solution.diode_currents)
-            .map(|(d, i)| (d.name.to_string(), *i))
+            .map(|(d, i)| (d.name, *i))
             .collect(),
         on_forced_gain: if ib_on > 0.0 { ic_on / ib_on } else { f64::INFINITY },
         on_collector_emitter_v: collector[on] - emitter,

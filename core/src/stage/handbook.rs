@@ -18,8 +18,8 @@ use crate::device::PiecewiseTransistor;
 pub struct StateAnalysis {
     /// 0 when Q1 is ON, 1 when Q2 is ON.
     pub on_side: usize,
-    pub node_voltages: Vec<(String, f64)>,
-    pub branch_currents: Vec<(String, f64)>,
+    pub node_voltages: Vec<(&'static str, f64)>,
+    pub branch_currents: Vec<(&'static str, f64)>,
     pub on_collector_current_a: f64,
     pub on_base_current_a: f64,
     /// hFE·IB/IC of the ON transistor at the hFE of this analysis.
@@ -61,10 +61,10 @@ pub fn analyse_state(
     let ib = solution.on_base_current_a;
     let overdrive = if ic > 0.0 { on_device.hfe * ib / ic } else { f64::INFINITY };
     let off_vbe = base[off_side] - emitter;
-    let branch_currents: Vec<(String, f64)> = network
+    let branch_currents: Vec<(&'static str, f64)> = network
         .resistors
         .iter()
-        .map(|r| (r.name.to_string(), StageNetwork::resistor_current(r, v)))
+        .map(|r| (r.name, StageNetwork::resistor_current(r, v)))
         .collect();
     let supply_v = network.corner.collector_supply_v;
     let bias_v = network.corner.bias_supply_v;
@@ -86,7 +86,7 @@ pub fn analyse_state(
             .node_names
             .iter()
             .zip(v)
-            .map(|(name, value)| (name.to_string(), *value))
+            .map(|(name, value)| (*name, *value))
             .collect(),
         branch_currents,
         on_collector_current_a: ic,

@@ -77,7 +77,7 @@ pub struct CornerMetrics {
     /// Ptot derated linearly to zero at the maximum junction temperature.
     pub derated_ptot_w: f64,
     /// Largest dissipation of each resistor over both states, W.
-    pub resistor_dissipation_w: Vec<(String, f64)>,
+    pub resistor_dissipation_w: Vec<(&'static str, f64)>,
     /// Supply power (both rails), the larger of the two states, W.
     pub supply_power_w: f64,
 }
@@ -121,7 +121,7 @@ pub fn evaluate_corner(
         max_collector_current_a: 0.0,
         max_transistor_dissipation_w: 0.0,
         derated_ptot_w: derated_ptot(sheet.ptot_w, sheet.material, corner.temperature_c),
-        resistor_dissipation_w: network.resistors.iter().map(|r| (r.name.to_string(), 0.0)).collect(),
+        resistor_dissipation_w: network.resistors.iter().map(|r| (r.name, 0.0)).collect(),
         supply_power_w: 0.0,
     };
     let c1 = values.commutating_capacitor_f;

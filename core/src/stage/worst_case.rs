@@ -175,7 +175,7 @@ pub struct WorstCaseReport {
     pub margins: Vec<WorstCase>,
     /// Per resistor of the network: the largest dissipation found over all corners evaluated,
     /// W, and at the corner set for maximum dissipation of that resistor.
-    pub resistor_dissipation_w: Vec<(String, f64)>,
+    pub resistor_dissipation_w: Vec<(&'static str, f64)>,
     pub supply_power_w: f64,
     pub total_evaluations: usize,
 }
@@ -218,6 +218,15 @@ fn search(
         let mut changed = false;
         for index in 0..assignment.len() {
             let Some(&(parameter, current)) = assignment.get(index) else { continue };
+            // A parameter that moved the margin not at all on its own is skipped; temperature
+            // is always tried, since its effects can cancel at the ends and show in between.
+            let inert = sensitivities.get(index).is_some_and(|&(low, high)| match (low, high) {
+                (Some(l), Some(h)) => (l - nominal).abs() <= 1e-12 * nominal.abs().max(1e-30) && (h - nominal).abs() <= 1e-12 * nominal.abs().max(1e-30),
+                _ => false,
+            });
+            if inert && parameter != Parameter::Temperature {
+                continue;
+            }
             let candidates: &[Setting] = match parameter {
                 Parameter::Temperature => &[Setting::Low, Setting::Nominal, Setting::High],
                 _ => &[Setting::Low, Setting::High, Setting::Nominal],
@@ -308,7 +317,7 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
     let mut one_at_a_time: Vec<(Option<CornerMetrics>, Option<CornerMetrics>)> = Vec::with_capacity(params.len());
     let mut dissipation = nominal_metrics.resistor_dissipation_w.clone();
     let mut supply_power_w = nominal_metrics.supply_power_w;
-    let record = |metrics: &CornerMetrics, dissipation: &mut Vec<(String, f64)>, power: &mut f64| {
+    let record = |metrics: &CornerMetrics, dissipation: &mut Vec<(&'static str, f64)>, power: &mut f64| {
         for ((_, worst), (_, value)) in dissipation.iter_mut().zip(&metrics.resistor_dissipation_w) {
             *worst = worst.max(*value);
         }
@@ -385,6 +394,12 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
     // Loop gain with the exact model.
     if let Some(nominal_gain) = loop_gain_at(design, base_model, &nominal_corner) {
         let nominal = nominal_gain.loop_gain;
+        // The saturation-voltage spreads belong to the piecewise model only.
+        let params: Vec<Parameter> = params
+            .iter()
+            .copied()
+            .filter(|p| !matches!(p, Parameter::VceSat(_) | Parameter::VbeSat(_)))
+            .collect();
         let sensitivities: Vec<(Option<f64>, Option<f64>)> = params
             .iter()
             .map(|&p| {

@@ -26,7 +26,10 @@ impl fmt::Display for CodeProblem {
             }
             CodeProblem::NoDigits => formatter.write_str("it has no digits"),
             CodeProblem::UnexpectedCharacter(character) => {
-                write!(formatter, "'{character}' is not a digit or a multiplier letter")
+                write!(
+                    formatter,
+                    "'{character}' is not a digit or a multiplier letter"
+                )
             }
         }
     }

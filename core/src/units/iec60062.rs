@@ -8,14 +8,8 @@ use super::Unit;
 pub(crate) const CODE_MAXIMUM_DIGITS: usize = 15;
 
 /// Resistor multiplier letters read by [`parse_code`]; lowercase 'k' is tolerated because it is common.
-const RESISTOR_INPUT_LETTERS: [(char, i32); 6] = [
-    ('R', 0),
-    ('K', 3),
-    ('k', 3),
-    ('M', 6),
-    ('G', 9),
-    ('T', 12),
-];
+const RESISTOR_INPUT_LETTERS: [(char, i32); 6] =
+    [('R', 0), ('K', 3), ('k', 3), ('M', 6), ('G', 9), ('T', 12)];
 
 /// Capacitor multiplier letters read by [`parse_code`]; micro in ASCII and both Unicode forms.
 const CAPACITOR_INPUT_LETTERS: [(char, i32); 7] = [
@@ -99,7 +93,10 @@ pub(crate) fn looks_like_code(text: &str, unit: Unit) -> bool {
     {
         return false;
     }
-    let letter_count = text.chars().filter(|character| is_letter(*character)).count();
+    let letter_count = text
+        .chars()
+        .filter(|character| is_letter(*character))
+        .count();
     letter_count == 1 && text.chars().any(|character| character.is_ascii_digit())
 }
 
@@ -132,7 +129,8 @@ pub fn parse_code(text: &str, unit: Unit) -> Result<f64, QuantityError> {
         }
         found_letter = Some((index, character, *exponent));
     }
-    let (index, letter, exponent) = found_letter.ok_or_else(|| invalid(CodeProblem::MissingLetter))?;
+    let (index, letter, exponent) =
+        found_letter.ok_or_else(|| invalid(CodeProblem::MissingLetter))?;
     let before = trimmed.get(..index).unwrap_or_default();
     let after = trimmed.get(index + letter.len_utf8()..).unwrap_or_default();
     if before.is_empty() && after.is_empty() {
@@ -262,6 +260,9 @@ mod tests {
     fn tiny_values_get_leading_zeros_after_the_letter() {
         assert_eq!(format_code(0.047, Unit::Ohm, 2), Ok("R047".to_string()));
         assert_eq!(format_code(0.001, Unit::Ohm, 2), Ok("R001".to_string()));
-        assert_eq!(format_code(4.7e-15, Unit::Farad, 2), Ok("p0047".to_string()));
+        assert_eq!(
+            format_code(4.7e-15, Unit::Farad, 2),
+            Ok("p0047".to_string())
+        );
     }
 }

@@ -85,7 +85,10 @@ pub fn format_quantity_digits(value: f64, unit: Unit, significant_digits: usize)
         return format!("{sign}{mantissa}e{} {symbol}", rounded.exponent);
     };
     let (integer, fraction) = rounded.split_at_point(rounded.exponent - engineering_exponent + 1);
-    format!("{sign}{} {prefix}{symbol}", join_number(&integer, &fraction))
+    format!(
+        "{sign}{} {prefix}{symbol}",
+        join_number(&integer, &fraction)
+    )
 }
 
 fn join_number(integer: &str, fraction: &str) -> String {
@@ -127,7 +130,10 @@ fn scan_number(text: &str, unit: Unit) -> Result<ScannedNumber<'_>, QuantityErro
         });
     }
     if digit_count == 0 {
-        let after_sign = text.get(sign_length..).unwrap_or_default().to_ascii_lowercase();
+        let after_sign = text
+            .get(sign_length..)
+            .unwrap_or_default()
+            .to_ascii_lowercase();
         if after_sign.starts_with("nan") || after_sign.starts_with("inf") {
             return Err(QuantityError::NotFinite {
                 text: text.to_string(),
@@ -273,7 +279,10 @@ mod tests {
     #[test]
     fn scanner_leaves_an_e_without_digits_in_the_rest() {
         let scanned = scan_number("4.7e", Unit::Volt);
-        assert_eq!(scanned.map(|number| (number.exponent, number.rest)), Ok((0, "e")));
+        assert_eq!(
+            scanned.map(|number| (number.exponent, number.rest)),
+            Ok((0, "e"))
+        );
     }
 
     #[test]
@@ -288,7 +297,10 @@ mod tests {
             parse_quantity("1e99999999999999999999", Unit::Volt),
             Err(QuantityError::NotFinite { .. })
         ));
-        assert_eq!(parse_quantity("1e-99999999999999999999", Unit::Volt), Ok(0.0));
+        assert_eq!(
+            parse_quantity("1e-99999999999999999999", Unit::Volt),
+            Ok(0.0)
+        );
     }
 
     #[test]

@@ -203,7 +203,9 @@ impl ESeries {
         let (value, decade_exponent) = self.approximate_value_at(position);
         let out_of_range = QuantityError::SeriesOutOfRange { value };
         let index_in_decade = position.rem_euclid(self.length());
-        let hundredths = self.hundredths_at(index_in_decade).ok_or(out_of_range.clone())?;
+        let hundredths = self
+            .hundredths_at(index_in_decade)
+            .ok_or(out_of_range.clone())?;
         // Parsing the decimal text gives the f64 nearest the exact value, so 4700.0 and not
         // 4699.999999999999 as a product of binary floats could.
         let exact = decimal_to_f64(&hundredths.to_string(), decade_exponent - 2)
@@ -242,7 +244,11 @@ impl ESeries {
             let (candidate, _) = self.approximate_value_at(position);
             let distance = (candidate.log10() - target).abs();
             // Strictly closer only: an exact geometric tie keeps the lower value.
-            if best.map_or(true, |(_, best_distance)| distance < best_distance) {
+            let is_closer = match best {
+                None => true,
+                Some((_, best_distance)) => distance < best_distance,
+            };
+            if is_closer {
                 best = Some((position, distance));
             }
         }

@@ -171,12 +171,18 @@ fn code_formatting_rounds_to_the_requested_digits() {
 #[test]
 fn code_errors_say_what_was_expected() {
     let not_a_code_unit = parse_code("4K7", Unit::Volt).map_err(|error| error.to_string());
-    assert!(matches!(not_a_code_unit, Err(message) if message.contains("resistance") && message.contains("volts")));
+    assert!(
+        matches!(not_a_code_unit, Err(message) if message.contains("resistance") && message.contains("volts"))
+    );
     let cases = [
         ("470", Unit::Ohm, "no multiplier letter"),
         ("4K7K", Unit::Ohm, "more than one multiplier letter"),
         ("K", Unit::Ohm, "no digits"),
-        ("4m7", Unit::Ohm, "'m' is not a digit or a multiplier letter"),
+        (
+            "4m7",
+            Unit::Ohm,
+            "'m' is not a digit or a multiplier letter",
+        ),
         ("4.7K", Unit::Ohm, "'.' is not a digit"),
         ("4R7", Unit::Farad, "'R' is not a digit"),
     ];
@@ -197,8 +203,14 @@ fn code_errors_say_what_was_expected() {
         format_code(1e4, Unit::Farad, 3),
     ];
     for result in writing_errors {
-        let message = result.err().map(|error| error.to_string()).unwrap_or_default();
-        assert!(message.contains("cannot be written as an IEC 60062 code"), "{message}");
+        let message = result
+            .err()
+            .map(|error| error.to_string())
+            .unwrap_or_default();
+        assert!(
+            message.contains("cannot be written as an IEC 60062 code"),
+            "{message}"
+        );
     }
     assert!(matches!(
         format_code(4700.0, Unit::Ohm, 0),
@@ -283,9 +295,15 @@ fn wrong_input_is_refused_with_a_helpful_message() {
 fn ambiguous_prefixes_are_refused() {
     // Bare "m" on a resistance: milliohm by SI, megohm by shop habit; refused by design.
     let error = check_error("1m", Unit::Ohm, &["ambiguous", "\"M\"", "mΩ"]);
-    assert!(matches!(error, QuantityError::AmbiguousResistancePrefix { .. }));
+    assert!(matches!(
+        error,
+        QuantityError::AmbiguousResistancePrefix { .. }
+    ));
     let error = check_error("1M", Unit::Farad, &["megafarads", "µ"]);
-    assert!(matches!(error, QuantityError::ImplausibleCapacitancePrefix { .. }));
+    assert!(matches!(
+        error,
+        QuantityError::ImplausibleCapacitancePrefix { .. }
+    ));
     // Spelled-out units are unambiguous.
     check("1 mΩ", Unit::Ohm, 1e-3);
     check("1 MF", Unit::Farad, 1e6);
