@@ -116,15 +116,10 @@ pub struct LoopGain {
 /// transistor active (IC = βF·IB, VBE from the Ebers–Moll law at that current), iterated a few
 /// times. Newton converges to an unstable equilibrium as readily as to a stable one when it
 /// starts close enough.
-fn middle_point_guess(network: &StageNetwork, models: &[EbersMoll; 2], states: [&StateAnalysis; 2]) -> Vec<f64> {
+fn middle_point_guess(network: &StageNetwork, models: &[EbersMoll; 2]) -> Vec<f64> {
     let corner = &network.corner;
     let vt = crate::physics::thermal_voltage(models[0].temperature_c);
-    let mut guess: Vec<f64> = states[0]
-        .node_voltages
-        .iter()
-        .zip(&states[1].node_voltages)
-        .map(|((_, a), (_, b))| 0.5 * (a + b))
-        .collect();
+    let mut guess: Vec<f64> = vec![0.0; network.node_count()];
     let self_bias = network.node_names.contains(&"E");
     let base_return = if self_bias { 0.0 } else { -corner.bias_supply_v };
     let mut collector_v = [0.0; 2];
@@ -201,9 +196,8 @@ pub fn loop_gain(
     network: &StageNetwork,
     models: &[EbersMoll; 2],
     diode: &DiodeLaw,
-    states: [&StateAnalysis; 2],
 ) -> Result<LoopGain, ExactError> {
-    let initial = middle_point_guess(network, models, states);
+    let initial = middle_point_guess(network, models);
     let solution = network.solve_exact(models, diode, &initial).map_err(ExactError::Solve)?;
     let v = &solution.node_voltages;
     let volts = |t: Terminal| StageNetwork::voltage(t, v);

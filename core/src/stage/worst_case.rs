@@ -10,8 +10,7 @@
 use serde::Serialize;
 
 use super::exact::{loop_gain, LoopGain};
-use super::handbook::analyse_state;
-use super::margins::{devices_at, evaluate_corner, margin_value, CornerMetrics, MarginKind, DC_MARGINS};
+use super::margins::{evaluate_corner, margin_value, CornerMetrics, MarginKind, DC_MARGINS};
 use super::network::{Corner, DiodeLaw, SolveError, StageNetwork};
 use super::{BiasScheme, Load, StageDesign};
 use crate::device::ebers_moll::EbersMoll;
@@ -214,8 +213,12 @@ fn search(
             nominal
         }
     };
+    // Values at the opposite end of each parameter, from the last pass: when a pass changes
+    // nothing, they say how much each parameter limits the margin.
+    let mut limiting: Vec<(Parameter, f64)> = Vec::new();
     for _pass in 0..4 {
         let mut changed = false;
+        limiting.clear();
         for index in 0..assignment.len() {
             let Some(&(parameter, current)) = assignment.get(index) else { continue };
             // A parameter that moved the margin not at all on its own is skipped; temperature
@@ -229,7 +232,7 @@ fn search(
             }
             let candidates: &[Setting] = match parameter {
                 Parameter::Temperature => &[Setting::Low, Setting::Nominal, Setting::High],
-                _ => &[Setting::Low, Setting::High, Setting::Nominal],
+                _ => &[Setting::Low, Setting::High],
             };
             for &candidate in candidates {
                 if candidate == current {
@@ -247,29 +250,18 @@ fn search(
                         changed = true;
                         break;
                     }
+                    let opposite = matches!(
+                        (current, candidate),
+                        (Setting::Low, Setting::High) | (Setting::High, Setting::Low)
+                    );
+                    if opposite && value > worst {
+                        limiting.push((parameter, value - worst));
+                    }
                 }
             }
         }
         if !changed {
             break;
-        }
-    }
-    // Limiting parameters: how much flipping each would improve the margin.
-    let mut limiting = Vec::new();
-    for index in 0..assignment.len() {
-        let Some(&(parameter, current)) = assignment.get(index) else { continue };
-        if current == Setting::Nominal {
-            continue;
-        }
-        let mut trial = assignment.clone();
-        if let Some(slot) = trial.get_mut(index) {
-            slot.1 = if current == Setting::Low { Setting::High } else { Setting::Low };
-        }
-        evaluations += 1;
-        if let Some(value) = evaluate(&corner_for(design, &trial)) {
-            if value > worst {
-                limiting.push((parameter, value - worst));
-            }
         }
     }
     limiting.sort_by(|a, b| b.1.total_cmp(&a.1));
@@ -302,10 +294,8 @@ pub fn diode_at(design: &StageDesign, temperature_c: f64) -> DiodeLaw {
 /// Loop gain at a corner (exact model).
 pub fn loop_gain_at(design: &StageDesign, base: &EbersMoll, corner: &Corner) -> Option<LoopGain> {
     let network = StageNetwork::build(design, corner);
-    let devices = devices_at(design, corner);
-    let states = [analyse_state(&network, 0, devices).ok()?, analyse_state(&network, 1, devices).ok()?];
     let models = models_at(design, base, corner);
-    loop_gain(&network, &models, &diode_at(design, corner.temperature_c), [&states[0], &states[1]]).ok()
+    loop_gain(&network, &models, &diode_at(design, corner.temperature_c)).ok()
 }
 
 /// Runs the worst-case search for every DC margin and the loop gain.

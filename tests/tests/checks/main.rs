@@ -4,3 +4,5 @@
 
 mod series;
 mod units;
+mod physics;
+mod handbook;
