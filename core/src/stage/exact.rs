@@ -47,7 +47,10 @@ impl std::fmt::Display for ExactError {
     }
 }
 
-fn named(network: &StageNetwork, v: &[f64]) -> (Vec<(&'static str, f64)>, Vec<(&'static str, f64)>) {
+/// Values labelled by node or branch name.
+type Named = Vec<(&'static str, f64)>;
+
+fn named(network: &StageNetwork, v: &[f64]) -> (Named, Named) {
     let nodes = network.node_names.iter().zip(v).map(|(n, x)| (*n, *x)).collect();
     let branches = network
         .resistors
@@ -225,7 +228,7 @@ pub fn loop_gain(
             .resistors
             .iter()
             .filter(|r| r.from == Terminal::Node(node) || r.to == Terminal::Node(node))
-            .filter(|r| !(r.name == "R1a" || r.name == "R1b") && !r.name.starts_with("Rt"))
+            .filter(|r| !(r.name == "R1a" || r.name == "R1b" || r.name.starts_with("Rt")))
             .map(|r| 1.0 / r.resistance_ohm)
             .sum()
     };

@@ -326,7 +326,7 @@ impl StageNetwork {
         start.resize(expanded.size, 0.0);
         expanded.initialise_internal(&mut start);
         match expanded.newton(models, diode, &start, 1.0) {
-            Ok(solution) => return Ok(expanded.finish(models, diode, solution)),
+            Ok(solution) => Ok(expanded.finish(models, diode, solution)),
             Err(first_error) => {
                 // Source stepping: ramp every fixed voltage from a fraction up to full value,
                 // starting each step from the last solution.

@@ -182,7 +182,7 @@ fn design_at_current(
         });
     }
     steps.push(format!(
-        "first cut (handbook procedure with exact balance, hFE {hfe_design:.1} at the cold/hot end, VBE(sat) {vbe_sat:.2} V, VCE(sat) {vce_sat:.2} V): RC {}, R1 {}, R2 {}{}",
+        "first cut (handbook current balance, hFE {hfe_design:.1} at the cold/hot end, VBE(sat) {vbe_sat:.2} V, VCE(sat) {vce_sat:.2} V): RC {}, R1 {}, R2 {}{}",
         format_quantity(first.collector_resistor_ohm, Unit::Ohm),
         format_quantity(first.cross_resistor_ohm, Unit::Ohm),
         format_quantity(first.base_resistor_ohm, Unit::Ohm),

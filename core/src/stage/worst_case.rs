@@ -179,6 +179,9 @@ pub struct WorstCaseReport {
     pub total_evaluations: usize,
 }
 
+/// Worst value, the off-nominal settings there, the limiting parameters, evaluations used.
+type SearchResult = (f64, Vec<(Parameter, Setting)>, Vec<(Parameter, f64)>, usize);
+
 /// Generic search: `evaluate` gives the margin (larger is better) at a corner, or `None`
 /// when it cannot be evaluated there (treated as no information).
 fn search(
@@ -187,7 +190,7 @@ fn search(
     sensitivities: &[(Option<f64>, Option<f64>)],
     nominal: f64,
     mut evaluate: impl FnMut(&Corner) -> Option<f64>,
-) -> (f64, Vec<(Parameter, Setting)>, Vec<(Parameter, f64)>, usize) {
+) -> SearchResult {
     let mut evaluations = 0;
     let mut assignment: Vec<(Parameter, Setting)> = params
         .iter()
