@@ -107,8 +107,8 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
             value_text: format_quantity(ohms, Unit::Ohm),
             code: format_code(ohms, Unit::Ohm, 3).unwrap_or_default(),
             tolerance_text: tolerance_text(r_tol),
-            stress_text: format!("{} worst case", format_quantity(watts, Unit::Watt)),
-            rating_text: rating.map(|r| format!("{} rating", format_quantity(r, Unit::Watt))).unwrap_or_else(|| "above 10 W: redesign".to_string()),
+            stress_text: format_quantity(watts, Unit::Watt),
+            rating_text: rating.map(|r| format_quantity(r, Unit::Watt)).unwrap_or_else(|| "above 10 W: redesign".to_string()),
             meets: rating.is_some(),
         });
     };
@@ -140,8 +140,8 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
             value_text: format_quantity(farads, Unit::Farad),
             code: format_code(farads, Unit::Farad, 3).unwrap_or_default(),
             tolerance_text: tolerance_text(tolerance),
-            stress_text: format!("{} across, worst case", format_quantity(volts, Unit::Volt)),
-            rating_text: rating.map(|r| format!("{} V rating", trim(r))).unwrap_or_else(|| "above 1 kV: special part".to_string()),
+            stress_text: format!("{} across", format_quantity(volts, Unit::Volt)),
+            rating_text: rating.map(|r| format!("{} V", trim(r))).unwrap_or_else(|| "above 1 kV: special part".to_string()),
             meets: rating.is_some(),
         });
     };
@@ -180,64 +180,73 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
                 designator: format!("D{n}{index:02}"),
                 part: "diode".to_string(),
                 function: format!(
-                    "{} steering diode, Q{index} side",
+                    "{} steering diode, Q{index} side: {}",
                     match trigger.steering {
                         Steering::Base => "base",
                         Steering::Collector => "collector",
-                    }
+                    },
+                    diode.label
                 ),
                 value: None,
-                value_text: diode.label.clone(),
+                value_text: format!("{} diode", match diode.material {
+                    crate::device::Material::Silicon => "Si",
+                    crate::device::Material::Germanium => "Ge",
+                }),
                 code: String::new(),
                 tolerance_text: String::new(),
-                stress_text: format!("{} reverse, worst case", format_quantity(reverse_v, Unit::Volt)),
+                stress_text: format!("{} reverse", format_quantity(reverse_v, Unit::Volt)),
                 rating_text: format!(
-                    "PIV ≥ {}, trr ≤ {} (fitted: {}, {})",
+                    "PIV ≥ {}, trr ≤ {}",
                     format_quantity(1.25 * reverse_v, Unit::Volt),
-                    format_quantity(trr_limit, Unit::Second),
-                    format_quantity(diode.piv_v, Unit::Volt),
-                    format_quantity(diode.reverse_recovery_s, Unit::Second)
+                    format_quantity(trr_limit, Unit::Second)
                 ),
                 meets,
             });
         }
     }
-    // Transistors.
-    let metrics = &report.nominal_metrics;
-    let margin = |kind: crate::stage::margins::MarginKind| report.margins.iter().find(|m| m.kind == kind);
+    // Transistors: the stresses are the worst cases found by the margin searches.
     use crate::stage::margins::MarginKind as K;
-    let vce_needed = sheet.vceo_v - margin(K::CollectorEmitterVoltage).map(|m| m.worst).unwrap_or(sheet.vceo_v - metrics.max_collector_emitter_v);
-    let vebo_needed = sheet.vebo_v - margin(K::ReverseBaseEmitter).map(|m| m.worst).unwrap_or(0.0);
-    let ic_needed = sheet.ic_max_a - margin(K::CollectorCurrent).map(|m| m.worst).unwrap_or(0.0);
-    let p_needed = metrics.derated_ptot_w - margin(K::TransistorDissipation).map(|m| m.worst).unwrap_or(0.0);
-    let transistor_ok = [K::CollectorEmitterVoltage, K::ReverseBaseEmitter, K::CollectorCurrent, K::TransistorDissipation]
+    let worst = |kind: K| report.margins.iter().find(|m| m.kind == kind);
+    let vce_needed = worst(K::CollectorEmitterVoltage).map(|m| sheet.vceo_v - m.worst).unwrap_or(0.0);
+    let vebo_needed = worst(K::ReverseBaseEmitter).map(|m| sheet.vebo_v - m.worst).unwrap_or(0.0);
+    let ic_needed = worst(K::CollectorCurrent).map(|m| sheet.ic_max_a - m.worst).unwrap_or(0.0);
+    let p_needed = report.worst_case.transistor_dissipation_w;
+    // hFE(min) at 25 °C that would just give the minimum overdrive at the worst corner.
+    let hfe_needed = worst(K::Overdrive)
+        .filter(|m| m.worst > 0.0 && m.worst.is_finite())
+        .map(|m| sheet.hfe_min * input.requirements.min_overdrive / m.worst)
+        .unwrap_or(sheet.hfe_min);
+    let transistor_ok = [K::Overdrive, K::CollectorEmitterVoltage, K::ReverseBaseEmitter, K::CollectorCurrent, K::TransistorDissipation]
         .iter()
-        .all(|k| margin(*k).is_none_or(|m| m.pass));
+        .all(|k| worst(*k).is_none_or(|m| m.pass));
+    let material = match sheet.material {
+        crate::device::Material::Silicon => "Si",
+        crate::device::Material::Germanium => "Ge",
+    };
     for index in 1..=2 {
         rows.push(ComponentRow {
             designator: format!("Q{n}{index:02}"),
             part: format!("{} transistor", sheet.polarity.name()),
-            function: format!("bistable transistor Q{index}"),
+            function: format!("bistable transistor Q{index}: {}", sheet.label),
             value: None,
-            value_text: sheet.label.clone(),
+            value_text: format!("{material} {}", sheet.polarity.name()),
             code: String::new(),
             tolerance_text: format!("hFE {:.0}–{:.0}", sheet.hfe_min, sheet.hfe_max),
             stress_text: format!(
-                "VCE {}, VEB {} reverse, IC {}, {} worst case",
+                "VCE {}, VEB {} rev., IC {}, {}",
                 format_quantity(vce_needed, Unit::Volt),
                 format_quantity(vebo_needed, Unit::Volt),
                 format_quantity(ic_needed, Unit::Ampere),
                 format_quantity(p_needed, Unit::Watt)
             ),
             rating_text: format!(
-                "VCEO ≥ {}, VEBO ≥ {}, IC ≥ {}, hFE(min) ≥ {:.0} (fitted: {}, {}, {})",
+                "VCEO ≥ {}, VEBO ≥ {}, IC ≥ {}, hFE(min) ≥ {:.0}, Ptot ≥ {} at {} °C",
                 format_quantity(vce_needed, Unit::Volt),
                 format_quantity(vebo_needed, Unit::Volt),
                 format_quantity(ic_needed, Unit::Ampere),
-                sheet.hfe_min,
-                format_quantity(sheet.vceo_v, Unit::Volt),
-                format_quantity(sheet.vebo_v, Unit::Volt),
-                format_quantity(sheet.ic_max_a, Unit::Ampere)
+                hfe_needed.ceil(),
+                format_quantity(p_needed, Unit::Watt),
+                input.conditions.t_max_c
             ),
             meets: transistor_ok,
         });
@@ -247,7 +256,7 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
 
 /// Plain-text table with aligned columns.
 pub fn to_text(rows: &[ComponentRow]) -> String {
-    let headers = ["Ref", "Value", "Code", "Tolerance", "Worst-case stress", "Buy", "Function"];
+    let headers = ["Ref", "Value", "Code", "Tolerance", "Worst-case stress", "Buy (rating)", "Function"];
     let cells: Vec<[String; 7]> = rows
         .iter()
         .map(|r| {

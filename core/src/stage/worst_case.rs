@@ -176,6 +176,8 @@ pub struct WorstCaseReport {
     /// W, and at the corner set for maximum dissipation of that resistor.
     pub resistor_dissipation_w: Vec<(&'static str, f64)>,
     pub supply_power_w: f64,
+    /// Largest transistor dissipation found over all corners evaluated, W.
+    pub transistor_dissipation_w: f64,
     pub total_evaluations: usize,
 }
 
@@ -310,7 +312,9 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
     let mut one_at_a_time: Vec<(Option<CornerMetrics>, Option<CornerMetrics>)> = Vec::with_capacity(params.len());
     let mut dissipation = nominal_metrics.resistor_dissipation_w.clone();
     let mut supply_power_w = nominal_metrics.supply_power_w;
+    let transistor_dissipation = std::cell::Cell::new(nominal_metrics.max_transistor_dissipation_w);
     let record = |metrics: &CornerMetrics, dissipation: &mut Vec<(&'static str, f64)>, power: &mut f64| {
+        transistor_dissipation.set(transistor_dissipation.get().max(metrics.max_transistor_dissipation_w));
         for ((_, worst), (_, value)) in dissipation.iter_mut().zip(&metrics.resistor_dissipation_w) {
             *worst = worst.max(*value);
         }
@@ -382,6 +386,7 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
                 }
             }
             supply_power_w = supply_power_w.max(metrics.supply_power_w);
+            transistor_dissipation.set(transistor_dissipation.get().max(metrics.max_transistor_dissipation_w));
         }
     }
     // Loop gain with the exact model.
@@ -418,7 +423,13 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
             evaluations: 1,
         });
     }
-    Ok(WorstCaseReport { margins, resistor_dissipation_w: dissipation, supply_power_w, total_evaluations })
+    Ok(WorstCaseReport {
+        margins,
+        resistor_dissipation_w: dissipation,
+        supply_power_w,
+        transistor_dissipation_w: transistor_dissipation.get(),
+        total_evaluations,
+    })
 }
 
 /// Exhaustive search over every low/high combination (and, for temperature, also nominal),
