@@ -13,6 +13,9 @@ cargo xtask <command>
           and the IEC 60063 table cross-check against the PyPI package eseries
           (installed into target/xtask-venv on first use)
   bench   run the benchmarks (release build) and print medians
+  browser-test  build the page and run only the browser tests
+  page    build the offline page out/flipwright.html and open it in a browser
+          (or print its path where none can be opened)
 ";
 
 fn root() -> PathBuf {
@@ -109,8 +112,126 @@ fn test() -> Result<(), String> {
     run("cargo", &["test", "--workspace", "--quiet"])?;
     run("cargo", &["test", "--workspace", "--doc", "--quiet"])?;
     eseries_check()?;
+    browser_tests()?;
     eprintln!("\nall checks passed");
     Ok(())
+}
+
+fn base64(bytes: &[u8]) -> String {
+    const ALPHABET: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    let mut out = String::with_capacity(bytes.len().div_ceil(3) * 4);
+    for chunk in bytes.chunks(3) {
+        let b = [chunk.first().copied().unwrap_or(0), chunk.get(1).copied().unwrap_or(0), chunk.get(2).copied().unwrap_or(0)];
+        let n = (u32::from(b[0]) << 16) | (u32::from(b[1]) << 8) | u32::from(b[2]);
+        for (i, shift) in [18u32, 12, 6, 0].iter().enumerate() {
+            if i <= chunk.len() {
+                out.push(char::from(ALPHABET[((n >> shift) & 63) as usize]));
+            } else {
+                out.push('=');
+            }
+        }
+    }
+    out
+}
+
+fn ensure_wasm_target() -> Result<(), String> {
+    let installed = output("rustup", &["target", "list", "--installed"])?;
+    if !installed.lines().any(|l| l.trim() == "wasm32-unknown-unknown") {
+        run("rustup", &["target", "add", "wasm32-unknown-unknown"])?;
+    }
+    Ok(())
+}
+
+/// Builds the single self-contained page; `test_hooks` adds the forced-failure export.
+pub fn build_page(test_hooks: bool) -> Result<PathBuf, String> {
+    ensure_wasm_target()?;
+    let target_dir = if test_hooks { "target/wasm-test-hooks" } else { "target" };
+    let mut args = vec!["build", "-p", "flipwright-web", "--lib", "--target", "wasm32-unknown-unknown", "--profile", "wasm", "--target-dir", target_dir];
+    if test_hooks {
+        args.extend(["--features", "test-hooks"]);
+    }
+    run("cargo", &args)?;
+    let wasm = root().join(target_dir).join("wasm32-unknown-unknown/wasm/flipwright_web.wasm");
+    let bindgen_dir = root().join(target_dir).join("page-bindgen");
+    std::fs::create_dir_all(&bindgen_dir).map_err(|e| format!("cannot create {}: {e}", bindgen_dir.display()))?;
+    let mut bindgen = wasm_bindgen_cli_support::Bindgen::new();
+    bindgen
+        .input_path(&wasm)
+        .no_modules(true)
+        .map_err(|e| format!("bindgen: {e}"))?
+        .typescript(false);
+    let mut generated = bindgen.generate_output().map_err(|e| format!("bindgen: {e}"))?;
+    generated.emit(&bindgen_dir).map_err(|e| format!("bindgen: {e}"))?;
+    let read = |name: &str| std::fs::read(bindgen_dir.join(name)).map_err(|e| format!("cannot read {name}: {e}"));
+    let glue = String::from_utf8(read("flipwright_web.js")?).map_err(|e| format!("glue is not UTF-8: {e}"))?;
+    let wasm_bytes = read("flipwright_web_bg.wasm")?;
+    let www = |name: &str| std::fs::read_to_string(root().join("www").join(name)).map_err(|e| format!("cannot read www/{name}: {e}"));
+    let template = www("index.html")?;
+    // The glue lives in a text/plain script so the page can re-evaluate it after a failure;
+    // it must not contain a closing script tag.
+    if glue.contains("</script") {
+        return Err("the generated glue contains </script>; cannot inline it".to_string());
+    }
+    let page = template
+        .replace("/*@STYLE@*/", &www("style.css")?)
+        .replace("/*@GLUE@*/", &glue)
+        .replace("/*@WASM@*/", &base64(&wasm_bytes))
+        .replace("/*@APP@*/", &www("app.js")?);
+    let out_dir = root().join("out");
+    std::fs::create_dir_all(&out_dir).map_err(|e| format!("cannot create {}: {e}", out_dir.display()))?;
+    let path = out_dir.join(if test_hooks { "flipwright-test-hooks.html" } else { "flipwright.html" });
+    std::fs::write(&path, page).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    eprintln!("built {} ({} KiB; wasm {} KiB)", path.display(), std::fs::metadata(&path).map(|m| m.len() / 1024).unwrap_or(0), wasm_bytes.len() / 1024);
+    Ok(path)
+}
+
+fn page() -> Result<(), String> {
+    let path = build_page(false)?;
+    let url = format!("file://{}", path.display());
+    let opener = if cfg!(target_os = "macos") { "open" } else { "xdg-open" };
+    let has_display = std::env::var_os("DISPLAY").is_some() || std::env::var_os("WAYLAND_DISPLAY").is_some() || cfg!(target_os = "macos");
+    if has_display && Command::new(opener).arg(&url).status().map(|s| s.success()).unwrap_or(false) {
+        eprintln!("opened {url}");
+    } else {
+        println!("Open this file in a browser (it works offline, no server needed):\n  {url}");
+    }
+    Ok(())
+}
+
+/// Debian's Chromium and poppler (for the print checks), installed when missing.
+fn ensure_browser() -> Result<(), String> {
+    let have = |program: &str| Command::new("sh").args(["-c", &format!("command -v {program}")]).output().map(|o| o.status.success()).unwrap_or(false);
+    if have("chromium") && have("pdftotext") && have("pdftoppm") {
+        return Ok(());
+    }
+    eprintln!("installing Debian's chromium and poppler-utils for the browser tests");
+    run("apt-get", &["update", "-qq"])?;
+    run("apt-get", &["install", "-y", "-qq", "chromium", "poppler-utils"])
+}
+
+fn browser_tests() -> Result<(), String> {
+    ensure_browser()?;
+    let page = build_page(false)?;
+    let hooks = build_page(true)?;
+    let dir = root().join("tests/browser");
+    let dir_text = dir.to_string_lossy().to_string();
+    if !dir.join("node_modules/playwright-core").exists() {
+        run("npm", &["ci", "--prefix", &dir_text, "--no-audit", "--no-fund"])?;
+    }
+    eprintln!("$ node --test tests/browser/page.test.mjs");
+    let status = Command::new("node")
+        .args(["--test", "--test-concurrency=1", "page.test.mjs"])
+        .current_dir(&dir)
+        .env("FLIPWRIGHT_PAGE", &page)
+        .env("FLIPWRIGHT_TEST_PAGE", &hooks)
+        .env("PLAYWRIGHT_SKIP_BROWSER_DOWNLOAD", "1")
+        .status()
+        .map_err(|e| format!("cannot start node: {e}"))?;
+    if status.success() {
+        Ok(())
+    } else {
+        Err("browser tests failed (screenshots and PDFs in out/browser-test/)".to_string())
+    }
 }
 
 fn bench() -> Result<(), String> {
@@ -123,6 +244,8 @@ fn main() -> ExitCode {
         Some("demo") => demo(),
         Some("test") => test(),
         Some("bench") => bench(),
+        Some("page") => page(),
+        Some("browser-test") => browser_tests(),
         Some("help") | None => {
             print!("{HELP}");
             Ok(())

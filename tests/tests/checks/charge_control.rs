@@ -88,10 +88,14 @@ fn formulas_refuse_drive_that_cannot_reach_the_end_point() {
 
 /// Bell ex. 13.1/13.4 stage (VCC 5 V, VBB 5 V, RC 2.4 kΩ, R1 16.1 kΩ, R2 27 kΩ) with a
 /// transistor of hFE 150 (Bell's hFE(min) 70 would not saturate with R2 = 27 kΩ in this
-/// model's exact balance, and the estimate then has no rise time), storage constant `tau_s`.
+/// model's exact balance, and the estimate then has no rise time), storage constant `tau_s`
+/// and junction capacitances of 0.1 pF.
 fn bell_estimate(tau_s: f64, c1: f64) -> SwitchingEstimate {
     let mut transistor = exact_transistor(150.0, 0.2, 0.7, 0.0);
     transistor.storage_time_constant_s = Some(tau_s);
+    // Small junction capacitances keep the turn-on delay well under 260 ns.
+    transistor.cib_f = 0.1e-12;
+    transistor.cob_f = 0.1e-12;
     let mut input = fixed_bias_input(transistor, 5.0, 5.0, 2.4e3, 16.1e3, 27e3);
     input.values.commutating_capacitor_f = c1;
     let design = StageDesign::new(input).unwrap_or_else(|e| panic!("test design invalid: {e:?}"));

@@ -60,13 +60,14 @@ fn solve_increasing(mut f: impl FnMut(f64) -> f64, target: f64, mut low: f64, mu
 }
 
 /// Junction voltages (VBE, VBC) at which `model.evaluate` gives IC = `ic` and IB = `ib`,
-/// found independently of the library: for each trial VBC, bisect VBE to give IB; then bisect
-/// VBC until IC matches (IC falls as the collector junction is driven forward).
+/// found independently of the library: for each trial VCE, bisect VBE (with VBC = VBE − VCE)
+/// to give IB; then bisect VCE until IC matches (at fixed IB, IC rises from below zero at
+/// VCE = 0 towards βF·IB in the active region).
 fn saturated_junctions(model: &EbersMoll, ic: f64, ib: f64) -> (f64, f64) {
-    let vbe_for = |vbc: f64| solve_increasing(|vbe| model.evaluate(vbe, vbc).base_current_a, ib, -0.5, 1.5);
-    // −IC is increasing in VBC.
-    let vbc = solve_increasing(|vbc| -model.evaluate(vbe_for(vbc), vbc).collector_current_a, -ic, -0.5, 1.2);
-    (vbe_for(vbc), vbc)
+    let vbe_for = |vce: f64| solve_increasing(|vbe| model.evaluate(vbe, vbe - vce).base_current_a, ib, -0.5, 1.5);
+    let vce = solve_increasing(|vce| model.evaluate(vbe_for(vce), vbe_for(vce) - vce).collector_current_a, ic, 0.0, 1.0);
+    let vbe = vbe_for(vce);
+    (vbe, vbe - vce)
 }
 
 #[test]

@@ -6,3 +6,6 @@ mod series;
 mod units;
 mod physics;
 mod handbook;
+mod charge_control;
+mod ebers_moll;
+mod stage_models;

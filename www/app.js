@@ -1,0 +1,467 @@
+// Flipwright page: reads the form, calls the wasm bridge, renders its results. No engineering here.
+"use strict";
+
+const STORAGE_KEY = "flipwright.design.v1";
+
+// Form fields: [path in the design file, label, kind, options]. Text fields accept units and
+// IEC 60062 codes ("4k7", "100 nF"); the core parses and validates them.
+const FIELDS = [
+  ["name", "Design name", "text"],
+  ["supplies.collector_supply_v", "Collector supply |V| (V)", "text"],
+  ["supplies.bias_supply_v", "Bias rail |V| (V, fixed bias)", "text"],
+  ["supplies.tolerance", "Supply tolerance (0.05 = ±5 %)", "text"],
+  ["transistor", "Transistor", "transistor"],
+  ["diode", "Steering diode", "diode"],
+  ["conditions.t_min_c", "Lowest temperature (°C)", "text"],
+  ["conditions.t_max_c", "Highest temperature (°C)", "text"],
+  ["conditions.resistor_tolerance", "Resistor tolerance", "text"],
+  ["conditions.capacitor_tolerance", "Capacitor tolerance", "text"],
+  ["requirements.collector_current_a", "ON collector current (A)", "optional"],
+  ["requirements.power_budget_w", "or power budget (W)", "optional"],
+  ["requirements.toggle_rate_hz", "Input (toggle) rate (Hz)", "text"],
+  ["requirements.toggle_rate_margin", "Toggle-rate margin (×)", "text"],
+  ["requirements.target_overdrive", "Target overdrive", "text"],
+  ["requirements.min_overdrive", "Minimum overdrive (worst case)", "text"],
+  ["requirements.min_cutoff_margin_v", "Minimum cut-off margin (V)", "text"],
+  ["requirements.min_loop_gain", "Minimum loop gain", "text"],
+  ["requirements.min_output_swing_v", "Minimum output swing (V)", "text"],
+  ["requirements.trigger_amplitude_v", "Trigger amplitude (V; blank = own swing)", "optional"],
+  ["requirements.bias", "Bias", "select", [["fixed", "fixed (bias rail)"], ["self_bias", "self bias (emitter resistor)"]]],
+  ["requirements.steering", "Trigger steering", "select", [["base", "base-steered"], ["collector", "collector-steered"]]],
+  ["requirements.divider_current_fraction", "Divider current / IC", "text"],
+  ["requirements.resistor_series", "Resistor series", "select", ["E6", "E12", "E24", "E48", "E96", "E192"].map(s => [s, s])],
+  ["requirements.capacitor_series", "Capacitor series", "select", ["E6", "E12", "E24"].map(s => [s, s])],
+  ["loads.1.resistance_ohm", "Load on Q2 output (Ω to 0 V; blank = none)", "optional"],
+];
+
+const VALUE_FIELDS = [
+  ["values.collector_resistor_ohm", "RC (Ω)"],
+  ["values.cross_resistor_ohm", "R1 (Ω)"],
+  ["values.base_resistor_ohm", "R2 (Ω)"],
+  ["values.emitter_resistor_ohm", "RE (Ω, self bias)"],
+  ["values.emitter_bypass_capacitor_f", "RE bypass (F)"],
+  ["values.commutating_capacitor_f", "C1 (F)"],
+  ["values.trigger.trigger_capacitor_f", "Ct (F)"],
+  ["values.trigger.trigger_resistor_ohm", "Rt (Ω)"],
+];
+
+let engine = null;          // the bridge's exported functions
+let wasmBytes = null;       // kept to re-instantiate after a failure
+let current = null;         // the design file object shown in the form
+let lastView = null;        // last successful analysis view
+let archetypeList = { transistors: [], diodes: [] };
+let pending = 0;
+
+const $ = (id) => document.getElementById(id);
+
+function getPath(object, path) {
+  return path.split(".").reduce((o, k) => (o == null ? undefined : o[k]), object);
+}
+function setPath(object, path, value) {
+  const keys = path.split(".");
+  let o = object;
+  keys.slice(0, -1).forEach((k, i) => {
+    if (o[k] == null || typeof o[k] !== "object") o[k] = /^\d+$/.test(keys[i + 1]) ? [] : {};
+    o = o[k];
+  });
+  o[keys[keys.length - 1]] = value;
+}
+
+function banner(text, kind) {
+  const el = $("banner");
+  el.textContent = text || "";
+  el.className = "banner" + (text ? " show" : "") + (kind === "error" ? " error" : "");
+}
+
+// ---- engine start and recovery ----
+function decodeBase64(text) {
+  const binary = atob(text);
+  const bytes = new Uint8Array(binary.length);
+  for (let i = 0; i < binary.length; i++) bytes[i] = binary.charCodeAt(i);
+  return bytes;
+}
+
+async function startEngine() {
+  // Evaluate the glue afresh so a failed instance is fully replaced.
+  const script = document.createElement("script");
+  // Wrapped in a function so its top-level declarations do not clash with the last instance.
+  script.textContent = "(function () {\n" + $("glue-source").textContent + "\nwindow.wasm_bindgen = wasm_bindgen;\n})();";
+  document.head.appendChild(script);
+  script.remove();
+  if (!wasmBytes) wasmBytes = decodeBase64(WASM_BASE64);
+  await window.wasm_bindgen({ module_or_path: wasmBytes });
+  engine = window.wasm_bindgen;
+}
+
+async function call(name, ...args) {
+  try {
+    return engine[name](...args);
+  } catch (error) {
+    if (error instanceof WebAssembly.RuntimeError) {
+      banner("The engine failed internally (" + error.message + ") and was restarted; your design is unchanged. Please report what you entered.", "error");
+      engine = null;
+      await startEngine();
+      return null;
+    }
+    throw error;
+  }
+}
+
+// ---- form ----
+function fieldRow(path, label, kind, options) {
+  const row = document.createElement("div");
+  row.className = "field";
+  row.dataset.path = path;
+  const id = "f-" + path.replace(/\W/g, "-");
+  const lab = document.createElement("label");
+  lab.htmlFor = id;
+  lab.textContent = label;
+  let input;
+  if (kind === "select" || kind === "transistor" || kind === "diode") {
+    input = document.createElement("select");
+    const list = kind === "transistor" ? archetypeList.transistors : kind === "diode" ? archetypeList.diodes : options;
+    for (const [value, text] of list) {
+      const option = document.createElement("option");
+      option.value = value;
+      option.textContent = text;
+      input.appendChild(option);
+    }
+  } else {
+    input = document.createElement("input");
+    input.type = "text";
+    input.spellcheck = false;
+  }
+  input.id = id;
+  input.name = path;
+  input.dataset.kind = kind;
+  input.addEventListener("input", scheduleCompute);
+  input.addEventListener("change", scheduleCompute);
+  row.append(lab, input);
+  return row;
+}
+
+function buildForm() {
+  const fields = $("fields");
+  fields.textContent = "";
+  for (const [path, label, kind, options] of FIELDS) fields.appendChild(fieldRow(path, label, kind, options));
+  const values = $("value-fields");
+  values.textContent = "";
+  for (const [path, label] of VALUE_FIELDS) values.appendChild(fieldRow(path, label, "optional"));
+  $("auto-values").addEventListener("change", () => { syncValueLock(); scheduleCompute(); });
+}
+
+function syncValueLock() {
+  const auto = $("auto-values").checked;
+  for (const input of $("value-fields").querySelectorAll("input")) input.disabled = auto;
+}
+
+function showInForm(design) {
+  for (const [path, , kind] of FIELDS) {
+    const input = $("f-" + path.replace(/\W/g, "-"));
+    let value = getPath(design, path);
+    if (kind === "transistor" || kind === "diode") {
+      if (typeof value === "object" && value) {
+        // A datasheet typed in by the user: keep it, offer it by its label.
+        const custom = "custom:" + (value.label || "user part");
+        if (![...input.options].some(o => o.value === custom)) {
+          const option = document.createElement("option");
+          option.value = custom;
+          option.textContent = "your part: " + (value.label || "user part");
+          input.appendChild(option);
+        }
+        value = custom;
+      }
+    }
+    if (path === "loads.1.resistance_ohm") {
+      const load = getPath(design, "loads.1");
+      value = load && load.kind === "resistance" ? load.resistance_ohm : "";
+    }
+    input.value = value == null ? "" : String(value);
+  }
+  showValues(design.values);
+}
+
+function showValues(values) {
+  for (const [path] of VALUE_FIELDS) {
+    const input = $("f-" + path.replace(/\W/g, "-"));
+    const value = values ? getPath({ values }, path) : undefined;
+    input.value = value == null ? "" : String(value);
+  }
+}
+
+function readForm() {
+  const design = JSON.parse(JSON.stringify(current));
+  for (const [path, , kind] of FIELDS) {
+    const input = $("f-" + path.replace(/\W/g, "-"));
+    const text = input.value.trim();
+    if (kind === "transistor" || kind === "diode") {
+      if (!text.startsWith("custom:")) design[path] = text;
+      continue;
+    }
+    if (path === "loads.1.resistance_ohm") {
+      design.loads = design.loads || [{ kind: "none" }, { kind: "none" }];
+      design.loads[1] = text === "" ? { kind: "none" } : { kind: "resistance", resistance_ohm: text, return_v: 0 };
+      continue;
+    }
+    if (kind === "optional" && text === "") { setPath(design, path, null); continue; }
+    setPath(design, path, text);
+  }
+  if ($("auto-values").checked) {
+    design.values = null;
+  } else {
+    const values = { bias: getPath(design, "requirements.bias") };
+    for (const [path] of VALUE_FIELDS) {
+      const text = $("f-" + path.replace(/\W/g, "-")).value.trim();
+      if (text !== "") setPath({ values }, path, text);
+    }
+    if (values.trigger) values.trigger.steering = getPath(design, "requirements.steering");
+    design.values = values;
+  }
+  return design;
+}
+
+function clearFieldErrors() {
+  for (const row of document.querySelectorAll(".field.invalid")) {
+    row.classList.remove("invalid");
+    row.querySelector(".error")?.remove();
+  }
+}
+
+function showFieldErrors(errors) {
+  clearFieldErrors();
+  const unplaced = [];
+  for (const error of errors) {
+    const path = error.path.replace(/\[(\d+)\]/g, ".$1");
+    let row = document.querySelector(`.field[data-path="${CSS.escape(path)}"]`);
+    if (!row && path.startsWith("loads.1")) row = document.querySelector('.field[data-path="loads.1.resistance_ohm"]');
+    if (!row) { unplaced.push(`${error.path}: ${error.message}`); continue; }
+    row.classList.add("invalid");
+    const note = document.createElement("div");
+    note.className = "error";
+    note.textContent = error.message;
+    row.appendChild(note);
+  }
+  banner(`${errors.length} entr${errors.length === 1 ? "y needs" : "ies need"} attention; the results below are from the last valid design.` + (unplaced.length ? " " + unplaced.join("; ") : ""), "error");
+}
+
+// ---- compute ----
+let timer = null;
+function scheduleCompute() {
+  clearTimeout(timer);
+  timer = setTimeout(compute, 120);
+}
+
+async function compute() {
+  const design = readForm();
+  const text = JSON.stringify(design);
+  const auto = design.values == null;
+  $("verdict").className = "verdict busy";
+  $("verdict").textContent = "Computing…";
+  const started = performance.now();
+  const result = await call(auto ? "synthesise_design" : "analyse_design", text);
+  const elapsed = performance.now() - started;
+  document.body.dataset.lastComputeMs = elapsed.toFixed(2);
+  if (!result) return;
+  if (result.status === "invalid") {
+    showFieldErrors(result.errors);
+    renderVerdictFromLast();
+    return;
+  }
+  if (result.status === "failed") {
+    banner(result.message, "error");
+    renderVerdictFromLast();
+    return;
+  }
+  clearFieldErrors();
+  banner("");
+  const view = auto ? result.analysis : result;
+  current = design;
+  if (auto) current.values = JSON.parse(view.design_json).values;
+  try { localStorage.setItem(STORAGE_KEY, JSON.stringify(current)); } catch (_) { /* storage full or blocked */ }
+  lastView = view;
+  render(view, auto ? result : null);
+  if (auto) showValues(current.values);
+  document.body.dataset.ready = "true";
+}
+
+function renderVerdictFromLast() {
+  if (lastView) render(lastView, null);
+  else { $("verdict").className = "verdict fail"; $("verdict").textContent = "No valid design yet."; }
+}
+
+// ---- rendering ----
+const PREFIXES = [[1e9, "G"], [1e6, "M"], [1e3, "k"], [1, ""], [1e-3, "m"], [1e-6, "µ"], [1e-9, "n"], [1e-12, "p"]];
+function si(value, unit) {
+  if (value == null || !isFinite(value)) return "—";
+  if (value === 0) return "0 " + unit;
+  const magnitude = Math.abs(value);
+  const [scale, prefix] = PREFIXES.find(([s]) => magnitude >= s * 0.9995) || PREFIXES[PREFIXES.length - 1];
+  return (value / scale).toPrecision(3).replace(/\.?0+$/, "") + " " + prefix + unit;
+}
+
+function cell(row, text, className) {
+  const td = document.createElement(row.parentElement && row.parentElement.tagName === "THEAD" ? "th" : "td");
+  td.textContent = text;
+  if (className) td.className = className;
+  row.appendChild(td);
+  return td;
+}
+
+function table(el, headers, rows) {
+  el.textContent = "";
+  const head = el.createTHead().insertRow();
+  for (const h of headers) { const th = document.createElement("th"); th.textContent = h; head.appendChild(th); }
+  const body = el.createTBody();
+  for (const r of rows) {
+    const tr = body.insertRow();
+    for (const c of r) {
+      const td = tr.insertCell();
+      if (c && typeof c === "object") { td.textContent = c.text; if (c.className) td.className = c.className; if (c.html) td.innerHTML = c.html; }
+      else td.textContent = c;
+    }
+  }
+}
+
+function marginText(value, unit) {
+  if (value == null || !isFinite(value)) return "—";
+  return unit ? si(value, unit) : value.toFixed(2);
+}
+
+function render(view, synthesis) {
+  const report = view.report;
+  const verdict = $("verdict");
+  verdict.className = "verdict " + (report.all_pass ? "pass" : "fail");
+  verdict.textContent = report.all_pass ? "Every margin passes at worst case." : "Some margin fails at worst case — see below for what to change.";
+  $("schematic").innerHTML = view.schematic_svg;
+  table($("margins"), ["Margin", "Nominal", "Worst", "Required", "Result", "Limited by / what to change"],
+    report.margins.map(m => [
+      m.title,
+      { text: marginText(m.nominal, m.unit), className: "num" },
+      { text: marginText(m.worst, m.unit), className: "num" },
+      { text: "≥ " + marginText(m.required, m.unit), className: "num" },
+      { text: m.pass ? "PASS" : "FAIL", className: m.pass ? "pass" : "fail" },
+      { text: (m.limiting[0] || "") + (m.pass ? "" : " — " + m.advice), className: "advice" },
+    ]));
+  const steps = $("synthesis-steps");
+  steps.textContent = "";
+  if (synthesis) {
+    const list = document.createElement("ul");
+    for (const s of synthesis.steps.concat(synthesis.shortfalls.map(x => "SHORTFALL: " + x))) {
+      const li = document.createElement("li"); li.textContent = s; list.appendChild(li);
+    }
+    steps.append("How the values were chosen:", list);
+  }
+  const states = $("states");
+  states.textContent = "";
+  states.className = "states";
+  report.handbook_states.forEach((state, i) => {
+    const box = document.createElement("div");
+    const exact = report.exact_states[i] && report.exact_states[i].Ok;
+    const t = document.createElement("table");
+    t.className = "grid";
+    const rows = state.node_voltages.map(([name, v]) => {
+      const e = exact ? exact.node_voltages.find(([n]) => n === name) : null;
+      return [name, { text: name.startsWith("S") ? "(diodes open)" : si(v, "V"), className: "num" }, { text: e ? si(e[1], "V") : "—", className: "num" }];
+    });
+    rows.push(["IC (ON)", { text: si(state.on_collector_current_a, "A"), className: "num" }, { text: exact ? si(exact.collector_current_a[state.on_side], "A") : "—", className: "num" }]);
+    rows.push(["IB (ON)", { text: si(state.on_base_current_a, "A"), className: "num" }, { text: exact ? si(exact.base_current_a[state.on_side], "A") : "—", className: "num" }]);
+    table(t, [`Q${state.on_side + 1} ON`, "handbook", "Ebers–Moll"], rows);
+    box.appendChild(t);
+    states.appendChild(box);
+  });
+  const s = report.switching;
+  table($("switching"), ["Quantity", "Estimate"], [
+    ["Delay / rise / storage / fall (no C1)", `${si(s.delay_s, "s")} / ${si(s.rise_s, "s")} / ${si(s.storage_s, "s")} / ${si(s.fall_s, "s")}`],
+    ["Charge to move at a transition", si(s.charge.total_c, "C")],
+    ["C1: charge criterion minimum · rule 10·t/(R1∥R2) · rate maximum", `${si(s.commutating_min_f, "F")} · ${si(s.commutating_rule_f, "F")} · ${si(s.commutating_max_f, "F")}`],
+    ["Transition time with C1", si(s.transition_s, "s")],
+    ["Maximum toggle rate (nominal · slow corner)", `${si(s.max_toggle_rate_hz, "Hz")} · ${si(report.worst_max_toggle_rate_hz, "Hz")}`],
+    ["Rules 1/(2.3·C1·R1∥R2) · 1/(2·C1·R1∥R2)", `${si(s.max_rate_rule_bell_hz, "Hz")} · ${si(s.max_rate_rule_half_hz, "Hz")}`],
+    ["Trigger: estimated minimum · available", `${si(s.min_trigger_amplitude_v, "V")} · ${si(s.available_trigger_amplitude_v, "V")}`],
+  ]);
+  table($("parts"), ["Ref", "Value", "Code", "Tolerance", "Worst-case stress", "Buy (rating)", "Function"],
+    view.table.map(r => [r.designator, r.value_text, r.code, r.tolerance_text, r.stress_text,
+      { text: r.rating_text + (r.meets ? "" : "  — NOT MET"), className: r.meets ? "" : "fail" }, r.function]));
+  const cautions = $("cautions");
+  cautions.textContent = "";
+  for (const c of report.cautions) { const li = document.createElement("li"); li.textContent = c; cautions.appendChild(li); }
+  const notes = $("notes");
+  notes.textContent = "";
+  for (const n of report.notes) { const li = document.createElement("li"); li.textContent = n; notes.appendChild(li); }
+  const d = current;
+  $("print-header").innerHTML = "";
+  const h = document.createElement("h1"); h.textContent = view.name;
+  const p = document.createElement("p");
+  p.textContent = `Printed ${new Date().toISOString().slice(0, 10)} · supplies ${d.supplies.collector_supply_v} V / ${d.supplies.bias_supply_v} V ±${d.supplies.tolerance} · ${d.conditions.t_min_c}…${d.conditions.t_max_c} °C · resistors ±${d.conditions.resistor_tolerance}, capacitors ±${d.conditions.capacitor_tolerance} · toggle rate ${d.requirements.toggle_rate_hz} Hz · transistor ${typeof d.transistor === "string" ? d.transistor : d.transistor.label}`;
+  $("print-header").append(h, p);
+}
+
+// ---- keeping work ----
+function download(name, type, text) {
+  const url = URL.createObjectURL(new Blob([text], { type }));
+  const a = document.createElement("a");
+  a.href = url;
+  a.download = name;
+  document.body.appendChild(a);
+  a.click();
+  a.remove();
+  setTimeout(() => URL.revokeObjectURL(url), 1000);
+}
+
+function fileName(extension) {
+  return ((current && current.name) || "design").replace(/[^\w.-]+/g, "-").toLowerCase() + extension;
+}
+
+async function openFile(file) {
+  const text = await file.text();
+  const result = await call("check_design_file", text);
+  if (!result) return;
+  if (result.status !== "ok") {
+    const list = (result.errors || []).map(e => `${e.path}: ${e.message}`).join("; ");
+    banner(`Cannot open ${file.name}: ${list}. The current design is unchanged.`, "error");
+    return;
+  }
+  current = JSON.parse(result.Ok !== undefined ? result.Ok : JSON.stringify(JSON.parse(text)));
+  $("auto-values").checked = current.values == null;
+  showInForm(current);
+  syncValueLock();
+  banner(`Opened ${file.name}.`);
+  await compute();
+}
+
+async function init() {
+  try {
+    await startEngine();
+  } catch (error) {
+    banner("The design engine could not start in this browser: " + error.message, "error");
+    return;
+  }
+  $("version").textContent = engine.version();
+  archetypeList = await call("archetypes");
+  buildForm();
+  let restored = false;
+  try {
+    const saved = localStorage.getItem(STORAGE_KEY);
+    if (saved) { current = JSON.parse(saved); restored = true; }
+  } catch (_) { current = null; }
+  if (!current) current = JSON.parse(engine.demo_design());
+  $("auto-values").checked = current.values == null;
+  showInForm(current);
+  syncValueLock();
+  $("new-demo").addEventListener("click", () => {
+    current = JSON.parse(engine.demo_design());
+    $("auto-values").checked = true;
+    showInForm(current);
+    syncValueLock();
+    compute();
+  });
+  $("open-file").addEventListener("change", (event) => { const f = event.target.files[0]; if (f) openFile(f); event.target.value = ""; });
+  $("save-file").addEventListener("click", () => download(fileName(".json"), "application/json", JSON.stringify(current, null, 2) + "\n"));
+  $("export-csv").addEventListener("click", () => { if (lastView) download(fileName("-parts.csv"), "text/csv", lastView.table_csv); });
+  $("print").addEventListener("click", () => window.print());
+  await compute();
+  if (restored && !document.querySelector(".field.invalid")) banner("Restored your last design from this browser's storage.");
+}
+
+window.flipwright = { compute, call, get current() { return current; } };
+init();
