@@ -296,7 +296,10 @@ function si(value, unit) {
   if (value === 0) return "0 " + unit;
   const magnitude = Math.abs(value);
   const [scale, prefix] = PREFIXES.find(([s]) => magnitude >= s * 0.9995) || PREFIXES[PREFIXES.length - 1];
-  return (value / scale).toPrecision(3).replace(/\.?0+$/, "") + " " + prefix + unit;
+  // Trim trailing zeros of the fraction only ("300" stays, "4.70" becomes "4.7").
+  const digits = (value / scale).toPrecision(3);
+  const trimmed = digits.includes(".") ? digits.replace(/0+$/, "").replace(/\.$/, "") : digits;
+  return trimmed + " " + prefix + unit;
 }
 
 function cell(row, text, className) {

@@ -56,6 +56,8 @@ test("loads offline with no errors and no network, and shows a complete design",
   const margins = await page.$$eval("#margins tbody tr", (rows) => rows.length);
   assert.ok(margins >= 8, `expected the margin table, got ${margins} rows`);
   assert.ok(await page.$("#schematic svg"), "schematic drawn");
+  // Regression: the page's number formatter once turned 300 mV into "3 mV".
+  assert.match(await page.textContent("#margins"), /≥ 300 mV/);
   const parts = await page.textContent("#parts");
   assert.match(parts, /R101/);
   assert.match(parts, /Q101/);
