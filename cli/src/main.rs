@@ -8,7 +8,7 @@ use std::process::ExitCode;
 
 use flipwright::design_file::DesignFile;
 use flipwright::stage::analysis::analyse;
-use flipwright::stage::synthesis::synthesise;
+use flipwright::stage::synthesis::{synthesise, SynthesisError};
 use flipwright::stage::{FieldError, StageDesign};
 use flipwright::table::{component_table, to_csv, to_text};
 
@@ -39,7 +39,8 @@ unit or IEC 60062 code (\"4k7\", \"100 nF\").
 
 EXIT CODES
   0  success (check/design: every margin passes at worst case)
-  1  the analysis ran but some margin fails at worst case
+  1  the analysis ran but some margin fails at worst case, or no design meets
+     the requirements (the message says which and by how much)
   2  bad command line
   3  unreadable or invalid design file (each bad field is listed)
 ";
@@ -169,7 +170,10 @@ fn run(args: &[String]) -> Result<u8, Failure> {
             let text = read(&path)?;
             let mut file = DesignFile::parse(&text).map_err(|e| field_errors(&path, &e))?;
             let input = file.synthesis_input().map_err(|e| field_errors(&path, &e))?;
-            let outcome = synthesise(&input).map_err(|e| input_error(e.to_string()))?;
+            let outcome = synthesise(&input).map_err(|e| match e {
+                SynthesisError::Invalid(errors) => field_errors(&path, &errors),
+                other => Failure { code: EXIT_MARGINS_FAIL, message: format!("cannot meet the requirements: {other}") },
+            })?;
             file.values = Some(outcome.values);
             let out = options.value("out").map(PathBuf::from).unwrap_or_else(|| path.with_extension("designed.json"));
             write(&out, &file.to_json())?;

@@ -205,7 +205,18 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
             "hFE: the slower end".to_string(),
         ],
         limiting: vec!["C1·(R1∥R2) recovery and the trigger network's 5·Rt·Ct".to_string()],
-        advice: if rate_pass { String::new() } else { advice(MarginKind::ToggleRate, &[], design) },
+        advice: if rate_pass {
+            String::new()
+        } else {
+            format!(
+                "estimated maximum {:.4e} Hz at the slow corner against {:.4e} Hz required ({} Hz × margin {}); {}",
+                worst_max_toggle_rate_hz,
+                required_rate,
+                input.requirements.toggle_rate_hz,
+                input.requirements.toggle_rate_margin,
+                advice(MarginKind::ToggleRate, &[], design)
+            )
+        },
     });
     if let Some(min_amplitude) = switching.min_trigger_amplitude_v {
         let worst_min = slow_estimates
