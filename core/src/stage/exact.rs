@@ -158,7 +158,8 @@ fn middle_point_guess(network: &StageNetwork, models: &[EbersMoll; 2]) -> Vec<f6
             // (VCC − VC)/RC = β·((VC − VB)/R1 − I_R2) + (VC − VB)/R1 + load(VC)
             let numerator = corner.collector_supply_v / rc + beta * i_r2 + (beta + 1.0) * vb / r1 - i_load - sink;
             let denominator = 1.0 / rc + (beta + 1.0) / r1 + g_load;
-            let vc = (numerator / denominator).clamp(vb, corner.collector_supply_v);
+            // Not `clamp`: with a high emitter level VB can exceed the supply, and clamp panics then.
+            let vc = (numerator / denominator).min(corner.collector_supply_v).max(vb);
             let ib = ((vc - vb) / r1 - i_r2).max(0.0);
             let ic = beta * ib;
             collector_v[side] = vc;

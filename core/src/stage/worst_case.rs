@@ -95,7 +95,7 @@ pub fn parameters(design: &StageDesign) -> Vec<Parameter> {
 /// Nominal temperature: 25 °C, or the nearest end of the range when 25 °C is outside it.
 pub fn nominal_temperature_c(design: &StageDesign) -> f64 {
     let conditions = &design.input().conditions;
-    25.0f64.clamp(conditions.t_min_c, conditions.t_max_c)
+    25.0f64.min(conditions.t_max_c).max(conditions.t_min_c)
 }
 
 /// Applies one parameter setting to a corner (which starts at nominal).
@@ -221,18 +221,22 @@ fn search(
     // Values at the opposite end of each parameter, from the last pass: when a pass changes
     // nothing, they say how much each parameter limits the margin.
     let mut limiting: Vec<(Parameter, f64)> = Vec::new();
-    for _pass in 0..4 {
+    for pass in 0..5 {
         let mut changed = false;
+        // The first pass skips parameters that did nothing on their own at nominal; later
+        // passes try every one, because a parameter can matter only once others have moved
+        // (for example a transistor's VBE(sat) when the other state becomes the limiting one).
+        let skip_inert = pass == 0;
         limiting.clear();
         for index in 0..assignment.len() {
             let Some(&(parameter, current)) = assignment.get(index) else { continue };
-            // A parameter that moved the margin not at all on its own is skipped; temperature
-            // is always tried, since its effects can cancel at the ends and show in between.
+            // Temperature is always tried, since its effects can cancel at the ends and show
+            // in between.
             let inert = sensitivities.get(index).is_some_and(|&(low, high)| match (low, high) {
                 (Some(l), Some(h)) => (l - nominal).abs() <= 1e-12 * nominal.abs().max(1e-30) && (h - nominal).abs() <= 1e-12 * nominal.abs().max(1e-30),
                 _ => false,
             });
-            if inert && parameter != Parameter::Temperature {
+            if skip_inert && inert && parameter != Parameter::Temperature {
                 continue;
             }
             let candidates: &[Setting] = match parameter {
@@ -265,7 +269,7 @@ fn search(
                 }
             }
         }
-        if !changed {
+        if !changed && !skip_inert {
             break;
         }
     }
