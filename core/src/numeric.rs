@@ -70,15 +70,18 @@ impl DenseMatrix {
                 b.swap(pivot_row, column);
             }
             let pivot = a[column * n + column];
-            for row in (column + 1)..n {
-                let factor = a[row * n + column] / pivot;
+            let (done, rest) = a.split_at_mut((column + 1) * n);
+            let pivot_tail = &done[column * n + column..(column + 1) * n];
+            let b_pivot = b[column];
+            for (offset, target) in rest.chunks_exact_mut(n).enumerate() {
+                let factor = target[column] / pivot;
                 if factor == 0.0 {
                     continue;
                 }
-                for k in column..n {
-                    a[row * n + k] -= factor * a[column * n + k];
+                for (t, p) in target[column..].iter_mut().zip(pivot_tail) {
+                    *t -= factor * p;
                 }
-                b[row] -= factor * b[column];
+                b[column + 1 + offset] -= factor * b_pivot;
             }
         }
         let mut x = vec![0.0; n];

@@ -263,11 +263,15 @@ impl StageNetwork {
             / resistor.resistance_ohm
     }
 
-    fn stamp_linear(&self, matrix: &mut DenseMatrix, rhs: &mut [f64]) {
+    /// Stamps resistors and current sinks; `skipped` nodes get a unit diagonal only (their
+    /// value is filled in afterwards), so they cost nothing in the elimination.
+    fn stamp_linear_except(&self, matrix: &mut DenseMatrix, rhs: &mut [f64], skipped: &[(usize, Terminal)]) {
         for index in 0..self.node_count() {
-            matrix.add(index, index, GMIN_S);
+            let is_skipped = skipped.iter().any(|(i, _)| *i == index);
+            matrix.add(index, index, if is_skipped { 1.0 } else { GMIN_S });
         }
-        for resistor in &self.resistors {
+        let touches_skipped = |t: Terminal| matches!(t, Terminal::Node(i) if skipped.iter().any(|(s, _)| *s == i));
+        for resistor in self.resistors.iter().filter(|r| !touches_skipped(r.from) && !touches_skipped(r.to)) {
             let g = 1.0 / resistor.resistance_ohm;
             stamp_conductance(matrix, rhs, resistor.from, resistor.to, g);
         }
@@ -287,11 +291,31 @@ impl StageNetwork {
         on_side: usize,
         devices: [PiecewiseTransistor; 2],
     ) -> Result<PiecewiseSolution, SolveError> {
+        // With the diodes open, a steering node hangs on its one bias resistor and carries no
+        // current: it takes that resistor's other end's voltage and stays out of the matrix.
+        let dangling: Vec<(usize, Terminal)> = self
+            .diodes
+            .iter()
+            .flat_map(|d| [d.anode, d.cathode])
+            .filter_map(|t| match t {
+                Terminal::Node(i) => Some(i),
+                Terminal::Fixed(_) => None,
+            })
+            .filter(|&i| self.transistors.iter().all(|p| ![p.collector, p.base, p.emitter].contains(&Terminal::Node(i))))
+            .filter_map(|i| {
+                let mut touching = self.resistors.iter().filter(|r| r.from == Terminal::Node(i) || r.to == Terminal::Node(i));
+                let only = touching.next()?;
+                if touching.next().is_some() || self.current_sinks.iter().any(|(_, t, _)| *t == Terminal::Node(i)) {
+                    return None;
+                }
+                Some((i, if only.from == Terminal::Node(i) { only.to } else { only.from }))
+            })
+            .collect();
         let n = self.node_count();
         let size = n + 2;
         let mut matrix = DenseMatrix::zeros(size);
         let mut rhs = vec![0.0; size];
-        self.stamp_linear(&mut matrix, &mut rhs);
+        self.stamp_linear_except(&mut matrix, &mut rhs, &dangling);
         let off_side = 1 - on_side.min(1);
         let on = self.transistors[on_side.min(1)];
         let off = self.transistors[off_side];
@@ -305,8 +329,15 @@ impl StageNetwork {
         stamp_voltage_source(&mut matrix, &mut rhs, base_row, on.base, on.emitter, on_device.vbe_sat_v);
         stamp_voltage_source(&mut matrix, &mut rhs, collector_row, on.collector, on.emitter, on_device.vce_sat_v);
         let solution = matrix.solve(&rhs).map_err(|e| SolveError::Singular { node: self.node_name(e.column) })?;
+        let mut node_voltages = solution.get(..n).map(|s| s.to_vec()).unwrap_or_default();
+        for &(node, other_end) in &dangling {
+            let v = Self::voltage(other_end, &node_voltages);
+            if let Some(slot) = node_voltages.get_mut(node) {
+                *slot = v;
+            }
+        }
         Ok(PiecewiseSolution {
-            node_voltages: solution.get(..n).map(|s| s.to_vec()).unwrap_or_default(),
+            node_voltages,
             on_side: on_side.min(1),
             on_base_current_a: solution.get(base_row).copied().unwrap_or(0.0),
             on_collector_current_a: solution.get(collector_row).copied().unwrap_or(0.0),

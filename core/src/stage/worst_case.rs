@@ -51,7 +51,7 @@ impl Parameter {
 }
 
 /// Where a parameter sits: low end, nominal, high end.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Setting {
     Low,
@@ -187,11 +187,10 @@ type SearchResult = (f64, Vec<(Parameter, Setting)>, Vec<(Parameter, f64)>, usiz
 /// Generic search: `evaluate` gives the margin (larger is better) at a corner, or `None`
 /// when it cannot be evaluated there (treated as no information).
 fn search(
-    design: &StageDesign,
     params: &[Parameter],
     sensitivities: &[(Option<f64>, Option<f64>)],
     nominal: f64,
-    mut evaluate: impl FnMut(&Corner) -> Option<f64>,
+    mut evaluate: impl FnMut(&[(Parameter, Setting)]) -> Option<f64>,
 ) -> SearchResult {
     let mut evaluations = 0;
     let mut assignment: Vec<(Parameter, Setting)> = params
@@ -209,7 +208,7 @@ fn search(
         })
         .collect();
     evaluations += 1;
-    let mut worst = match evaluate(&corner_for(design, &assignment)) {
+    let mut worst = match evaluate(&assignment) {
         Some(value) if value <= nominal => value,
         // The combined corner was no worse than nominal (or could not be solved): start the
         // coordinate search from nominal instead.
@@ -252,7 +251,7 @@ fn search(
                     slot.1 = candidate;
                 }
                 evaluations += 1;
-                if let Some(value) = evaluate(&corner_for(design, &trial)) {
+                if let Some(value) = evaluate(&trial) {
                     if value < worst - 1e-12 * worst.abs().max(1e-30) {
                         worst = value;
                         assignment = trial;
@@ -341,6 +340,17 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
         }
         one_at_a_time.push(pair);
     }
+    // Margins share corners (and later passes revisit them): evaluate each corner once.
+    let mut cache: std::collections::HashMap<Vec<Setting>, Option<CornerMetrics>> = std::collections::HashMap::new();
+    let cached_metrics = |cache: &mut std::collections::HashMap<Vec<Setting>, Option<CornerMetrics>>,
+                              assignment: &[(Parameter, Setting)]|
+     -> Option<CornerMetrics> {
+        let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
+        cache
+            .entry(key)
+            .or_insert_with(|| evaluate_corner(design, &corner_for(design, assignment)).ok().map(|(m, _)| m))
+            .clone()
+    };
     let mut margins = Vec::new();
     for kind in DC_MARGINS {
         let nominal = margin_value(kind, &nominal_metrics, design).unwrap_or(f64::NAN);
@@ -354,8 +364,8 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
             })
             .collect();
         let mut temperature_c = nominal_corner.temperature_c;
-        let (worst, corner, limiting, evaluations) = search(design, &params, &sensitivities, nominal, |c| {
-            let metrics = evaluate_corner(design, c).ok().map(|(m, _)| m)?;
+        let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
+            let metrics = cached_metrics(&mut cache, assignment)?;
             margin_value(kind, &metrics, design)
         });
         if let Some(&(_, setting)) = corner.iter().find(|(p, _)| *p == Parameter::Temperature) {
@@ -410,8 +420,12 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
             })
             .collect();
         total_evaluations += 2 * params.len();
-        let (worst, corner, limiting, evaluations) = search(design, &params, &sensitivities, nominal, |c| {
-            loop_gain_at(design, base_model, c).map(|g| g.loop_gain)
+        let mut gain_cache: std::collections::HashMap<Vec<Setting>, Option<f64>> = std::collections::HashMap::new();
+        let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
+            let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
+            *gain_cache
+                .entry(key)
+                .or_insert_with(|| loop_gain_at(design, base_model, &corner_for(design, assignment)).map(|g| g.loop_gain))
         });
         let temperature_c = corner_for(design, &corner).temperature_c;
         total_evaluations += evaluations;
