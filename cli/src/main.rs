@@ -122,7 +122,9 @@ fn load_design(path: &Path) -> Result<(DesignFile, StageDesign), Failure> {
     DesignFile::load(&text).map_err(|errors| {
         let mut failure = field_errors(path, &errors);
         if errors.iter().any(|e| e.path == "values") {
-            failure.message.push_str(&format!("\nTo choose the values: flipwright design {}", path.display()));
+            failure
+                .message
+                .push_str(&format!("\nTo choose the values: flipwright design {}", path.display()));
         }
         failure
     })
@@ -140,7 +142,11 @@ fn run(args: &[String]) -> Result<u8, Failure> {
         }
         "demo" => {
             let options = parse_options(rest, &[], &[])?;
-            let path = options.positional.first().map(PathBuf::from).unwrap_or_else(|| PathBuf::from("demo-design.json"));
+            let path = options
+                .positional
+                .first()
+                .map(PathBuf::from)
+                .unwrap_or_else(|| PathBuf::from("demo-design.json"));
             // Write the demo with its values chosen, so `check` works on it straight away.
             let mut file = DesignFile::demo();
             let input = file.synthesis_input().map_err(|e| field_errors(&path, &e))?;
@@ -148,7 +154,10 @@ fn run(args: &[String]) -> Result<u8, Failure> {
             file.values = Some(outcome.values);
             write(&path, &file.to_json())?;
             println!("wrote {}", path.display());
-            println!("next: flipwright check {}   (or edit it; delete \"values\" to let `design` choose them)", path.display());
+            println!(
+                "next: flipwright check {}   (or edit it; delete \"values\" to let `design` choose them)",
+                path.display()
+            );
             Ok(0)
         }
         "check" => {
@@ -172,10 +181,16 @@ fn run(args: &[String]) -> Result<u8, Failure> {
             let input = file.synthesis_input().map_err(|e| field_errors(&path, &e))?;
             let outcome = synthesise(&input).map_err(|e| match e {
                 SynthesisError::Invalid(errors) => field_errors(&path, &errors),
-                other => Failure { code: EXIT_MARGINS_FAIL, message: format!("cannot meet the requirements: {other}") },
+                other => Failure {
+                    code: EXIT_MARGINS_FAIL,
+                    message: format!("cannot meet the requirements: {other}"),
+                },
             })?;
             file.values = Some(outcome.values);
-            let out = options.value("out").map(PathBuf::from).unwrap_or_else(|| path.with_extension("designed.json"));
+            let out = options
+                .value("out")
+                .map(PathBuf::from)
+                .unwrap_or_else(|| path.with_extension("designed.json"));
             write(&out, &file.to_json())?;
             if options.has("json") {
                 let json = serde_json::json!({ "design": file, "synthesis": outcome });
@@ -206,11 +221,9 @@ fn run(args: &[String]) -> Result<u8, Failure> {
             let path = options.one_file("parts")?;
             let stage_number = match options.value("stage") {
                 None => 1,
-                Some(text) => text
-                    .parse::<u32>()
-                    .ok()
-                    .filter(|n| (1..=99).contains(n))
-                    .ok_or_else(|| usage(format!("--stage wants a stage number from 1 to 99, got \"{text}\"")))?,
+                Some(text) => text.parse::<u32>().ok().filter(|n| (1..=99).contains(n)).ok_or_else(|| {
+                    usage(format!("--stage wants a stage number from 1 to 99, got \"{text}\""))
+                })?,
             };
             let (_, design) = load_design(&path)?;
             let report = analyse(&design).map_err(|e| input_error(e.to_string()))?;

@@ -40,7 +40,12 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
     let sign = report.polarity_sign;
     let _ = writeln!(out, "{}", file.name);
     let _ = writeln!(out, "{}", "=".repeat(file.name.chars().count()));
-    let _ = writeln!(out, "Transistor: {}{}", sheet.label, if sheet.approximate { " (generic archetype, approximate values)" } else { "" });
+    let _ = writeln!(
+        out,
+        "Transistor: {}{}",
+        sheet.label,
+        if sheet.approximate { " (generic archetype, approximate values)" } else { "" }
+    );
     let _ = writeln!(out, "Diode:      {}", design.diode().label);
     let _ = writeln!(
         out,
@@ -62,9 +67,20 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
         100.0 * input.conditions.capacitor_tolerance
     );
     let _ = writeln!(out, "\nValues (each half):");
-    let _ = writeln!(out, "  RC {}   R1 {}   R2 {}", q(values.collector_resistor_ohm, Unit::Ohm), q(values.cross_resistor_ohm, Unit::Ohm), q(values.base_resistor_ohm, Unit::Ohm));
+    let _ = writeln!(
+        out,
+        "  RC {}   R1 {}   R2 {}",
+        q(values.collector_resistor_ohm, Unit::Ohm),
+        q(values.cross_resistor_ohm, Unit::Ohm),
+        q(values.base_resistor_ohm, Unit::Ohm)
+    );
     if values.bias == BiasScheme::SelfBias {
-        let _ = writeln!(out, "  RE {} (common) bypassed by {}", q(values.emitter_resistor_ohm, Unit::Ohm), q(values.emitter_bypass_capacitor_f, Unit::Farad));
+        let _ = writeln!(
+            out,
+            "  RE {} (common) bypassed by {}",
+            q(values.emitter_resistor_ohm, Unit::Ohm),
+            q(values.emitter_bypass_capacitor_f, Unit::Farad)
+        );
     }
     let _ = writeln!(out, "  C1 {} across each R1", q(values.commutating_capacitor_f, Unit::Farad));
     if let Some(t) = values.trigger {
@@ -79,7 +95,11 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
             q(t.trigger_resistor_ohm, Unit::Ohm)
         );
     }
-    let _ = writeln!(out, "\nStable states at {} °C (handbook model | exact Ebers–Moll model):", report.nominal_temperature_c);
+    let _ = writeln!(
+        out,
+        "\nStable states at {} °C (handbook model | exact Ebers–Moll model):",
+        report.nominal_temperature_c
+    );
     for (index, state) in report.handbook_states.iter().enumerate() {
         let _ = writeln!(out, "  Q{} ON, Q{} OFF", state.on_side + 1, 2 - state.on_side);
         let exact = report.exact_states.get(index).and_then(|r| r.as_ref().ok());
@@ -100,7 +120,8 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
             q(state.off_base_emitter_v, Unit::Volt),
             q(state.cutoff_margin_v, Unit::Volt)
         );
-        let currents: Vec<String> = state.branch_currents.iter().map(|(n, i)| format!("{n} {}", q(*i, Unit::Ampere))).collect();
+        let currents: Vec<String> =
+            state.branch_currents.iter().map(|(n, i)| format!("{n} {}", q(*i, Unit::Ampere))).collect();
         let _ = writeln!(out, "    branch currents: {}", currents.join(", "));
         match report.exact_states.get(index) {
             Some(Ok(x)) => {
@@ -159,7 +180,8 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
             let _ = writeln!(out, "      what to change: {}", m.advice);
         }
     }
-    let _ = writeln!(out, "  => {}", if report.all_pass { "every margin passes" } else { "SOME MARGIN FAILS" });
+    let _ =
+        writeln!(out, "  => {}", if report.all_pass { "every margin passes" } else { "SOME MARGIN FAILS" });
     let s = &report.switching;
     let _ = writeln!(out, "\nSwitching estimates (charge control; estimates, not measurements):");
     let _ = writeln!(
@@ -199,7 +221,12 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
         input.requirements.toggle_rate_margin
     );
     if let Some(a) = s.min_trigger_amplitude_v {
-        let _ = writeln!(out, "  trigger: estimated minimum amplitude {}, available {}", q(a, Unit::Volt), q(s.available_trigger_amplitude_v, Unit::Volt));
+        let _ = writeln!(
+            out,
+            "  trigger: estimated minimum amplitude {}, available {}",
+            q(a, Unit::Volt),
+            q(s.available_trigger_amplitude_v, Unit::Volt)
+        );
     }
     let _ = writeln!(out, "\nDissipation (worst case):");
     let parts: Vec<String> = report

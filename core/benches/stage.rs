@@ -14,7 +14,8 @@ use flipwright::stage::StageDesign;
 
 fn median_and_quartiles(mut samples: Vec<f64>) -> (f64, f64, f64) {
     samples.sort_by(f64::total_cmp);
-    let at = |q: f64| samples.get(((samples.len() - 1) as f64 * q).round() as usize).copied().unwrap_or(f64::NAN);
+    let at =
+        |q: f64| samples.get(((samples.len() - 1) as f64 * q).round() as usize).copied().unwrap_or(f64::NAN);
     (at(0.5), at(0.25), at(0.75))
 }
 
@@ -57,12 +58,15 @@ fn main() {
         eprintln!("demo values do not validate");
         std::process::exit(1);
     };
-    let Some(derivation) = flipwright::device::ebers_moll::EbersMoll::from_datasheet(design.transistor()) else {
+    let Some(derivation) = flipwright::device::ebers_moll::EbersMoll::from_datasheet(design.transistor())
+    else {
         eprintln!("no model");
         std::process::exit(1);
     };
     println!("flipwright-core benchmarks (demo stage)");
-    time("worst case of every margin (DC + loop gain)", 400, || worst_case::analyse(&design, &derivation.model));
+    time("worst case of every margin (DC + loop gain)", 400, || {
+        worst_case::analyse(&design, &derivation.model)
+    });
     time("full analysis (states, exact, worst case)", 400, || analyse(&design));
     time("synthesis from requirements", 10, || synthesise(&input));
 }

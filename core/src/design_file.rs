@@ -12,8 +12,8 @@ use serde_json::{Map, Value};
 use crate::device::archetypes;
 use crate::device::{DiodeDatasheet, Material, Polarity, StorageTimeTest, TransistorDatasheet};
 use crate::stage::{
-    BiasScheme, Conditions, FieldError, Load, Requirements, StageDesign, StageInput, StageValues, Steering, Supplies,
-    TriggerNetwork,
+    BiasScheme, Conditions, FieldError, Load, Requirements, StageDesign, StageInput, StageValues, Steering,
+    Supplies, TriggerNetwork,
 };
 use crate::units::{parse_quantity, ESeries, Unit};
 
@@ -118,7 +118,9 @@ impl Reader {
                 },
             },
             _ => {
-                let unit = unit_for(key).map(|u| format!(" (in {}, or a string such as \"4.7k\")", u.symbol())).unwrap_or_default();
+                let unit = unit_for(key)
+                    .map(|u| format!(" (in {}, or a string such as \"4.7k\")", u.symbol()))
+                    .unwrap_or_default();
                 self.error(path.to_string(), format!("must be a number{unit}"));
                 None
             }
@@ -155,7 +157,12 @@ impl Reader {
         }
     }
 
-    fn text(&mut self, object: &mut ObjectReader<'_>, key: &'static str, default: Option<&str>) -> Option<String> {
+    fn text(
+        &mut self,
+        object: &mut ObjectReader<'_>,
+        key: &'static str,
+        default: Option<&str>,
+    ) -> Option<String> {
         object.used.push(key);
         let path = join(&object.path, key);
         match object.map.get(key) {
@@ -172,7 +179,13 @@ impl Reader {
         }
     }
 
-    fn choice<T: Copy>(&mut self, object: &mut ObjectReader<'_>, key: &'static str, options: &[(&str, T)], default: Option<T>) -> Option<T> {
+    fn choice<T: Copy>(
+        &mut self,
+        object: &mut ObjectReader<'_>,
+        key: &'static str,
+        options: &[(&str, T)],
+        default: Option<T>,
+    ) -> Option<T> {
         object.used.push(key);
         let path = join(&object.path, key);
         let names: Vec<String> = options.iter().map(|(n, _)| format!("\"{n}\"")).collect();
@@ -225,7 +238,10 @@ fn read_transistor(reader: &mut Reader, value: Option<&Value>) -> Option<DeviceC
         }
         reader.error(
             "transistor".to_string(),
-            format!("\"{id}\" is not a known archetype (known: {}); or give the datasheet as an object", archetypes::TRANSISTOR_ARCHETYPE_IDS.join(", ")),
+            format!(
+                "\"{id}\" is not a known archetype (known: {}); or give the datasheet as an object",
+                archetypes::TRANSISTOR_ARCHETYPE_IDS.join(", ")
+            ),
         );
         return None;
     }
@@ -321,7 +337,10 @@ fn read_diode(reader: &mut Reader, value: Option<&Value>) -> Option<DeviceChoice
         }
         reader.error(
             "diode".to_string(),
-            format!("\"{id}\" is not a known archetype (known: {}); or give the datasheet as an object", archetypes::DIODE_ARCHETYPE_IDS.join(", ")),
+            format!(
+                "\"{id}\" is not a known archetype (known: {}); or give the datasheet as an object",
+                archetypes::DIODE_ARCHETYPE_IDS.join(", ")
+            ),
         );
         return None;
     }
@@ -396,7 +415,11 @@ fn read_values(reader: &mut Reader, value: &Value) -> Option<StageValues> {
             let ct = reader.number(&mut t, "trigger_capacitor_f");
             let rt = reader.number(&mut t, "trigger_resistor_ohm");
             reader.finish(t);
-            Some(Some(TriggerNetwork { steering: steering?, trigger_capacitor_f: ct?, trigger_resistor_ohm: rt? }))
+            Some(Some(TriggerNetwork {
+                steering: steering?,
+                trigger_capacitor_f: ct?,
+                trigger_resistor_ohm: rt?,
+            }))
         }
     };
     reader.finish(o);
@@ -431,7 +454,9 @@ impl DesignFile {
             if f != FORMAT_NAME {
                 return Err(vec![FieldError {
                     path: "format".to_string(),
-                    message: format!("\"{f}\" is not a design file of this tool (expected \"{FORMAT_NAME}\")"),
+                    message: format!(
+                        "\"{f}\" is not a design file of this tool (expected \"{FORMAT_NAME}\")"
+                    ),
                 }]);
             }
         }
@@ -439,7 +464,10 @@ impl DesignFile {
         let version = match o.map.get("version") {
             Some(Value::Number(n)) if n.as_u64().is_some() => n.as_u64(),
             _ => {
-                reader.error("version".to_string(), format!("must be a whole number (this build reads version {FORMAT_VERSION})"));
+                reader.error(
+                    "version".to_string(),
+                    format!("must be a whole number (this build reads version {FORMAT_VERSION})"),
+                );
                 None
             }
         };
@@ -475,7 +503,12 @@ impl DesignFile {
             let rt = reader.number(&mut c, "resistor_tolerance");
             let ct = reader.number(&mut c, "capacitor_tolerance");
             reader.finish(c);
-            Some(Conditions { t_min_c: t_min?, t_max_c: t_max?, resistor_tolerance: rt?, capacitor_tolerance: ct? })
+            Some(Conditions {
+                t_min_c: t_min?,
+                t_max_c: t_max?,
+                resistor_tolerance: rt?,
+                capacitor_tolerance: ct?,
+            })
         });
         o.used.push("requirements");
         let requirements = reader.object(o.map.get("requirements"), "requirements").and_then(|mut r| {
@@ -523,7 +556,8 @@ impl DesignFile {
                 a.zip(b).map(|(a, b)| [a, b])
             }
             Some(_) => {
-                reader.error("loads".to_string(), "must be a list of two loads, for the outputs of Q1 and Q2");
+                reader
+                    .error("loads".to_string(), "must be a list of two loads, for the outputs of Q1 and Q2");
                 None
             }
         };
@@ -536,7 +570,8 @@ impl DesignFile {
         if !reader.errors.is_empty() {
             return Err(reader.errors);
         }
-        let missing = || vec![FieldError { path: "(document)".to_string(), message: "incomplete".to_string() }];
+        let missing =
+            || vec![FieldError { path: "(document)".to_string(), message: "incomplete".to_string() }];
         Ok(DesignFile {
             format: format.ok_or_else(missing)?,
             version: version.ok_or_else(missing)?,
@@ -576,10 +611,12 @@ impl DesignFile {
         let values = values.or(self.values).ok_or_else(|| {
             vec![FieldError {
                 path: "values".to_string(),
-                message: "no component values: run the synthesis to choose them, or add a \"values\" object".to_string(),
+                message: "no component values: run the synthesis to choose them, or add a \"values\" object"
+                    .to_string(),
             }]
         })?;
-        let missing_device = |path: &str| FieldError { path: path.to_string(), message: "unknown archetype".to_string() };
+        let missing_device =
+            |path: &str| FieldError { path: path.to_string(), message: "unknown archetype".to_string() };
         Ok(StageInput {
             transistor: self.transistor_sheet().ok_or_else(|| vec![missing_device("transistor")])?,
             diode: self.diode_sheet().ok_or_else(|| vec![missing_device("diode")])?,
@@ -625,7 +662,12 @@ impl DesignFile {
             transistor: DeviceChoice::Archetype("si-npn-switch-40v".to_string()),
             diode: DeviceChoice::Archetype("si-signal-diode".to_string()),
             supplies: Supplies { collector_supply_v: 9.0, bias_supply_v: 4.5, tolerance: 0.05 },
-            conditions: Conditions { t_min_c: 0.0, t_max_c: 60.0, resistor_tolerance: 0.05, capacitor_tolerance: 0.1 },
+            conditions: Conditions {
+                t_min_c: 0.0,
+                t_max_c: 60.0,
+                resistor_tolerance: 0.05,
+                capacitor_tolerance: 0.1,
+            },
             requirements: Requirements {
                 collector_current_a: Some(4e-3),
                 power_budget_w: None,

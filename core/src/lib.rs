@@ -4,10 +4,10 @@
 //! clock. Quantities are `f64` in SI base units (volts, amperes, ohms, farads, seconds);
 //! temperatures are degrees Celsius in fields named `*_c`.
 
-pub mod units;
+pub mod design_file;
 pub mod device;
 pub mod numeric;
 pub mod physics;
 pub mod stage;
 pub mod table;
-pub mod design_file;
+pub mod units;

@@ -68,7 +68,8 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
     let sheet = design.transistor();
     let r_tol = input.conditions.resistor_tolerance;
     let c_tol = input.conditions.capacitor_tolerance;
-    let supply_high = (input.supplies.collector_supply_v + input.supplies.bias_supply_v) * (1.0 + input.supplies.tolerance);
+    let supply_high =
+        (input.supplies.collector_supply_v + input.supplies.bias_supply_v) * (1.0 + input.supplies.tolerance);
     let amplitude = report.switching.available_trigger_amplitude_v;
     let dissipation = |name: &str| -> f64 {
         let piecewise = report
@@ -96,22 +97,25 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
     };
     let n = stage_number;
     let mut rows = Vec::new();
-    let resistor = |index: u32, function: &str, ohms: f64, network_name: &str, rows: &mut Vec<ComponentRow>| {
-        let watts = dissipation(network_name);
-        let rating = power_rating_w(watts);
-        rows.push(ComponentRow {
-            designator: format!("R{n}{index:02}"),
-            part: "resistor".to_string(),
-            function: function.to_string(),
-            value: Some(ohms),
-            value_text: format_quantity(ohms, Unit::Ohm),
-            code: format_code(ohms, Unit::Ohm, 3).unwrap_or_default(),
-            tolerance_text: tolerance_text(r_tol),
-            stress_text: format_quantity(watts, Unit::Watt),
-            rating_text: rating.map(|r| format_quantity(r, Unit::Watt)).unwrap_or_else(|| "above 10 W: redesign".to_string()),
-            meets: rating.is_some(),
-        });
-    };
+    let resistor =
+        |index: u32, function: &str, ohms: f64, network_name: &str, rows: &mut Vec<ComponentRow>| {
+            let watts = dissipation(network_name);
+            let rating = power_rating_w(watts);
+            rows.push(ComponentRow {
+                designator: format!("R{n}{index:02}"),
+                part: "resistor".to_string(),
+                function: function.to_string(),
+                value: Some(ohms),
+                value_text: format_quantity(ohms, Unit::Ohm),
+                code: format_code(ohms, Unit::Ohm, 3).unwrap_or_default(),
+                tolerance_text: tolerance_text(r_tol),
+                stress_text: format_quantity(watts, Unit::Watt),
+                rating_text: rating
+                    .map(|r| format_quantity(r, Unit::Watt))
+                    .unwrap_or_else(|| "above 10 W: redesign".to_string()),
+                meets: rating.is_some(),
+            });
+        };
     resistor(1, "collector resistor RC of Q1", values.collector_resistor_ohm, "RC1", &mut rows);
     resistor(2, "collector resistor RC of Q2", values.collector_resistor_ohm, "RC2", &mut rows);
     resistor(3, "cross-coupling R1, Q1 collector to Q2 base", values.cross_resistor_ohm, "R1a", &mut rows);
@@ -127,10 +131,17 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
                 resistor(8, "steering bias Rt, Q1 side", trigger.trigger_resistor_ohm, "Rt1", &mut rows);
                 resistor(9, "steering bias Rt, Q2 side", trigger.trigger_resistor_ohm, "Rt2", &mut rows);
             }
-            Steering::Collector => resistor(8, "steering bias Rt to the supply", trigger.trigger_resistor_ohm, "Rt", &mut rows),
+            Steering::Collector => {
+                resistor(8, "steering bias Rt to the supply", trigger.trigger_resistor_ohm, "Rt", &mut rows)
+            }
         }
     }
-    let capacitor = |index: u32, function: &str, farads: f64, volts: f64, tolerance: f64, rows: &mut Vec<ComponentRow>| {
+    let capacitor = |index: u32,
+                     function: &str,
+                     farads: f64,
+                     volts: f64,
+                     tolerance: f64,
+                     rows: &mut Vec<ComponentRow>| {
         let rating = voltage_rating_v(volts);
         rows.push(ComponentRow {
             designator: format!("C{n}{index:02}"),
@@ -141,22 +152,59 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
             code: format_code(farads, Unit::Farad, 3).unwrap_or_default(),
             tolerance_text: tolerance_text(tolerance),
             stress_text: format!("{} across", format_quantity(volts, Unit::Volt)),
-            rating_text: rating.map(|r| format!("{} V", trim(r))).unwrap_or_else(|| "above 1 kV: special part".to_string()),
+            rating_text: rating
+                .map(|r| format!("{} V", trim(r)))
+                .unwrap_or_else(|| "above 1 kV: special part".to_string()),
             meets: rating.is_some(),
         });
     };
     if values.commutating_capacitor_f > 0.0 {
-        capacitor(1, "commutating capacitor C1 across R103", values.commutating_capacitor_f, supply_high, c_tol, &mut rows);
-        capacitor(2, "commutating capacitor C1 across R104", values.commutating_capacitor_f, supply_high, c_tol, &mut rows);
+        capacitor(
+            1,
+            "commutating capacitor C1 across R103",
+            values.commutating_capacitor_f,
+            supply_high,
+            c_tol,
+            &mut rows,
+        );
+        capacitor(
+            2,
+            "commutating capacitor C1 across R104",
+            values.commutating_capacitor_f,
+            supply_high,
+            c_tol,
+            &mut rows,
+        );
     }
     if let Some(trigger) = values.trigger {
         let across = supply_high + amplitude;
         match trigger.steering {
             Steering::Base => {
-                capacitor(3, "trigger capacitor Ct, Q1 side", trigger.trigger_capacitor_f, across, c_tol, &mut rows);
-                capacitor(4, "trigger capacitor Ct, Q2 side", trigger.trigger_capacitor_f, across, c_tol, &mut rows);
+                capacitor(
+                    3,
+                    "trigger capacitor Ct, Q1 side",
+                    trigger.trigger_capacitor_f,
+                    across,
+                    c_tol,
+                    &mut rows,
+                );
+                capacitor(
+                    4,
+                    "trigger capacitor Ct, Q2 side",
+                    trigger.trigger_capacitor_f,
+                    across,
+                    c_tol,
+                    &mut rows,
+                );
             }
-            Steering::Collector => capacitor(3, "common trigger capacitor Ct", trigger.trigger_capacitor_f, across, c_tol, &mut rows),
+            Steering::Collector => capacitor(
+                3,
+                "common trigger capacitor Ct",
+                trigger.trigger_capacitor_f,
+                across,
+                c_tol,
+                &mut rows,
+            ),
         }
     }
     if values.bias == BiasScheme::SelfBias && values.emitter_bypass_capacitor_f > 0.0 {
@@ -166,7 +214,14 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
             .filter_map(|s| s.node_voltages.iter().find(|(name, _)| *name == "E").map(|(_, v)| v.abs()))
             .fold(0.0, f64::max)
             * (1.0 + input.supplies.tolerance);
-        capacitor(5, "emitter bypass capacitor", values.emitter_bypass_capacitor_f, emitter_v, 0.2, &mut rows);
+        capacitor(
+            5,
+            "emitter bypass capacitor",
+            values.emitter_bypass_capacitor_f,
+            emitter_v,
+            0.2,
+            &mut rows,
+        );
     }
     // Diodes.
     if let Some(trigger) = values.trigger {
@@ -188,10 +243,13 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
                     diode.label
                 ),
                 value: None,
-                value_text: format!("{} diode", match diode.material {
-                    crate::device::Material::Silicon => "Si",
-                    crate::device::Material::Germanium => "Ge",
-                }),
+                value_text: format!(
+                    "{} diode",
+                    match diode.material {
+                        crate::device::Material::Silicon => "Si",
+                        crate::device::Material::Germanium => "Ge",
+                    }
+                ),
                 code: String::new(),
                 tolerance_text: String::new(),
                 stress_text: format!("{} reverse", format_quantity(reverse_v, Unit::Volt)),
@@ -216,9 +274,15 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
         .filter(|m| m.worst > 0.0 && m.worst.is_finite())
         .map(|m| sheet.hfe_min * input.requirements.min_overdrive / m.worst)
         .unwrap_or(sheet.hfe_min);
-    let transistor_ok = [K::Overdrive, K::CollectorEmitterVoltage, K::ReverseBaseEmitter, K::CollectorCurrent, K::TransistorDissipation]
-        .iter()
-        .all(|k| worst(*k).is_none_or(|m| m.pass));
+    let transistor_ok = [
+        K::Overdrive,
+        K::CollectorEmitterVoltage,
+        K::ReverseBaseEmitter,
+        K::CollectorCurrent,
+        K::TransistorDissipation,
+    ]
+    .iter()
+    .all(|k| worst(*k).is_none_or(|m| m.pass));
     let material = match sheet.material {
         crate::device::Material::Silicon => "Si",
         crate::device::Material::Germanium => "Ge",
@@ -304,7 +368,9 @@ pub fn to_csv(rows: &[ComponentRow]) -> String {
             field.to_string()
         }
     };
-    let mut out = String::from("designator,part,value_si,value,code,tolerance,worst_case_stress,rating,meets,function\n");
+    let mut out = String::from(
+        "designator,part,value_si,value,code,tolerance,worst_case_stress,rating,meets,function\n",
+    );
     for r in rows {
         let fields = [
             r.designator.clone(),

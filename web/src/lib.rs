@@ -50,7 +50,9 @@ pub struct SynthesisView {
 
 fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsError> {
     let serializer = serde_wasm_bindgen::Serializer::json_compatible();
-    value.serialize(&serializer).map_err(|e| JsError::new(&format!("cannot pass the result to the page: {e}")))
+    value
+        .serialize(&serializer)
+        .map_err(|e| JsError::new(&format!("cannot pass the result to the page: {e}")))
 }
 
 fn view(file: &DesignFile, design: &StageDesign, report: StageReport) -> AnalysisView {
@@ -87,7 +89,9 @@ fn synthesise_text(text: &str) -> Outcome<SynthesisView> {
     };
     let outcome: SynthesisOutcome = match synthesise(&input) {
         Ok(outcome) => outcome,
-        Err(flipwright::stage::synthesis::SynthesisError::Invalid(errors)) => return Outcome::Invalid { errors },
+        Err(flipwright::stage::synthesis::SynthesisError::Invalid(errors)) => {
+            return Outcome::Invalid { errors }
+        }
         Err(e) => return Outcome::Failed { message: e.to_string() },
     };
     file.values = Some(outcome.values);
@@ -140,8 +144,10 @@ pub fn archetypes() -> Result<JsValue, JsError> {
         .iter()
         .filter_map(|id| a::transistor(id).map(|s| (id.to_string(), s.label)))
         .collect();
-    let diodes: Vec<(String, String)> =
-        a::DIODE_ARCHETYPE_IDS.iter().filter_map(|id| a::diode(id).map(|s| (id.to_string(), s.label))).collect();
+    let diodes: Vec<(String, String)> = a::DIODE_ARCHETYPE_IDS
+        .iter()
+        .filter_map(|id| a::diode(id).map(|s| (id.to_string(), s.label)))
+        .collect();
     to_js(&serde_json::json!({ "transistors": transistors, "diodes": diodes }))
 }
 

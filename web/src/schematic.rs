@@ -24,7 +24,10 @@ impl Svg {
     }
     fn text(&mut self, x: f64, y: f64, anchor: &str, class: &str, text: &str) {
         let escaped = text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;");
-        let _ = writeln!(self.body, r#"<text x="{x:.1}" y="{y:.1}" text-anchor="{anchor}" class="{class}">{escaped}</text>"#);
+        let _ = writeln!(
+            self.body,
+            r#"<text x="{x:.1}" y="{y:.1}" text-anchor="{anchor}" class="{class}">{escaped}</text>"#
+        );
     }
     /// Two-line part label: designator, then value.
     fn label(&mut self, x: f64, y: f64, anchor: &str, designator: &str, value: &str) {
@@ -124,7 +127,13 @@ impl Svg {
     }
     /// Transistor with its base bar at `bar_x`; `facing` +1 when the base lead goes right.
     /// Returns (collector, emitter) lead ends.
-    fn transistor(&mut self, bar_x: f64, y: f64, facing: f64, polarity: Polarity) -> ((f64, f64), (f64, f64)) {
+    fn transistor(
+        &mut self,
+        bar_x: f64,
+        y: f64,
+        facing: f64,
+        polarity: Polarity,
+    ) -> ((f64, f64), (f64, f64)) {
         let outer = bar_x - facing * 40.0;
         let _ = writeln!(
             self.body,
@@ -193,7 +202,13 @@ pub fn stage_svg(design: &StageDesign) -> String {
     for (x, name) in [(x1, "R101"), (x2, "R102")] {
         s.dot(x, top);
         s.resistor((x, top), (x, collector_y));
-        s.label(if x < 320.0 { x - 12.0 } else { x + 12.0 }, 90.0, if x < 320.0 { "end" } else { "start" }, name, &ohms(values.collector_resistor_ohm));
+        s.label(
+            if x < 320.0 { x - 12.0 } else { x + 12.0 },
+            90.0,
+            if x < 320.0 { "end" } else { "start" },
+            name,
+            &ohms(values.collector_resistor_ohm),
+        );
         s.dot(x, collector_y);
     }
     s.net_label(x1 - 8.0, collector_y, "end", "C1");
@@ -214,18 +229,31 @@ pub fn stage_svg(design: &StageDesign) -> String {
     // Cross-coupling R1 with C1 in parallel, on the diagonals from each collector to the
     // other base; each pair sits in the half of its diagonal nearer the collector.
     let with_capacitor = values.commutating_capacitor_f > 0.0;
-    for (from, to, r_name, c_name, side) in
-        [((x1, collector_y), (b2x, base_y - 30.0), "R103", "C101", 1.0), ((x2, collector_y), (b1x, base_y - 30.0), "R104", "C102", -1.0)]
-    {
+    for (from, to, r_name, c_name, side) in [
+        ((x1, collector_y), (b2x, base_y - 30.0), "R103", "C101", 1.0),
+        ((x2, collector_y), (b1x, base_y - 30.0), "R104", "C102", -1.0),
+    ] {
         s.resistor_with_capacitor(from, to, -side * 22.0, with_capacitor);
         s.line(to.0, to.1, to.0, base_y);
         s.dot(to.0, to.1);
         let (dx, dy) = (to.0 - from.0, to.1 - from.1);
         let at = |f: f64| (from.0 + f * dx, from.1 + f * dy);
         let r_at = at(0.27);
-        s.label(r_at.0 - side * 6.0, r_at.1 + 22.0, if side > 0.0 { "end" } else { "start" }, r_name, &ohms(values.cross_resistor_ohm));
+        s.label(
+            r_at.0 - side * 6.0,
+            r_at.1 + 22.0,
+            if side > 0.0 { "end" } else { "start" },
+            r_name,
+            &ohms(values.cross_resistor_ohm),
+        );
         if with_capacitor {
-            s.label(r_at.0 + side * 16.0, r_at.1 - 26.0, if side > 0.0 { "start" } else { "end" }, c_name, &farads(values.commutating_capacitor_f));
+            s.label(
+                r_at.0 + side * 16.0,
+                r_at.1 - 26.0,
+                if side > 0.0 { "start" } else { "end" },
+                c_name,
+                &farads(values.commutating_capacitor_f),
+            );
         }
     }
     // Base resistors to the bias return.
@@ -272,7 +300,13 @@ pub fn stage_svg(design: &StageDesign) -> String {
                 for (index, x0, base_net, collector_net) in [(1, 60.0, "B1", "C1"), (2, 330.0, "B2", "C2")] {
                     s.net_label(x0, y, "end", "IN");
                     s.capacitor((x0 + 4.0, y), (x0 + 70.0, y));
-                    s.label(x0 + 37.0, y - 18.0, "middle", &format!("C10{}", 2 + index), &farads(trigger.trigger_capacitor_f));
+                    s.label(
+                        x0 + 37.0,
+                        y - 18.0,
+                        "middle",
+                        &format!("C10{}", 2 + index),
+                        &farads(trigger.trigger_capacitor_f),
+                    );
                     let node = (x0 + 70.0, y);
                     s.dot(node.0, node.1);
                     // Diode anode at the base, cathode at the steering node.
@@ -281,7 +315,13 @@ pub fn stage_svg(design: &StageDesign) -> String {
                     s.label(x0 + 110.0, y - 18.0, "middle", &format!("D10{index}"), "");
                     s.resistor(node, (node.0, y + 50.0));
                     s.net_label(node.0, y + 62.0, "middle", collector_net);
-                    s.label(node.0 + 12.0, y + 24.0, "start", &format!("R10{}", 7 + index), &ohms(trigger.trigger_resistor_ohm));
+                    s.label(
+                        node.0 + 12.0,
+                        y + 24.0,
+                        "start",
+                        &format!("R10{}", 7 + index),
+                        &ohms(trigger.trigger_resistor_ohm),
+                    );
                 }
             }
             Steering::Collector => {
@@ -292,7 +332,13 @@ pub fn stage_svg(design: &StageDesign) -> String {
                 let node = (x0 + 80.0, y);
                 s.dot(node.0, node.1);
                 s.resistor(node, (node.0, y - 60.0 + 10.0));
-                s.text(node.0, y - 56.0, "middle", "rail", &format!("{:+} V", sign * input.supplies.collector_supply_v));
+                s.text(
+                    node.0,
+                    y - 56.0,
+                    "middle",
+                    "rail",
+                    &format!("{:+} V", sign * input.supplies.collector_supply_v),
+                );
                 s.label(node.0 + 12.0, y - 30.0, "start", "R108", &ohms(trigger.trigger_resistor_ohm));
                 for (index, dx, net) in [(1, 90.0, "C1"), (2, 200.0, "C2")] {
                     let end = (node.0 + dx + 60.0, y);

@@ -19,7 +19,10 @@ cargo xtask <command>
 ";
 
 fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).parent().map(Path::to_path_buf).unwrap_or_else(|| PathBuf::from("."))
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| PathBuf::from("."))
 }
 
 /// Runs a command in the project root, echoing it; Err names the command that failed.
@@ -44,7 +47,11 @@ fn output(program: &str, args: &[&str]) -> Result<String, String> {
         .output()
         .map_err(|e| format!("cannot start {program}: {e}"))?;
     if !out.status.success() {
-        return Err(format!("`{program} {}` failed: {}", args.join(" "), String::from_utf8_lossy(&out.stderr)));
+        return Err(format!(
+            "`{program} {}` failed: {}",
+            args.join(" "),
+            String::from_utf8_lossy(&out.stderr)
+        ));
     }
     String::from_utf8(out.stdout).map_err(|e| format!("{program} printed invalid UTF-8: {e}"))
 }
@@ -76,9 +83,13 @@ fn python_with_eseries() -> Result<PathBuf, String> {
     if !python.exists() {
         run("python3", &["-m", "venv", &venv.to_string_lossy()])?;
     }
-    let has_eseries = Command::new(&python).args(["-c", "import eseries"]).status().map(|s| s.success()).unwrap_or(false);
+    let has_eseries =
+        Command::new(&python).args(["-c", "import eseries"]).status().map(|s| s.success()).unwrap_or(false);
     if !has_eseries {
-        run(&python.to_string_lossy(), &["-m", "pip", "install", "--quiet", "--disable-pip-version-check", "eseries==1.2.1"])?;
+        run(
+            &python.to_string_lossy(),
+            &["-m", "pip", "install", "--quiet", "--disable-pip-version-check", "eseries==1.2.1"],
+        )?;
     }
     Ok(python)
 }
@@ -121,7 +132,11 @@ fn base64(bytes: &[u8]) -> String {
     const ALPHABET: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
     let mut out = String::with_capacity(bytes.len().div_ceil(3) * 4);
     for chunk in bytes.chunks(3) {
-        let b = [chunk.first().copied().unwrap_or(0), chunk.get(1).copied().unwrap_or(0), chunk.get(2).copied().unwrap_or(0)];
+        let b = [
+            chunk.first().copied().unwrap_or(0),
+            chunk.get(1).copied().unwrap_or(0),
+            chunk.get(2).copied().unwrap_or(0),
+        ];
         let n = (u32::from(b[0]) << 16) | (u32::from(b[1]) << 8) | u32::from(b[2]);
         for (i, shift) in [18u32, 12, 6, 0].iter().enumerate() {
             if i <= chunk.len() {
@@ -146,26 +161,39 @@ fn ensure_wasm_target() -> Result<(), String> {
 pub fn build_page(test_hooks: bool) -> Result<PathBuf, String> {
     ensure_wasm_target()?;
     let target_dir = if test_hooks { "target/wasm-test-hooks" } else { "target" };
-    let mut args = vec!["build", "-p", "flipwright-web", "--lib", "--target", "wasm32-unknown-unknown", "--profile", "wasm", "--target-dir", target_dir];
+    let mut args = vec![
+        "build",
+        "-p",
+        "flipwright-web",
+        "--lib",
+        "--target",
+        "wasm32-unknown-unknown",
+        "--profile",
+        "wasm",
+        "--target-dir",
+        target_dir,
+    ];
     if test_hooks {
         args.extend(["--features", "test-hooks"]);
     }
     run("cargo", &args)?;
     let wasm = root().join(target_dir).join("wasm32-unknown-unknown/wasm/flipwright_web.wasm");
     let bindgen_dir = root().join(target_dir).join("page-bindgen");
-    std::fs::create_dir_all(&bindgen_dir).map_err(|e| format!("cannot create {}: {e}", bindgen_dir.display()))?;
+    std::fs::create_dir_all(&bindgen_dir)
+        .map_err(|e| format!("cannot create {}: {e}", bindgen_dir.display()))?;
     let mut bindgen = wasm_bindgen_cli_support::Bindgen::new();
-    bindgen
-        .input_path(&wasm)
-        .no_modules(true)
-        .map_err(|e| format!("bindgen: {e}"))?
-        .typescript(false);
+    bindgen.input_path(&wasm).no_modules(true).map_err(|e| format!("bindgen: {e}"))?.typescript(false);
     let mut generated = bindgen.generate_output().map_err(|e| format!("bindgen: {e}"))?;
     generated.emit(&bindgen_dir).map_err(|e| format!("bindgen: {e}"))?;
-    let read = |name: &str| std::fs::read(bindgen_dir.join(name)).map_err(|e| format!("cannot read {name}: {e}"));
-    let glue = String::from_utf8(read("flipwright_web.js")?).map_err(|e| format!("glue is not UTF-8: {e}"))?;
+    let read =
+        |name: &str| std::fs::read(bindgen_dir.join(name)).map_err(|e| format!("cannot read {name}: {e}"));
+    let glue =
+        String::from_utf8(read("flipwright_web.js")?).map_err(|e| format!("glue is not UTF-8: {e}"))?;
     let wasm_bytes = read("flipwright_web_bg.wasm")?;
-    let www = |name: &str| std::fs::read_to_string(root().join("www").join(name)).map_err(|e| format!("cannot read www/{name}: {e}"));
+    let www = |name: &str| {
+        std::fs::read_to_string(root().join("www").join(name))
+            .map_err(|e| format!("cannot read www/{name}: {e}"))
+    };
     let template = www("index.html")?;
     // The glue lives in a text/plain script so the page can re-evaluate it after a failure;
     // it must not contain a closing script tag.
@@ -181,7 +209,12 @@ pub fn build_page(test_hooks: bool) -> Result<PathBuf, String> {
     std::fs::create_dir_all(&out_dir).map_err(|e| format!("cannot create {}: {e}", out_dir.display()))?;
     let path = out_dir.join(if test_hooks { "flipwright-test-hooks.html" } else { "flipwright.html" });
     std::fs::write(&path, page).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
-    eprintln!("built {} ({} KiB; wasm {} KiB)", path.display(), std::fs::metadata(&path).map(|m| m.len() / 1024).unwrap_or(0), wasm_bytes.len() / 1024);
+    eprintln!(
+        "built {} ({} KiB; wasm {} KiB)",
+        path.display(),
+        std::fs::metadata(&path).map(|m| m.len() / 1024).unwrap_or(0),
+        wasm_bytes.len() / 1024
+    );
     Ok(path)
 }
 
@@ -189,7 +222,9 @@ fn page() -> Result<(), String> {
     let path = build_page(false)?;
     let url = format!("file://{}", path.display());
     let opener = if cfg!(target_os = "macos") { "open" } else { "xdg-open" };
-    let has_display = std::env::var_os("DISPLAY").is_some() || std::env::var_os("WAYLAND_DISPLAY").is_some() || cfg!(target_os = "macos");
+    let has_display = std::env::var_os("DISPLAY").is_some()
+        || std::env::var_os("WAYLAND_DISPLAY").is_some()
+        || cfg!(target_os = "macos");
     if has_display && Command::new(opener).arg(&url).status().map(|s| s.success()).unwrap_or(false) {
         eprintln!("opened {url}");
     } else {
@@ -200,7 +235,13 @@ fn page() -> Result<(), String> {
 
 /// Debian's Chromium and poppler (for the print checks), installed when missing.
 fn ensure_browser() -> Result<(), String> {
-    let have = |program: &str| Command::new("sh").args(["-c", &format!("command -v {program}")]).output().map(|o| o.status.success()).unwrap_or(false);
+    let have = |program: &str| {
+        Command::new("sh")
+            .args(["-c", &format!("command -v {program}")])
+            .output()
+            .map(|o| o.status.success())
+            .unwrap_or(false)
+    };
     if have("chromium") && have("pdftotext") && have("pdftoppm") {
         return Ok(());
     }

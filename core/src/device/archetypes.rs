@@ -49,8 +49,7 @@ pub fn transistor(id: &str) -> Option<TransistorDatasheet> {
             ptot_w: 0.5,
         },
         "si-npn-fast-15v" => TransistorDatasheet {
-            label: "silicon NPN fast saturated switching (gold-doped), 15 V, 200 mA, fT 500 MHz"
-                .into(),
+            label: "silicon NPN fast saturated switching (gold-doped), 15 V, 200 mA, fT 500 MHz".into(),
             polarity: Polarity::Npn,
             material: Material::Silicon,
             approximate: true,

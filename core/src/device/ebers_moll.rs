@@ -111,8 +111,7 @@ pub fn saturation_voltage(
 pub fn storage_time_constant(model: &EbersMoll) -> f64 {
     let alpha_f = model.beta_forward / (1.0 + model.beta_forward);
     let alpha_r = model.beta_reverse / (1.0 + model.beta_reverse);
-    (alpha_f * model.forward_transit_s + alpha_r * model.reverse_transit_s)
-        / (1.0 - alpha_f * alpha_r)
+    (alpha_f * model.forward_transit_s + alpha_r * model.reverse_transit_s) / (1.0 - alpha_f * alpha_r)
 }
 
 /// Result of deriving a model from a datasheet.

@@ -197,18 +197,10 @@ impl TransistorDatasheet {
     pub fn piecewise_at(&self, temperature_c: f64, spread: SpreadPoint) -> PiecewiseTransistor {
         let delta_t = temperature_c - REFERENCE_TEMPERATURE_C;
         // The low end of VCE(sat) is not on datasheets; half the typical value is assumed.
-        let vce_sat = interpolate(
-            0.5 * self.vce_sat_typ_v,
-            self.vce_sat_typ_v,
-            self.vce_sat_max_v,
-            spread.vce_sat,
-        );
-        let vbe_sat = interpolate(
-            self.vbe_sat_min_v,
-            self.vbe_sat_typ_v,
-            self.vbe_sat_max_v,
-            spread.vbe_sat,
-        ) + self.vbe_tempco_v_per_c * delta_t;
+        let vce_sat =
+            interpolate(0.5 * self.vce_sat_typ_v, self.vce_sat_typ_v, self.vce_sat_max_v, spread.vce_sat);
+        let vbe_sat = interpolate(self.vbe_sat_min_v, self.vbe_sat_typ_v, self.vbe_sat_max_v, spread.vbe_sat)
+            + self.vbe_tempco_v_per_c * delta_t;
         PiecewiseTransistor {
             hfe: self.hfe_at(temperature_c, spread.hfe),
             vce_sat_v: vce_sat,

@@ -8,7 +8,9 @@ use super::handbook::StateAnalysis;
 use super::margins::{evaluate_corner, required_value, CornerMetrics, MarginKind};
 use super::network::{Corner, StageNetwork};
 use super::switching::{estimate, PassiveScale, SwitchingEstimate};
-use super::worst_case::{self, diode_at, models_at, nominal_temperature_c, Parameter, Setting, WorstCaseReport};
+use super::worst_case::{
+    self, diode_at, models_at, nominal_temperature_c, Parameter, Setting, WorstCaseReport,
+};
 use super::{BiasScheme, StageDesign};
 use crate::device::ebers_moll::{Derivation, EbersMoll};
 use crate::device::Material;
@@ -25,8 +27,12 @@ pub enum AnalysisError {
 impl std::fmt::Display for AnalysisError {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self {
-            AnalysisError::ModelDerivation { reason } => write!(f, "cannot derive the Ebers–Moll model: {reason}"),
-            AnalysisError::NominalUnsolvable { reason } => write!(f, "cannot solve the nominal stage: {reason}"),
+            AnalysisError::ModelDerivation { reason } => {
+                write!(f, "cannot derive the Ebers–Moll model: {reason}")
+            }
+            AnalysisError::NominalUnsolvable { reason } => {
+                write!(f, "cannot solve the nominal stage: {reason}")
+            }
         }
     }
 }
@@ -124,8 +130,8 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
     })?;
     let t_nominal = nominal_temperature_c(design);
     let corner = Corner::nominal(design, t_nominal);
-    let (nominal_metrics, states) =
-        evaluate_corner(design, &corner).map_err(|e| AnalysisError::NominalUnsolvable { reason: e.to_string() })?;
+    let (nominal_metrics, states) = evaluate_corner(design, &corner)
+        .map_err(|e| AnalysisError::NominalUnsolvable { reason: e.to_string() })?;
     let network = StageNetwork::build(design, &corner);
     let models = models_at(design, &derivation.model, &corner);
     let diode = diode_at(design, t_nominal);
@@ -144,7 +150,8 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
                 let ic_exact = exact.collector_current_a[state.on_side];
                 agreement.push(Some(ModelAgreement {
                     max_node_difference_v,
-                    collector_current_relative: (ic_exact - state.on_collector_current_a) / state.on_collector_current_a,
+                    collector_current_relative: (ic_exact - state.on_collector_current_a)
+                        / state.on_collector_current_a,
                 }));
                 exact_states.push(Ok(exact));
             }
@@ -168,8 +175,16 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
             worst: wc.worst,
             required,
             pass,
-            worst_corner: wc.corner.iter().map(|(p, s)| format!("{}: {}", p.label(), setting_word(*s))).collect(),
-            limiting: wc.limiting.iter().map(|(p, gain)| format!("{} (flipping it gains {:.3})", p.label(), gain)).collect(),
+            worst_corner: wc
+                .corner
+                .iter()
+                .map(|(p, s)| format!("{}: {}", p.label(), setting_word(*s)))
+                .collect(),
+            limiting: wc
+                .limiting
+                .iter()
+                .map(|(p, gain)| format!("{} (flipping it gains {:.3})", p.label(), gain))
+                .collect(),
             advice: if pass { String::new() } else { advice(wc.kind, &wc.limiting, design) },
         });
     }
@@ -188,7 +203,8 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
         )
     };
     let slow_estimates = [slow(-1.0), slow(1.0)];
-    let worst_max_toggle_rate_hz = slow_estimates.iter().map(|e| e.max_toggle_rate_hz).fold(f64::INFINITY, f64::min);
+    let worst_max_toggle_rate_hz =
+        slow_estimates.iter().map(|e| e.max_toggle_rate_hz).fold(f64::INFINITY, f64::min);
     let required_rate = input.requirements.toggle_rate_hz * input.requirements.toggle_rate_margin;
     let rate_pass = worst_max_toggle_rate_hz >= required_rate;
     margins.push(MarginReport {
@@ -224,7 +240,11 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
             .chain(std::iter::once(&estimate(
                 design,
                 &states[1],
-                PassiveScale { resistor: 1.0, capacitor: 1.0 - input.conditions.capacitor_tolerance, hfe_spread: 1.0 },
+                PassiveScale {
+                    resistor: 1.0,
+                    capacitor: 1.0 - input.conditions.capacitor_tolerance,
+                    hfe_spread: 1.0,
+                },
             )))
             .filter_map(|e| e.min_trigger_amplitude_v)
             .fold(min_amplitude, f64::max);
@@ -247,19 +267,25 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
     let all_pass = margins.iter().all(|m| m.pass);
     let sign = sheet.polarity.sign();
     let handbook_states = states.iter().map(|s| mirror_state(s, sign)).collect();
-    let exact_states = exact_states
-        .into_iter()
-        .map(|r| r.map(|s| mirror_exact(s, sign)))
-        .collect();
+    let exact_states = exact_states.into_iter().map(|r| r.map(|s| mirror_exact(s, sign))).collect();
     let mut notes: Vec<String> = derivation.assumptions.clone();
     if sheet.approximate {
         notes.push(format!("transistor \"{}\" is a generic archetype with approximate values: enter the datasheet of the part you fit", sheet.label));
     }
     if design.diode().approximate {
-        notes.push(format!("diode \"{}\" is a generic archetype with approximate values", design.diode().label));
+        notes.push(format!(
+            "diode \"{}\" is a generic archetype with approximate values",
+            design.diode().label
+        ));
     }
-    notes.push("the handbook (piecewise) model treats the steering diodes as open; the exact model includes them".to_string());
-    notes.push("switching, toggle-rate and trigger figures are charge-control estimates, not measurements".to_string());
+    notes.push(
+        "the handbook (piecewise) model treats the steering diodes as open; the exact model includes them"
+            .to_string(),
+    );
+    notes.push(
+        "switching, toggle-rate and trigger figures are charge-control estimates, not measurements"
+            .to_string(),
+    );
     Ok(StageReport {
         polarity_sign: sign,
         nominal_temperature_c: t_nominal,
@@ -318,15 +344,17 @@ pub fn cautions(design: &StageDesign, worst: &WorstCaseReport) -> Vec<String> {
     if design.transistor().material == Material::Germanium {
         list.push("germanium leakage rises steeply with temperature: check the cut-off margin at the highest temperature and avoid thermal runaway (never exceed the stated t_max)".to_string());
     }
-    let hot: Vec<&str> = worst
-        .resistor_dissipation_w
-        .iter()
-        .filter(|(_, w)| *w > 0.25)
-        .map(|(n, _)| *n)
-        .collect();
+    let hot: Vec<&str> =
+        worst.resistor_dissipation_w.iter().filter(|(_, w)| *w > 0.25).map(|(n, _)| *n).collect();
     if !hot.is_empty() {
-        list.push(format!("{} dissipate over 0.25 W and run hot: keep clearance and do not touch in operation", hot.join(", ")));
+        list.push(format!(
+            "{} dissipate over 0.25 W and run hot: keep clearance and do not touch in operation",
+            hot.join(", ")
+        ));
     }
-    list.push("inductive loads on the outputs (relays, electromechanical counters) need a flyback diode".to_string());
+    list.push(
+        "inductive loads on the outputs (relays, electromechanical counters) need a flyback diode"
+            .to_string(),
+    );
     list
 }

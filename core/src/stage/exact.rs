@@ -4,7 +4,9 @@
 use serde::Serialize;
 
 use super::handbook::StateAnalysis;
-use super::network::{DiodeLaw, ExactSolution, SolveError, StageNetwork, Terminal, NODE_B1, NODE_B2, NODE_C1, NODE_C2};
+use super::network::{
+    DiodeLaw, ExactSolution, SolveError, StageNetwork, Terminal, NODE_B1, NODE_B2, NODE_C1, NODE_C2,
+};
 use crate::device::ebers_moll::{BjtOperatingPoint, EbersMoll};
 
 /// One state by the exact model (NPN frame).
@@ -52,11 +54,7 @@ type Named = Vec<(&'static str, f64)>;
 
 fn named(network: &StageNetwork, v: &[f64]) -> (Named, Named) {
     let nodes = network.node_names.iter().zip(v).map(|(n, x)| (*n, *x)).collect();
-    let branches = network
-        .resistors
-        .iter()
-        .map(|r| (r.name, StageNetwork::resistor_current(r, v)))
-        .collect();
+    let branches = network.resistors.iter().map(|r| (r.name, StageNetwork::resistor_current(r, v))).collect();
     (nodes, branches)
 }
 
@@ -156,7 +154,8 @@ fn middle_point_guess(network: &StageNetwork, models: &[EbersMoll; 2]) -> Vec<f6
                 .map(|(_, _, i)| *i)
                 .sum();
             // (VCC − VC)/RC = β·((VC − VB)/R1 − I_R2) + (VC − VB)/R1 + load(VC)
-            let numerator = corner.collector_supply_v / rc + beta * i_r2 + (beta + 1.0) * vb / r1 - i_load - sink;
+            let numerator =
+                corner.collector_supply_v / rc + beta * i_r2 + (beta + 1.0) * vb / r1 - i_load - sink;
             let denominator = 1.0 / rc + (beta + 1.0) / r1 + g_load;
             // Not `clamp`: with a high emitter level VB can exceed the supply, and clamp panics then.
             let vc = (numerator / denominator).min(corner.collector_supply_v).max(vb);

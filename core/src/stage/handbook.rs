@@ -61,11 +61,8 @@ pub fn analyse_state(
     let ib = solution.on_base_current_a;
     let overdrive = if ic > 0.0 { on_device.hfe * ib / ic } else { f64::INFINITY };
     let off_vbe = base[off_side] - emitter;
-    let branch_currents: Vec<(&'static str, f64)> = network
-        .resistors
-        .iter()
-        .map(|r| (r.name, StageNetwork::resistor_current(r, v)))
-        .collect();
+    let branch_currents: Vec<(&'static str, f64)> =
+        network.resistors.iter().map(|r| (r.name, StageNetwork::resistor_current(r, v))).collect();
     let supply_v = network.corner.collector_supply_v;
     let bias_v = network.corner.bias_supply_v;
     let mut collector_supply_current = 0.0;
@@ -82,12 +79,7 @@ pub fn analyse_state(
     let off_vce = collector[off_side] - emitter;
     Ok(StateAnalysis {
         on_side,
-        node_voltages: network
-            .node_names
-            .iter()
-            .zip(v)
-            .map(|(name, value)| (*name, *value))
-            .collect(),
+        node_voltages: network.node_names.iter().zip(v).map(|(name, value)| (*name, *value)).collect(),
         branch_currents,
         on_collector_current_a: ic,
         on_base_current_a: ib,

@@ -5,7 +5,7 @@ use serde::Serialize;
 
 use super::handbook::{analyse_state, StateAnalysis};
 use super::network::{Corner, SolveError, StageNetwork};
-use super::{Steering, StageDesign};
+use super::{StageDesign, Steering};
 use crate::device::{Material, PiecewiseTransistor};
 
 /// The margins the tool reports, each with a pass threshold.
@@ -94,7 +94,10 @@ pub fn max_junction_temperature_c(material: Material) -> f64 {
 /// Devices at a corner, piecewise.
 pub fn devices_at(design: &StageDesign, corner: &Corner) -> [PiecewiseTransistor; 2] {
     let sheet = design.transistor();
-    [sheet.piecewise_at(corner.temperature_c, corner.spread[0]), sheet.piecewise_at(corner.temperature_c, corner.spread[1])]
+    [
+        sheet.piecewise_at(corner.temperature_c, corner.spread[0]),
+        sheet.piecewise_at(corner.temperature_c, corner.spread[1]),
+    ]
 }
 
 /// Trigger amplitude available at the stage input: the requirement, or the stage's own swing.
@@ -140,13 +143,15 @@ pub fn evaluate_corner(
             Some(t) if t.steering == Steering::Base => {
                 let amplitude = available_trigger_amplitude(design, state.output_swing_v);
                 let knee = design.diode().forward_voltage_v - (on_device.vbe_sat_v - on_device.vce_sat_v);
-                (amplitude - knee.max(0.0)).max(0.0) * t.trigger_capacitor_f / (t.trigger_capacitor_f + sheet.cib_f)
+                (amplitude - knee.max(0.0)).max(0.0) * t.trigger_capacitor_f
+                    / (t.trigger_capacitor_f + sheet.cib_f)
             }
             _ => 0.0,
         };
         let transient_reverse = (state.output_swing_v * coupling).max(trigger_push) - on_device.vbe_sat_v;
         let dc_reverse = -state.off_base_emitter_v;
-        metrics.reverse_base_emitter_v = metrics.reverse_base_emitter_v.max(dc_reverse).max(transient_reverse);
+        metrics.reverse_base_emitter_v =
+            metrics.reverse_base_emitter_v.max(dc_reverse).max(transient_reverse);
         metrics.max_collector_emitter_v = metrics.max_collector_emitter_v.max(state.off_collector_emitter_v);
         metrics.max_collector_current_a = metrics.max_collector_current_a.max(state.on_collector_current_a);
         metrics.max_transistor_dissipation_w = metrics
@@ -154,7 +159,9 @@ pub fn evaluate_corner(
             .max(state.on_transistor_dissipation_w)
             .max(state.off_transistor_dissipation_w);
         let resistor_currents = network.resistors.iter().zip(&state.branch_currents);
-        for ((_, worst), (resistor, (_, current))) in metrics.resistor_dissipation_w.iter_mut().zip(resistor_currents) {
+        for ((_, worst), (resistor, (_, current))) in
+            metrics.resistor_dissipation_w.iter_mut().zip(resistor_currents)
+        {
             *worst = worst.max(current * current * resistor.resistance_ohm);
         }
         let power = corner.collector_supply_v * state.collector_supply_current_a

@@ -58,9 +58,14 @@ pub struct TriggerNetwork {
 pub enum Load {
     None,
     /// A resistance from the collector to a fixed voltage (0 for ground).
-    Resistance { resistance_ohm: f64, return_v: f64 },
+    Resistance {
+        resistance_ohm: f64,
+        return_v: f64,
+    },
     /// A constant current drawn out of the collector node (negative: pushed in).
-    Current { current_a: f64 },
+    Current {
+        current_a: f64,
+    },
 }
 
 /// The component values of one stage (both halves equal, as built).
@@ -237,7 +242,13 @@ fn validate_requirements(input: &StageInput, errors: &mut Vec<FieldError>) {
     validate_diode(&input.diode, "diode", errors);
     let mut check = Checker::new(errors, "supplies");
     let supplies = &input.supplies;
-    check.within("collector_supply_v", supplies.collector_supply_v, 0.5, 1000.0, "a supply magnitude in volts");
+    check.within(
+        "collector_supply_v",
+        supplies.collector_supply_v,
+        0.5,
+        1000.0,
+        "a supply magnitude in volts",
+    );
     check.within("bias_supply_v", supplies.bias_supply_v, 0.0, 1000.0, "a bias-rail magnitude in volts");
     check.within("tolerance", supplies.tolerance, 0.0, 0.3, "a fraction (0.05 = ±5 %)");
     let mut check = Checker::new(errors, "conditions");
@@ -292,7 +303,12 @@ fn validate_requirements(input: &StageInput, errors: &mut Vec<FieldError>) {
 }
 
 /// Checks component values against each other and the supplies.
-pub(crate) fn validate_values(values: &StageValues, supplies: &Supplies, prefix: &str, errors: &mut Vec<FieldError>) {
+pub(crate) fn validate_values(
+    values: &StageValues,
+    supplies: &Supplies,
+    prefix: &str,
+    errors: &mut Vec<FieldError>,
+) {
     let mut check = Checker::new(errors, prefix);
     check.within("collector_resistor_ohm", values.collector_resistor_ohm, 1.0, 1e8, "ohms");
     check.within("cross_resistor_ohm", values.cross_resistor_ohm, 1.0, 1e9, "ohms");
@@ -353,11 +369,7 @@ fn validate_transistor(sheet: &TransistorDatasheet, prefix: &str, errors: &mut V
     );
     check.positive("sat_test_current_a", sheet.sat_test_current_a, "amperes");
     check.within("vbe_cutoff_v", sheet.vbe_cutoff_v, -2.0, 1.0, "volts");
-    check.rule(
-        "vbe_cutoff_v",
-        sheet.vbe_cutoff_v < sheet.vbe_sat_min_v,
-        "must be below vbe_sat_min_v",
-    );
+    check.rule("vbe_cutoff_v", sheet.vbe_cutoff_v < sheet.vbe_sat_min_v, "must be below vbe_sat_min_v");
     check.within("vbe_tempco_v_per_c", sheet.vbe_tempco_v_per_c, -0.01, 0.0, "volts per °C");
     check.within("icbo_25c_a", sheet.icbo_25c_a, 0.0, 1e-2, "amperes");
     check.within("icbo_doubling_c", sheet.icbo_doubling_c, 3.0, 30.0, "°C");

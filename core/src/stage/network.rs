@@ -174,11 +174,26 @@ impl StageNetwork {
             Resistor { name: "RC2", from: vcc, to: c[1], resistance_ohm: corner.collector_resistor_ohm[1] },
             Resistor { name: "R1a", from: c[0], to: b[1], resistance_ohm: corner.cross_resistor_ohm[0] },
             Resistor { name: "R1b", from: c[1], to: b[0], resistance_ohm: corner.cross_resistor_ohm[1] },
-            Resistor { name: "R2a", from: b[0], to: base_return, resistance_ohm: corner.base_resistor_ohm[0] },
-            Resistor { name: "R2b", from: b[1], to: base_return, resistance_ohm: corner.base_resistor_ohm[1] },
+            Resistor {
+                name: "R2a",
+                from: b[0],
+                to: base_return,
+                resistance_ohm: corner.base_resistor_ohm[0],
+            },
+            Resistor {
+                name: "R2b",
+                from: b[1],
+                to: base_return,
+                resistance_ohm: corner.base_resistor_ohm[1],
+            },
         ];
         if values.bias == BiasScheme::SelfBias {
-            resistors.push(Resistor { name: "RE", from: emitter, to: ground, resistance_ohm: corner.emitter_resistor_ohm });
+            resistors.push(Resistor {
+                name: "RE",
+                from: emitter,
+                to: ground,
+                resistance_ohm: corner.emitter_resistor_ohm,
+            });
         }
         let mut current_sinks = Vec::new();
         const LOAD_NAMES: [&str; 2] = ["RL1", "RL2"];
@@ -192,7 +207,9 @@ impl StageNetwork {
                     to: Terminal::Fixed(return_v),
                     resistance_ohm: resistance_ohm * corner.load_resistance_factor[side % 2],
                 }),
-                Load::Current { current_a } => current_sinks.push((SINK_NAMES[side % 2], c[side % 2], current_a)),
+                Load::Current { current_a } => {
+                    current_sinks.push((SINK_NAMES[side % 2], c[side % 2], current_a))
+                }
             }
         }
         let mut diodes = Vec::new();
@@ -270,7 +287,8 @@ impl StageNetwork {
             let is_skipped = skipped.iter().any(|(i, _)| *i == index);
             matrix.add(index, index, if is_skipped { 1.0 } else { GMIN_S });
         }
-        let touches_skipped = |t: Terminal| matches!(t, Terminal::Node(i) if skipped.iter().any(|(s, _)| *s == i));
+        let touches_skipped =
+            |t: Terminal| matches!(t, Terminal::Node(i) if skipped.iter().any(|(s, _)| *s == i));
         for resistor in self.resistors.iter().filter(|r| !touches_skipped(r.from) && !touches_skipped(r.to)) {
             let g = 1.0 / resistor.resistance_ohm;
             stamp_conductance(matrix, rhs, resistor.from, resistor.to, g);
@@ -301,11 +319,20 @@ impl StageNetwork {
                 Terminal::Node(i) => Some(i),
                 Terminal::Fixed(_) => None,
             })
-            .filter(|&i| self.transistors.iter().all(|p| ![p.collector, p.base, p.emitter].contains(&Terminal::Node(i))))
+            .filter(|&i| {
+                self.transistors
+                    .iter()
+                    .all(|p| ![p.collector, p.base, p.emitter].contains(&Terminal::Node(i)))
+            })
             .filter_map(|i| {
-                let mut touching = self.resistors.iter().filter(|r| r.from == Terminal::Node(i) || r.to == Terminal::Node(i));
+                let mut touching = self
+                    .resistors
+                    .iter()
+                    .filter(|r| r.from == Terminal::Node(i) || r.to == Terminal::Node(i));
                 let only = touching.next()?;
-                if touching.next().is_some() || self.current_sinks.iter().any(|(_, t, _)| *t == Terminal::Node(i)) {
+                if touching.next().is_some()
+                    || self.current_sinks.iter().any(|(_, t, _)| *t == Terminal::Node(i))
+                {
                     return None;
                 }
                 Some((i, if only.from == Terminal::Node(i) { only.to } else { only.from }))
@@ -327,8 +354,16 @@ impl StageNetwork {
         let base_row = n;
         let collector_row = n + 1;
         stamp_voltage_source(&mut matrix, &mut rhs, base_row, on.base, on.emitter, on_device.vbe_sat_v);
-        stamp_voltage_source(&mut matrix, &mut rhs, collector_row, on.collector, on.emitter, on_device.vce_sat_v);
-        let solution = matrix.solve(&rhs).map_err(|e| SolveError::Singular { node: self.node_name(e.column) })?;
+        stamp_voltage_source(
+            &mut matrix,
+            &mut rhs,
+            collector_row,
+            on.collector,
+            on.emitter,
+            on_device.vce_sat_v,
+        );
+        let solution =
+            matrix.solve(&rhs).map_err(|e| SolveError::Singular { node: self.node_name(e.column) })?;
         let mut node_voltages = solution.get(..n).map(|s| s.to_vec()).unwrap_or_default();
         for &(node, other_end) in &dangling {
             let v = Self::voltage(other_end, &node_voltages);
@@ -618,9 +653,9 @@ impl<'a> ExpandedNetwork<'a> {
         for iteration in 1..=MAX_NEWTON_ITERATIONS {
             self.assemble(models, diode, &x, scale, &mut jacobian, &mut residual);
             let rhs: Vec<f64> = residual.iter().map(|r| -r).collect();
-            let delta = jacobian.solve(&rhs).map_err(|e| SolveError::Singular {
-                node: self.network.node_name(e.column),
-            })?;
+            let delta = jacobian
+                .solve(&rhs)
+                .map_err(|e| SolveError::Singular { node: self.network.node_name(e.column) })?;
             // Limit the step so no junction rises by more than a few VT at once above its
             // conduction knee (the usual junction limiting, applied as one global damping).
             let before = self.junction_voltages(diode_count, &x, scale);
@@ -641,10 +676,14 @@ impl<'a> ExpandedNetwork<'a> {
             for (value, d) in x.iter_mut().zip(&delta) {
                 *value += damping * d;
             }
-            let (worst_node, worst_residual) = residual
-                .iter()
-                .enumerate()
-                .fold((0usize, 0.0f64), |(wi, wr), (i, r)| if r.abs() > wr { (i, r.abs()) } else { (wi, wr) });
+            let (worst_node, worst_residual) =
+                residual.iter().enumerate().fold((0usize, 0.0f64), |(wi, wr), (i, r)| {
+                    if r.abs() > wr {
+                        (i, r.abs())
+                    } else {
+                        (wi, wr)
+                    }
+                });
             last_residual = (worst_node, worst_residual);
             let converged_step = max_node_step * damping < 1e-9 && damping == 1.0;
             if converged_step && worst_residual < 1e-9 {
@@ -661,7 +700,12 @@ impl<'a> ExpandedNetwork<'a> {
         })
     }
 
-    fn finish(&self, models: &[EbersMoll; 2], diode: &DiodeLaw, (x, iterations): (Vec<f64>, usize)) -> ExactSolution {
+    fn finish(
+        &self,
+        models: &[EbersMoll; 2],
+        diode: &DiodeLaw,
+        (x, iterations): (Vec<f64>, usize),
+    ) -> ExactSolution {
         let v = |t: Terminal| StageNetwork::voltage(t, &x);
         let mut transistor_currents = [(0.0, 0.0); 2];
         for (index, pins) in self.network.transistors.iter().enumerate() {
@@ -669,12 +713,8 @@ impl<'a> ExpandedNetwork<'a> {
             let op = models[index % 2].evaluate(v(base) - v(pins.emitter), v(base) - v(collector));
             transistor_currents[index % 2] = (op.collector_current_a, op.base_current_a);
         }
-        let diode_currents = self
-            .network
-            .diodes
-            .iter()
-            .map(|pins| diode.current(v(pins.anode) - v(pins.cathode)).0)
-            .collect();
+        let diode_currents =
+            self.network.diodes.iter().map(|pins| diode.current(v(pins.anode) - v(pins.cathode)).0).collect();
         ExactSolution {
             node_voltages: x.get(..self.network.node_count()).map(|s| s.to_vec()).unwrap_or_default(),
             transistor_currents,

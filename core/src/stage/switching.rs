@@ -149,7 +149,8 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
     let r2 = values.base_resistor_ohm * scale.resistor;
     let rc = values.collector_resistor_ohm * scale.resistor;
     let c1 = values.commutating_capacitor_f * scale.capacitor;
-    let devices = sheet.piecewise_at(25.0, crate::device::SpreadPoint { hfe: scale.hfe_spread, ..Default::default() });
+    let devices =
+        sheet.piecewise_at(25.0, crate::device::SpreadPoint { hfe: scale.hfe_spread, ..Default::default() });
     let vbe_sat = devices.vbe_sat_v;
     let vce_sat = devices.vce_sat_v;
     let bias_v = match values.bias {
@@ -190,11 +191,8 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
     // the transition is about the rise of one side and the fall of the other; with too little,
     // the full turn-on delay and storage add to it.
     let turn_on = delay_s + rise_s.unwrap_or(0.0);
-    let transition_s = if c1 >= commutating_min_f {
-        rise_s.unwrap_or(0.0) + fall_s
-    } else {
-        turn_on + storage_s + fall_s
-    };
+    let transition_s =
+        if c1 >= commutating_min_f { rise_s.unwrap_or(0.0) + fall_s } else { turn_on + storage_s + fall_s };
     let recovery_time_constant_s = c1 * r_parallel;
     let trigger_recovery_s = values
         .trigger
@@ -208,10 +206,7 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
     };
     let available = input.requirements.trigger_amplitude_v.unwrap_or(state.output_swing_v);
     let min_trigger_amplitude_v = values.trigger.map(|t| {
-        let scaled = TriggerNetwork {
-            trigger_capacitor_f: t.trigger_capacitor_f * scale.capacitor,
-            ..t
-        };
+        let scaled = TriggerNetwork { trigger_capacitor_f: t.trigger_capacitor_f * scale.capacitor, ..t };
         minimum_trigger_amplitude(design, state, &scaled, c1, stored_excess_c + active_c, rc)
     });
     SwitchingEstimate {
@@ -228,8 +223,16 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
         transition_s,
         recovery_time_constant_s,
         trigger_recovery_s,
-        max_rate_rule_bell_hz: if recovery_time_constant_s > 0.0 { 1.0 / (2.3 * recovery_time_constant_s) } else { f64::INFINITY },
-        max_rate_rule_half_hz: if recovery_time_constant_s > 0.0 { 1.0 / (2.0 * recovery_time_constant_s) } else { f64::INFINITY },
+        max_rate_rule_bell_hz: if recovery_time_constant_s > 0.0 {
+            1.0 / (2.3 * recovery_time_constant_s)
+        } else {
+            f64::INFINITY
+        },
+        max_rate_rule_half_hz: if recovery_time_constant_s > 0.0 {
+            1.0 / (2.0 * recovery_time_constant_s)
+        } else {
+            f64::INFINITY
+        },
         max_toggle_rate_hz: 1.0 / resolving.max(1e-15),
         min_trigger_amplitude_v,
         available_trigger_amplitude_v: available,
@@ -267,7 +270,11 @@ fn minimum_trigger_amplitude(
             } else {
                 0.0
             };
-            if series > 0.0 { gap + charge_c / series } else { f64::INFINITY }
+            if series > 0.0 {
+                gap + charge_c / series
+            } else {
+                f64::INFINITY
+            }
         }
     }
 }

@@ -76,16 +76,16 @@ pub fn synthesise(input: &StageInput) -> Result<SynthesisOutcome, SynthesisError
     steps.push(format!(
         "collector current {} ({})",
         format_quantity(collector_current, Unit::Ampere),
-        if input.requirements.collector_current_a.is_some() { "as required" } else { "from the power budget" }
+        if input.requirements.collector_current_a.is_some() {
+            "as required"
+        } else {
+            "from the power budget"
+        }
     ));
     let mut best: Option<SynthesisOutcome> = None;
     for round in 0..MAX_CURRENT_ROUNDS {
         let outcome = design_at_current(input, collector_current, &mut steps)?;
-        let rate_short = outcome
-            .report
-            .margins
-            .iter()
-            .any(|m| m.kind == MarginKind::ToggleRate && !m.pass);
+        let rate_short = outcome.report.margins.iter().any(|m| m.kind == MarginKind::ToggleRate && !m.pass);
         let power_over = input
             .requirements
             .power_budget_w
@@ -97,17 +97,24 @@ pub fn synthesise(input: &StageInput) -> Result<SynthesisOutcome, SynthesisError
         }
         if power_over && round + 1 < MAX_CURRENT_ROUNDS {
             collector_current *= 0.8;
-            steps.push(format!("supply power over budget: current lowered to {}", format_quantity(collector_current, Unit::Ampere)));
+            steps.push(format!(
+                "supply power over budget: current lowered to {}",
+                format_quantity(collector_current, Unit::Ampere)
+            ));
             continue;
         }
         if rate_short && input.requirements.collector_current_a.is_none() && round + 1 < MAX_CURRENT_ROUNDS {
             collector_current *= 1.6;
-            steps.push(format!("toggle rate short: current raised to {}", format_quantity(collector_current, Unit::Ampere)));
+            steps.push(format!(
+                "toggle rate short: current raised to {}",
+                format_quantity(collector_current, Unit::Ampere)
+            ));
             continue;
         }
         break;
     }
-    let mut outcome = best.ok_or_else(|| SynthesisError::NoFirstCut { reason: "no candidate".to_string() })?;
+    let mut outcome =
+        best.ok_or_else(|| SynthesisError::NoFirstCut { reason: "no candidate".to_string() })?;
     outcome.steps = steps;
     Ok(outcome)
 }
@@ -173,7 +180,10 @@ fn design_at_current(
         }
         BiasScheme::SelfBias => self_bias_first_cut(input, collector_current, hfe_design, vbe_sat, vce_sat)?,
     };
-    if !(first.cross_resistor_ohm > 0.0 && first.collector_resistor_ohm > 0.0 && first.base_resistor_ohm > 0.0) {
+    if !(first.cross_resistor_ohm > 0.0
+        && first.collector_resistor_ohm > 0.0
+        && first.base_resistor_ohm > 0.0)
+    {
         return Err(SynthesisError::NoFirstCut {
             reason: format!(
                 "the first cut needs R1 = {:.0} Ω: the base drive at overdrive {} and hFE {hfe_design:.0} cannot be reached; raise the collector supply, lower target_overdrive or divider_current_fraction",
@@ -201,14 +211,17 @@ fn design_at_current(
         trigger: None,
     };
     let base_model = EbersMoll::from_datasheet(sheet)
-        .ok_or_else(|| SynthesisError::NoFirstCut { reason: "the transistor data give no Ebers–Moll model".to_string() })?
+        .ok_or_else(|| SynthesisError::NoFirstCut {
+            reason: "the transistor data give no Ebers–Moll model".to_string(),
+        })?
         .model;
     // Pass 1 searches without capacitors; pass 2 repeats the search with C1 and the trigger
     // network fitted to pass 1's choice, since they enter the reverse-VBE and trigger margins.
     let mut capacitors = snapped;
     let mut values = snapped;
     for pass in 0..2 {
-        let (score, chosen, candidates) = neighbourhood_search(input, &snapped, &capacitors, emitter_resistor, &base_model);
+        let (score, chosen, candidates) =
+            neighbourhood_search(input, &snapped, &capacitors, emitter_resistor, &base_model);
         values = chosen;
         steps.push(format!(
             "pass {}: searched {candidates} neighbouring {} value sets; chose RC {}, R1 {}, R2 {}{} ({})",
@@ -217,14 +230,23 @@ fn design_at_current(
             format_quantity(values.collector_resistor_ohm, Unit::Ohm),
             format_quantity(values.cross_resistor_ohm, Unit::Ohm),
             format_quantity(values.base_resistor_ohm, Unit::Ohm),
-            if values.emitter_resistor_ohm > 0.0 { format!(", RE {}", format_quantity(values.emitter_resistor_ohm, Unit::Ohm)) } else { String::new() },
-            if score >= 0.0 { "all DC margins pass at worst case" } else { "best available; some DC margin fails" }
+            if values.emitter_resistor_ohm > 0.0 {
+                format!(", RE {}", format_quantity(values.emitter_resistor_ohm, Unit::Ohm))
+            } else {
+                String::new()
+            },
+            if score >= 0.0 {
+                "all DC margins pass at worst case"
+            } else {
+                "best available; some DC margin fails"
+            }
         ));
         let mut with_values = input.clone();
         with_values.values = values;
         let design = StageDesign::new(with_values).map_err(SynthesisError::Invalid)?;
         let corner = Corner::nominal(&design, nominal_temperature_c(&design));
-        let (_, states) = evaluate_corner(&design, &corner).map_err(|e| SynthesisError::NoFirstCut { reason: e.to_string() })?;
+        let (_, states) = evaluate_corner(&design, &corner)
+            .map_err(|e| SynthesisError::NoFirstCut { reason: e.to_string() })?;
         let (fitted, _) = fit_capacitors(&design, &states[1]);
         capacitors = fitted;
     }
@@ -238,7 +260,8 @@ fn design_at_current(
     with_values.values = values;
     let design = StageDesign::new(with_values).map_err(SynthesisError::Invalid)?;
     let corner = Corner::nominal(&design, nominal_temperature_c(&design));
-    let (_, states) = evaluate_corner(&design, &corner).map_err(|e| SynthesisError::NoFirstCut { reason: e.to_string() })?;
+    let (_, states) = evaluate_corner(&design, &corner)
+        .map_err(|e| SynthesisError::NoFirstCut { reason: e.to_string() })?;
     let (fitted, notes) = fit_capacitors(&design, &states[1]);
     steps.extend(notes);
     let design = design.with_values(fitted).map_err(SynthesisError::Invalid)?;
@@ -284,11 +307,17 @@ fn neighbourhood_search(
                     let mut values = snapped;
                     values.commutating_capacitor_f = capacitors.commutating_capacitor_f;
                     values.trigger = capacitors.trigger;
-                    values.collector_resistor_ohm = series.step(snapped.collector_resistor_ohm, drc).unwrap_or(snapped.collector_resistor_ohm);
-                    values.cross_resistor_ohm = series.step(snapped.cross_resistor_ohm, dr1).unwrap_or(snapped.cross_resistor_ohm);
-                    values.base_resistor_ohm = series.step(snapped.base_resistor_ohm, dr2).unwrap_or(snapped.base_resistor_ohm);
+                    values.collector_resistor_ohm = series
+                        .step(snapped.collector_resistor_ohm, drc)
+                        .unwrap_or(snapped.collector_resistor_ohm);
+                    values.cross_resistor_ohm =
+                        series.step(snapped.cross_resistor_ohm, dr1).unwrap_or(snapped.cross_resistor_ohm);
+                    values.base_resistor_ohm =
+                        series.step(snapped.base_resistor_ohm, dr2).unwrap_or(snapped.base_resistor_ohm);
                     if emitter_resistor > 0.0 {
-                        values.emitter_resistor_ohm = series.step(snapped.emitter_resistor_ohm, dre).unwrap_or(snapped.emitter_resistor_ohm);
+                        values.emitter_resistor_ohm = series
+                            .step(snapped.emitter_resistor_ohm, dre)
+                            .unwrap_or(snapped.emitter_resistor_ohm);
                     }
                     let mut candidate_input = input.clone();
                     candidate_input.values = values;
@@ -344,7 +373,8 @@ fn self_bias_first_cut(
 ) -> Result<(super::handbook::ProcedureResult, f64), SynthesisError> {
     let r = &input.requirements;
     let vcc = input.supplies.collector_supply_v;
-    let cutoff = input.transistor.vbe_cutoff_v + input.transistor.vbe_tempco_v_per_c * (input.conditions.t_max_c - 25.0);
+    let cutoff = input.transistor.vbe_cutoff_v
+        + input.transistor.vbe_tempco_v_per_c * (input.conditions.t_max_c - 25.0);
     let mut emitter_v = 0.1 * vcc;
     for _ in 0..12 {
         let rc = (vcc - emitter_v - vce_sat) / collector_current;
@@ -360,7 +390,11 @@ fn self_bias_first_cut(
         let vb_off = (emitter_v + vce_sat) * r2 / (r1 + r2);
         if emitter_v + cutoff - vb_off >= r.min_cutoff_margin_v * 1.5 {
             return Ok((
-                super::handbook::ProcedureResult { collector_resistor_ohm: rc, cross_resistor_ohm: r1, base_resistor_ohm: r2 },
+                super::handbook::ProcedureResult {
+                    collector_resistor_ohm: rc,
+                    cross_resistor_ohm: r1,
+                    base_resistor_ohm: r2,
+                },
                 re,
             ));
         }

@@ -125,7 +125,9 @@ pub fn apply(design: &StageDesign, corner: &mut Corner, parameter: Parameter, se
         Parameter::BaseResistor(s) => {
             corner.base_resistor_ohm[side(s)] = nominal.base_resistor_ohm[side(s)] * factor(r_tol)
         }
-        Parameter::EmitterResistor => corner.emitter_resistor_ohm = nominal.emitter_resistor_ohm * factor(r_tol),
+        Parameter::EmitterResistor => {
+            corner.emitter_resistor_ohm = nominal.emitter_resistor_ohm * factor(r_tol)
+        }
         Parameter::CollectorSupply => corner.collector_supply_v = nominal.collector_supply_v * factor(s_tol),
         Parameter::BiasSupply => corner.bias_supply_v = nominal.bias_supply_v * factor(s_tol),
         Parameter::Hfe(s) => corner.spread[side(s)].hfe = spread,
@@ -232,7 +234,10 @@ fn search(
             // Temperature is always tried, since its effects can cancel at the ends and show
             // in between.
             let inert = sensitivities.get(index).is_some_and(|&(low, high)| match (low, high) {
-                (Some(l), Some(h)) => (l - nominal).abs() <= 1e-12 * nominal.abs().max(1e-30) && (h - nominal).abs() <= 1e-12 * nominal.abs().max(1e-30),
+                (Some(l), Some(h)) => {
+                    (l - nominal).abs() <= 1e-12 * nominal.abs().max(1e-30)
+                        && (h - nominal).abs() <= 1e-12 * nominal.abs().max(1e-30)
+                }
                 _ => false,
             });
             if skip_inert && inert && parameter != Parameter::Temperature {
@@ -312,7 +317,8 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
     let nominal_corner = Corner::nominal(design, nominal_temperature_c(design));
     let (nominal_metrics, _) = evaluate_corner(design, &nominal_corner)?;
     let mut total_evaluations = 1;
-    let mut one_at_a_time: Vec<(Option<CornerMetrics>, Option<CornerMetrics>)> = Vec::with_capacity(params.len());
+    let mut one_at_a_time: Vec<(Option<CornerMetrics>, Option<CornerMetrics>)> =
+        Vec::with_capacity(params.len());
     let mut dissipation = nominal_metrics.resistor_dissipation_w.clone();
     let mut supply_power_w = nominal_metrics.supply_power_w;
     let transistor_dissipation = std::cell::Cell::new(nominal_metrics.max_transistor_dissipation_w);
@@ -341,9 +347,10 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
         one_at_a_time.push(pair);
     }
     // Margins share corners (and later passes revisit them): evaluate each corner once.
-    let mut cache: std::collections::HashMap<Vec<Setting>, Option<CornerMetrics>> = std::collections::HashMap::new();
+    let mut cache: std::collections::HashMap<Vec<Setting>, Option<CornerMetrics>> =
+        std::collections::HashMap::new();
     let cached_metrics = |cache: &mut std::collections::HashMap<Vec<Setting>, Option<CornerMetrics>>,
-                              assignment: &[(Parameter, Setting)]|
+                          assignment: &[(Parameter, Setting)]|
      -> Option<CornerMetrics> {
         let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
         cache
@@ -387,7 +394,10 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
             .zip(&one_at_a_time)
             .map(|(&p, (low, high))| {
                 let pick = |m: &Option<CornerMetrics>| {
-                    m.as_ref().and_then(|m| m.resistor_dissipation_w.get(index)).map(|(_, d)| *d).unwrap_or(0.0)
+                    m.as_ref()
+                        .and_then(|m| m.resistor_dissipation_w.get(index))
+                        .map(|(_, d)| *d)
+                        .unwrap_or(0.0)
                 };
                 (p, if pick(high) >= pick(low) { Setting::High } else { Setting::Low })
             })
@@ -400,7 +410,8 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
                 }
             }
             supply_power_w = supply_power_w.max(metrics.supply_power_w);
-            transistor_dissipation.set(transistor_dissipation.get().max(metrics.max_transistor_dissipation_w));
+            transistor_dissipation
+                .set(transistor_dissipation.get().max(metrics.max_transistor_dissipation_w));
         }
     }
     // Loop gain with the exact model.
@@ -415,21 +426,32 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
         let sensitivities: Vec<(Option<f64>, Option<f64>)> = params
             .iter()
             .map(|&p| {
-                let at = |s: Setting| loop_gain_at(design, base_model, &corner_for(design, &[(p, s)])).map(|g| g.loop_gain);
+                let at = |s: Setting| {
+                    loop_gain_at(design, base_model, &corner_for(design, &[(p, s)])).map(|g| g.loop_gain)
+                };
                 (at(Setting::Low), at(Setting::High))
             })
             .collect();
         total_evaluations += 2 * params.len();
-        let mut gain_cache: std::collections::HashMap<Vec<Setting>, Option<f64>> = std::collections::HashMap::new();
+        let mut gain_cache: std::collections::HashMap<Vec<Setting>, Option<f64>> =
+            std::collections::HashMap::new();
         let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
             let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
-            *gain_cache
-                .entry(key)
-                .or_insert_with(|| loop_gain_at(design, base_model, &corner_for(design, assignment)).map(|g| g.loop_gain))
+            *gain_cache.entry(key).or_insert_with(|| {
+                loop_gain_at(design, base_model, &corner_for(design, assignment)).map(|g| g.loop_gain)
+            })
         });
         let temperature_c = corner_for(design, &corner).temperature_c;
         total_evaluations += evaluations;
-        margins.push(WorstCase { kind: MarginKind::LoopGain, nominal, worst, corner, temperature_c, limiting, evaluations });
+        margins.push(WorstCase {
+            kind: MarginKind::LoopGain,
+            nominal,
+            worst,
+            corner,
+            temperature_c,
+            limiting,
+            evaluations,
+        });
     } else {
         margins.push(WorstCase {
             kind: MarginKind::LoopGain,

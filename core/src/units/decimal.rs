@@ -27,11 +27,7 @@ impl RoundedDecimal {
         let (mantissa, exponent_text) = text.split_once('e')?;
         let exponent = exponent_text.parse::<i32>().ok()?;
         let digits: String = mantissa.chars().filter(char::is_ascii_digit).collect();
-        Some(RoundedDecimal {
-            negative: value.is_sign_negative(),
-            digits,
-            exponent,
-        })
+        Some(RoundedDecimal { negative: value.is_sign_negative(), digits, exponent })
     }
 
     /// Splits the digits into integer and fraction text with `integer_digit_count` digits
@@ -78,14 +74,7 @@ mod tests {
     #[test]
     fn rounding_keeps_sign_and_exponent_of_small_values() {
         let result = rounded(-0.004_749, 2);
-        assert_eq!(
-            result,
-            Some(RoundedDecimal {
-                negative: true,
-                digits: "47".to_string(),
-                exponent: -3
-            })
-        );
+        assert_eq!(result, Some(RoundedDecimal { negative: true, digits: "47".to_string(), exponent: -3 }));
     }
 
     #[test]
@@ -104,11 +93,7 @@ mod tests {
 
     #[test]
     fn split_pads_and_trims() {
-        let value = RoundedDecimal {
-            negative: false,
-            digits: "470".to_string(),
-            exponent: 0,
-        };
+        let value = RoundedDecimal { negative: false, digits: "470".to_string(), exponent: 0 };
         assert_eq!(value.split_at_point(1), ("4".into(), "7".into()));
         assert_eq!(value.split_at_point(0), ("".into(), "47".into()));
         assert_eq!(value.split_at_point(-2), ("".into(), "0047".into()));

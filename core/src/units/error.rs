@@ -21,15 +21,10 @@ impl fmt::Display for CodeProblem {
     fn fmt(&self, formatter: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             CodeProblem::MissingLetter => formatter.write_str("it has no multiplier letter"),
-            CodeProblem::MoreThanOneLetter => {
-                formatter.write_str("it has more than one multiplier letter")
-            }
+            CodeProblem::MoreThanOneLetter => formatter.write_str("it has more than one multiplier letter"),
             CodeProblem::NoDigits => formatter.write_str("it has no digits"),
             CodeProblem::UnexpectedCharacter(character) => {
-                write!(
-                    formatter,
-                    "'{character}' is not a digit or a multiplier letter"
-                )
+                write!(formatter, "'{character}' is not a digit or a multiplier letter")
             }
         }
     }
@@ -47,17 +42,9 @@ pub enum QuantityError {
     /// Occurs when the number holds more than one decimal point ("1.2.3").
     MultipleDecimalPoints { text: String },
     /// Occurs when the text names a unit other than the expected one ("10 V" where ohms are expected).
-    UnitMismatch {
-        text: String,
-        found_unit: Unit,
-        expected_unit: Unit,
-    },
+    UnitMismatch { text: String, found_unit: Unit, expected_unit: Unit },
     /// Occurs when what follows the number is neither an SI prefix nor the unit symbol, or has trailing garbage.
-    UnknownSuffix {
-        text: String,
-        suffix: String,
-        expected_unit: Unit,
-    },
+    UnknownSuffix { text: String, suffix: String, expected_unit: Unit },
     /// Occurs when a resistance carries a bare lowercase "m" ("1m"), which could mean milliohm or megohm.
     AmbiguousResistancePrefix { text: String },
     /// Occurs when a capacitance carries a bare "M" ("1M"): megafarads are almost certainly a slip for µ or m.
@@ -65,11 +52,7 @@ pub enum QuantityError {
     /// Occurs when an IEC 60062 code is requested for a unit other than ohm or farad.
     CodeUnsupportedUnit { unit: Unit },
     /// Occurs when text is not a well-formed IEC 60062 code for the unit.
-    InvalidCode {
-        text: String,
-        unit: Unit,
-        problem: CodeProblem,
-    },
+    InvalidCode { text: String, unit: Unit, problem: CodeProblem },
     /// Occurs when a value cannot be written as an IEC 60062 code: negative, not finite, zero
     /// capacitance, or beyond what the multiplier letters reach.
     CodeValueNotRepresentable { value: f64, unit: Unit },
@@ -92,10 +75,7 @@ impl fmt::Display for QuantityError {
                 expected_unit.plural_name(),
                 expected_unit.example_entry()
             ),
-            QuantityError::NotANumber {
-                text,
-                expected_unit,
-            } => write!(
+            QuantityError::NotANumber { text, expected_unit } => write!(
                 formatter,
                 "\"{text}\" is not a number: expected digits with an optional sign, decimal point, \
                  exponent, SI prefix and unit symbol, such as \"{}\"",
@@ -110,11 +90,7 @@ impl fmt::Display for QuantityError {
                 formatter,
                 "\"{text}\" has more than one decimal point: expected at most one, as in \"4.7\""
             ),
-            QuantityError::UnitMismatch {
-                text,
-                found_unit,
-                expected_unit,
-            } => write!(
+            QuantityError::UnitMismatch { text, found_unit, expected_unit } => write!(
                 formatter,
                 "\"{text}\" is in {} ({}), but a value in {} ({}) was expected",
                 found_unit.plural_name(),
@@ -122,11 +98,7 @@ impl fmt::Display for QuantityError {
                 expected_unit.plural_name(),
                 expected_unit.symbol()
             ),
-            QuantityError::UnknownSuffix {
-                text,
-                suffix,
-                expected_unit,
-            } => write!(
+            QuantityError::UnknownSuffix { text, suffix, expected_unit } => write!(
                 formatter,
                 "\"{text}\": \"{suffix}\" is not an SI prefix or unit symbol; expected an optional \
                  prefix (p, n, u or µ, m, k or K, M, G) followed by an optional \"{}\", such as \"{}\"",
@@ -151,11 +123,7 @@ impl fmt::Display for QuantityError {
                 unit.plural_name(),
                 unit.symbol()
             ),
-            QuantityError::InvalidCode {
-                text,
-                unit,
-                problem,
-            } => write!(
+            QuantityError::InvalidCode { text, unit, problem } => write!(
                 formatter,
                 "\"{text}\" is not an IEC 60062 code for {}: {problem}; expected digits with one \
                  multiplier letter ({}) in place of the decimal point, such as \"{}\"",
@@ -163,25 +131,23 @@ impl fmt::Display for QuantityError {
                 code_letters_description(*unit),
                 if *unit == Unit::Farad { "2n2" } else { "4K7" }
             ),
-            QuantityError::CodeValueNotRepresentable { value, unit } => {
-                match code_value_range(*unit) {
-                    Some((lowest, below)) => write!(
-                        formatter,
-                        "{value} {} cannot be written as an IEC 60062 code: expected a finite value \
+            QuantityError::CodeValueNotRepresentable { value, unit } => match code_value_range(*unit) {
+                Some((lowest, below)) => write!(
+                    formatter,
+                    "{value} {} cannot be written as an IEC 60062 code: expected a finite value \
                          from {lowest:e} {} up to (not including) {below:e} {}{}",
-                        unit.symbol(),
-                        unit.symbol(),
-                        unit.symbol(),
-                        if *unit == Unit::Ohm { ", or exactly 0 (\"0R\")" } else { "" }
-                    ),
-                    None => write!(
-                        formatter,
-                        "{value} {} cannot be written as an IEC 60062 code: codes exist only for \
+                    unit.symbol(),
+                    unit.symbol(),
+                    unit.symbol(),
+                    if *unit == Unit::Ohm { ", or exactly 0 (\"0R\")" } else { "" }
+                ),
+                None => write!(
+                    formatter,
+                    "{value} {} cannot be written as an IEC 60062 code: codes exist only for \
                          ohms and farads",
-                        unit.symbol()
-                    ),
-                }
-            }
+                    unit.symbol()
+                ),
+            },
             QuantityError::InvalidSignificantDigits { requested } => write!(
                 formatter,
                 "{requested} significant digits requested: expected 1 to {CODE_MAXIMUM_DIGITS}"
@@ -190,10 +156,9 @@ impl fmt::Display for QuantityError {
                 formatter,
                 "\"{text}\" is not an E-series: expected one of E3, E6, E12, E24, E48, E96, E192"
             ),
-            QuantityError::SeriesValueNotPositive { value } => write!(
-                formatter,
-                "{value} has no E-series neighbour: expected a positive finite value"
-            ),
+            QuantityError::SeriesValueNotPositive { value } => {
+                write!(formatter, "{value} has no E-series neighbour: expected a positive finite value")
+            }
             QuantityError::SeriesOutOfRange { value } => write!(
                 formatter,
                 "no E-series value exists there for {value}: the result would lie beyond the range \

@@ -12,22 +12,13 @@ const RESISTOR_INPUT_LETTERS: [(char, i32); 6] =
     [('R', 0), ('K', 3), ('k', 3), ('M', 6), ('G', 9), ('T', 12)];
 
 /// Capacitor multiplier letters read by [`parse_code`]; micro in ASCII and both Unicode forms.
-const CAPACITOR_INPUT_LETTERS: [(char, i32); 7] = [
-    ('p', -12),
-    ('n', -9),
-    ('u', -6),
-    ('µ', -6),
-    ('μ', -6),
-    ('m', -3),
-    ('F', 0),
-];
+const CAPACITOR_INPUT_LETTERS: [(char, i32); 7] =
+    [('p', -12), ('n', -9), ('u', -6), ('µ', -6), ('μ', -6), ('m', -3), ('F', 0)];
 
 /// Letters written by [`format_code`], lowest multiplier first.
-const RESISTOR_OUTPUT_LETTERS: [(char, i32); 5] =
-    [('R', 0), ('K', 3), ('M', 6), ('G', 9), ('T', 12)];
+const RESISTOR_OUTPUT_LETTERS: [(char, i32); 5] = [('R', 0), ('K', 3), ('M', 6), ('G', 9), ('T', 12)];
 /// ASCII 'u' for micro so that codes stay printable on any label or terminal.
-const CAPACITOR_OUTPUT_LETTERS: [(char, i32); 5] =
-    [('p', -12), ('n', -9), ('u', -6), ('m', -3), ('F', 0)];
+const CAPACITOR_OUTPUT_LETTERS: [(char, i32); 5] = [('p', -12), ('n', -9), ('u', -6), ('m', -3), ('F', 0)];
 
 /// Tolerance letters and their tolerances as fractions.
 const TOLERANCE_LETTERS: [(char, f64); 8] = [
@@ -72,10 +63,7 @@ pub(crate) fn code_value_range(unit: Unit) -> Option<(f64, f64)> {
     let letters = output_letters(unit)?;
     let (_, lowest_exponent) = letters.first()?;
     let (_, highest_exponent) = letters.last()?;
-    Some((
-        10f64.powi(lowest_exponent - 3),
-        10f64.powi(highest_exponent + 3),
-    ))
+    Some((10f64.powi(lowest_exponent - 3), 10f64.powi(highest_exponent + 3)))
 }
 
 /// Whether text has the shape of a code: digits with exactly one multiplier letter of the
@@ -87,16 +75,10 @@ pub(crate) fn looks_like_code(text: &str, unit: Unit) -> bool {
         return false;
     };
     let is_letter = |character: char| letters.iter().any(|(letter, _)| *letter == character);
-    if !text
-        .chars()
-        .all(|character| character.is_ascii_digit() || is_letter(character))
-    {
+    if !text.chars().all(|character| character.is_ascii_digit() || is_letter(character)) {
         return false;
     }
-    let letter_count = text
-        .chars()
-        .filter(|character| is_letter(*character))
-        .count();
+    let letter_count = text.chars().filter(|character| is_letter(*character)).count();
     letter_count == 1 && text.chars().any(|character| character.is_ascii_digit())
 }
 
@@ -107,15 +89,10 @@ pub fn parse_code(text: &str, unit: Unit) -> Result<f64, QuantityError> {
     let letters = input_letters(unit).ok_or(QuantityError::CodeUnsupportedUnit { unit })?;
     let trimmed = text.trim();
     if trimmed.is_empty() {
-        return Err(QuantityError::Empty {
-            expected_unit: unit,
-        });
+        return Err(QuantityError::Empty { expected_unit: unit });
     }
-    let invalid = |problem: CodeProblem| QuantityError::InvalidCode {
-        text: trimmed.to_string(),
-        unit,
-        problem,
-    };
+    let invalid =
+        |problem: CodeProblem| QuantityError::InvalidCode { text: trimmed.to_string(), unit, problem };
     let mut found_letter: Option<(usize, char, i32)> = None;
     for (index, character) in trimmed.char_indices() {
         if character.is_ascii_digit() {
@@ -129,25 +106,18 @@ pub fn parse_code(text: &str, unit: Unit) -> Result<f64, QuantityError> {
         }
         found_letter = Some((index, character, *exponent));
     }
-    let (index, letter, exponent) =
-        found_letter.ok_or_else(|| invalid(CodeProblem::MissingLetter))?;
+    let (index, letter, exponent) = found_letter.ok_or_else(|| invalid(CodeProblem::MissingLetter))?;
     let before = trimmed.get(..index).unwrap_or_default();
     let after = trimmed.get(index + letter.len_utf8()..).unwrap_or_default();
     if before.is_empty() && after.is_empty() {
         return Err(invalid(CodeProblem::NoDigits));
     }
     let integer = if before.is_empty() { "0" } else { before };
-    let mantissa = if after.is_empty() {
-        integer.to_string()
-    } else {
-        format!("{integer}.{after}")
-    };
-    let value = decimal_to_f64(&mantissa, i64::from(exponent))
-        .ok_or_else(|| invalid(CodeProblem::NoDigits))?;
+    let mantissa = if after.is_empty() { integer.to_string() } else { format!("{integer}.{after}") };
+    let value =
+        decimal_to_f64(&mantissa, i64::from(exponent)).ok_or_else(|| invalid(CodeProblem::NoDigits))?;
     if !value.is_finite() {
-        return Err(QuantityError::NotFinite {
-            text: trimmed.to_string(),
-        });
+        return Err(QuantityError::NotFinite { text: trimmed.to_string() });
     }
     Ok(value)
 }
@@ -159,16 +129,10 @@ pub fn parse_code(text: &str, unit: Unit) -> Result<f64, QuantityError> {
 /// Following common practice, a single leading digit with nothing after the letter gets a
 /// "0" so the letter is not last ("1K0", "1p0"), while "10K" and "100n" stay as they are.
 /// Zero ohms is "0R" (the zero-ohm link); zero farads has no code.
-pub fn format_code(
-    value: f64,
-    unit: Unit,
-    significant_digits: usize,
-) -> Result<String, QuantityError> {
+pub fn format_code(value: f64, unit: Unit, significant_digits: usize) -> Result<String, QuantityError> {
     let letters = output_letters(unit).ok_or(QuantityError::CodeUnsupportedUnit { unit })?;
     if significant_digits == 0 || significant_digits > CODE_MAXIMUM_DIGITS {
-        return Err(QuantityError::InvalidSignificantDigits {
-            requested: significant_digits,
-        });
+        return Err(QuantityError::InvalidSignificantDigits { requested: significant_digits });
     }
     let not_representable = QuantityError::CodeValueNotRepresentable { value, unit };
     if unit == Unit::Ohm && value == 0.0 {
@@ -201,10 +165,7 @@ pub fn format_code(
 /// B 0.1 %, C 0.25 %, D 0.5 %, F 1 %, G 2 %, J 5 %, K 10 %, M 20 %. Letters are upper case
 /// only, as the standard prints them; anything else gives `None`.
 pub fn tolerance_from_letter(letter: char) -> Option<f64> {
-    TOLERANCE_LETTERS
-        .iter()
-        .find(|(candidate, _)| *candidate == letter)
-        .map(|(_, tolerance)| *tolerance)
+    TOLERANCE_LETTERS.iter().find(|(candidate, _)| *candidate == letter).map(|(_, tolerance)| *tolerance)
 }
 
 /// The IEC 60062 letter for a tolerance fraction, matched within 1e-9 relative; `None` when
@@ -260,9 +221,6 @@ mod tests {
     fn tiny_values_get_leading_zeros_after_the_letter() {
         assert_eq!(format_code(0.047, Unit::Ohm, 2), Ok("R047".to_string()));
         assert_eq!(format_code(0.001, Unit::Ohm, 2), Ok("R001".to_string()));
-        assert_eq!(
-            format_code(4.7e-15, Unit::Farad, 2),
-            Ok("p0047".to_string())
-        );
+        assert_eq!(format_code(4.7e-15, Unit::Farad, 2), Ok("p0047".to_string()));
     }
 }

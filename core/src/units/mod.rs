@@ -30,15 +30,8 @@ pub enum Unit {
 
 impl Unit {
     /// Every unit, for iteration in tests and user interfaces.
-    pub const ALL: [Unit; 7] = [
-        Unit::Ohm,
-        Unit::Farad,
-        Unit::Volt,
-        Unit::Ampere,
-        Unit::Second,
-        Unit::Hertz,
-        Unit::Watt,
-    ];
+    pub const ALL: [Unit; 7] =
+        [Unit::Ohm, Unit::Farad, Unit::Volt, Unit::Ampere, Unit::Second, Unit::Hertz, Unit::Watt];
 
     /// SI symbol; the ohm uses U+03A9 GREEK CAPITAL LETTER OMEGA, which Unicode prefers over U+2126.
     pub fn symbol(self) -> &'static str {

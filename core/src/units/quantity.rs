@@ -9,16 +9,8 @@ use super::Unit;
 const EXPONENT_CLAMP: i64 = 100_000;
 
 /// Engineering prefixes used when formatting, lowest first; micro is U+00B5 MICRO SIGN.
-const OUTPUT_PREFIXES: [(i32, &str); 8] = [
-    (-12, "p"),
-    (-9, "n"),
-    (-6, "µ"),
-    (-3, "m"),
-    (0, ""),
-    (3, "k"),
-    (6, "M"),
-    (9, "G"),
-];
+const OUTPUT_PREFIXES: [(i32, &str); 8] =
+    [(-12, "p"), (-9, "n"), (-6, "µ"), (-3, "m"), (0, ""), (3, "k"), (6, "M"), (9, "G")];
 
 /// Reads a value in `unit` from text such as "4.7k", "4.7 kΩ", "2.2 µF", "1.5e-9 F", "-5 V"
 /// or an IEC 60062 code ("4K7", "2n2") where the unit has codes.
@@ -29,9 +21,7 @@ const OUTPUT_PREFIXES: [(i32, &str); 8] = [
 pub fn parse_quantity(text: &str, unit: Unit) -> Result<f64, QuantityError> {
     let trimmed = text.trim();
     if trimmed.is_empty() {
-        return Err(QuantityError::Empty {
-            expected_unit: unit,
-        });
+        return Err(QuantityError::Empty { expected_unit: unit });
     }
     if iec60062::looks_like_code(trimmed, unit) {
         return iec60062::parse_code(trimmed, unit);
@@ -39,16 +29,10 @@ pub fn parse_quantity(text: &str, unit: Unit) -> Result<f64, QuantityError> {
     let number = scan_number(trimmed, unit)?;
     let prefix_exponent = parse_suffix(trimmed, number.rest.trim_start(), unit)?;
     let total_exponent = number.exponent + i64::from(prefix_exponent);
-    let value = decimal_to_f64(number.mantissa, total_exponent).ok_or_else(|| {
-        QuantityError::NotANumber {
-            text: trimmed.to_string(),
-            expected_unit: unit,
-        }
-    })?;
+    let value = decimal_to_f64(number.mantissa, total_exponent)
+        .ok_or_else(|| QuantityError::NotANumber { text: trimmed.to_string(), expected_unit: unit })?;
     if !value.is_finite() {
-        return Err(QuantityError::NotFinite {
-            text: trimmed.to_string(),
-        });
+        return Err(QuantityError::NotFinite { text: trimmed.to_string() });
     }
     Ok(value)
 }
@@ -85,10 +69,7 @@ pub fn format_quantity_digits(value: f64, unit: Unit, significant_digits: usize)
         return format!("{sign}{mantissa}e{} {symbol}", rounded.exponent);
     };
     let (integer, fraction) = rounded.split_at_point(rounded.exponent - engineering_exponent + 1);
-    format!(
-        "{sign}{} {prefix}{symbol}",
-        join_number(&integer, &fraction)
-    )
+    format!("{sign}{} {prefix}{symbol}", join_number(&integer, &fraction))
 }
 
 fn join_number(integer: &str, fraction: &str) -> String {
@@ -125,33 +106,19 @@ fn scan_number(text: &str, unit: Unit) -> Result<ScannedNumber<'_>, QuantityErro
         position += 1;
     }
     if decimal_point_count > 1 {
-        return Err(QuantityError::MultipleDecimalPoints {
-            text: text.to_string(),
-        });
+        return Err(QuantityError::MultipleDecimalPoints { text: text.to_string() });
     }
     if digit_count == 0 {
-        let after_sign = text
-            .get(sign_length..)
-            .unwrap_or_default()
-            .to_ascii_lowercase();
+        let after_sign = text.get(sign_length..).unwrap_or_default().to_ascii_lowercase();
         if after_sign.starts_with("nan") || after_sign.starts_with("inf") {
-            return Err(QuantityError::NotFinite {
-                text: text.to_string(),
-            });
+            return Err(QuantityError::NotFinite { text: text.to_string() });
         }
-        return Err(QuantityError::NotANumber {
-            text: text.to_string(),
-            expected_unit: unit,
-        });
+        return Err(QuantityError::NotANumber { text: text.to_string(), expected_unit: unit });
     }
     // Positions so far sit on ASCII bytes, so these slices are on character boundaries.
     let mantissa = text.get(..position).unwrap_or_default();
     let (exponent, exponent_end) = scan_exponent(bytes, position);
-    Ok(ScannedNumber {
-        mantissa,
-        exponent,
-        rest: text.get(exponent_end..).unwrap_or_default(),
-    })
+    Ok(ScannedNumber { mantissa, exponent, rest: text.get(exponent_end..).unwrap_or_default() })
 }
 
 /// Reads "e-9" / "E+3" at `start`; an 'e' not followed by digits is left for the suffix
@@ -219,11 +186,8 @@ fn parse_suffix(text: &str, suffix: &str, expected_unit: Unit) -> Result<i32, Qu
         check_unit(text, found_unit, expected_unit)?;
         return Ok(0);
     }
-    let unknown_suffix = || QuantityError::UnknownSuffix {
-        text: text.to_string(),
-        suffix: suffix.to_string(),
-        expected_unit,
-    };
+    let unknown_suffix =
+        || QuantityError::UnknownSuffix { text: text.to_string(), suffix: suffix.to_string(), expected_unit };
     let mut characters = suffix.chars();
     let Some(prefix) = characters.next() else {
         return Ok(0);
@@ -232,14 +196,10 @@ fn parse_suffix(text: &str, suffix: &str, expected_unit: Unit) -> Result<i32, Qu
     let unit_text = characters.as_str();
     if unit_text.is_empty() {
         if expected_unit == Unit::Ohm && prefix == 'm' {
-            return Err(QuantityError::AmbiguousResistancePrefix {
-                text: text.to_string(),
-            });
+            return Err(QuantityError::AmbiguousResistancePrefix { text: text.to_string() });
         }
         if expected_unit == Unit::Farad && prefix == 'M' {
-            return Err(QuantityError::ImplausibleCapacitancePrefix {
-                text: text.to_string(),
-            });
+            return Err(QuantityError::ImplausibleCapacitancePrefix { text: text.to_string() });
         }
         return Ok(exponent);
     }
@@ -252,11 +212,7 @@ fn check_unit(text: &str, found_unit: Unit, expected_unit: Unit) -> Result<(), Q
     if found_unit == expected_unit {
         return Ok(());
     }
-    Err(QuantityError::UnitMismatch {
-        text: text.to_string(),
-        found_unit,
-        expected_unit,
-    })
+    Err(QuantityError::UnitMismatch { text: text.to_string(), found_unit, expected_unit })
 }
 
 #[cfg(test)]
@@ -266,23 +222,13 @@ mod tests {
     #[test]
     fn scanner_splits_number_exponent_and_rest() {
         let scanned = scan_number("-4.7e-3 kΩ", Unit::Ohm);
-        assert_eq!(
-            scanned,
-            Ok(ScannedNumber {
-                mantissa: "-4.7",
-                exponent: -3,
-                rest: " kΩ"
-            })
-        );
+        assert_eq!(scanned, Ok(ScannedNumber { mantissa: "-4.7", exponent: -3, rest: " kΩ" }));
     }
 
     #[test]
     fn scanner_leaves_an_e_without_digits_in_the_rest() {
         let scanned = scan_number("4.7e", Unit::Volt);
-        assert_eq!(
-            scanned.map(|number| (number.exponent, number.rest)),
-            Ok((0, "e"))
-        );
+        assert_eq!(scanned.map(|number| (number.exponent, number.rest)), Ok((0, "e")));
     }
 
     #[test]
@@ -297,10 +243,7 @@ mod tests {
             parse_quantity("1e99999999999999999999", Unit::Volt),
             Err(QuantityError::NotFinite { .. })
         ));
-        assert_eq!(
-            parse_quantity("1e-99999999999999999999", Unit::Volt),
-            Ok(0.0)
-        );
+        assert_eq!(parse_quantity("1e-99999999999999999999", Unit::Volt), Ok(0.0));
     }
 
     #[test]

@@ -72,15 +72,8 @@ pub enum ESeries {
 
 impl ESeries {
     /// Every series, coarsest first.
-    pub const ALL: [ESeries; 7] = [
-        ESeries::E3,
-        ESeries::E6,
-        ESeries::E12,
-        ESeries::E24,
-        ESeries::E48,
-        ESeries::E96,
-        ESeries::E192,
-    ];
+    pub const ALL: [ESeries; 7] =
+        [ESeries::E3, ESeries::E6, ESeries::E12, ESeries::E24, ESeries::E48, ESeries::E96, ESeries::E192];
 
     /// The series' name, e.g. "E24".
     pub fn name(self) -> &'static str {
@@ -101,9 +94,7 @@ impl ESeries {
         ESeries::ALL
             .into_iter()
             .find(|series| series.name().eq_ignore_ascii_case(trimmed))
-            .ok_or_else(|| QuantityError::UnknownSeries {
-                text: trimmed.to_string(),
-            })
+            .ok_or_else(|| QuantityError::UnknownSeries { text: trimmed.to_string() })
     }
 
     /// The values of one decade, 1.0 ≤ m < 10, ascending.
@@ -175,14 +166,11 @@ impl ESeries {
         if !(low.is_finite() && high.is_finite() && low > 0.0 && high >= low) {
             return Vec::new();
         }
-        let (Ok(first), Ok(last)) = (self.next_up_position(low), self.next_down_position(high))
-        else {
+        let (Ok(first), Ok(last)) = (self.next_up_position(low), self.next_down_position(high)) else {
             return Vec::new();
         };
         // Positions whose value over- or underflows f64 are simply not part of the answer.
-        (first..=last)
-            .filter_map(|position| self.value_at(position).ok())
-            .collect()
+        (first..=last).filter_map(|position| self.value_at(position).ok()).collect()
     }
 
     fn length(self) -> i64 {
@@ -192,9 +180,7 @@ impl ESeries {
     /// The mantissa in hundredths (4.7 → 470): exact integers free of binary fractions.
     fn hundredths_at(self, index_in_decade: i64) -> Option<i64> {
         let index = usize::try_from(index_in_decade).ok()?;
-        self.mantissas()
-            .get(index)
-            .map(|mantissa| (mantissa * 100.0).round() as i64)
+        self.mantissas().get(index).map(|mantissa| (mantissa * 100.0).round() as i64)
     }
 
     /// Series values are numbered across decades: position `decade * n + i` is the i-th
@@ -203,13 +189,11 @@ impl ESeries {
         let (value, decade_exponent) = self.approximate_value_at(position);
         let out_of_range = QuantityError::SeriesOutOfRange { value };
         let index_in_decade = position.rem_euclid(self.length());
-        let hundredths = self
-            .hundredths_at(index_in_decade)
-            .ok_or(out_of_range.clone())?;
+        let hundredths = self.hundredths_at(index_in_decade).ok_or(out_of_range.clone())?;
         // Parsing the decimal text gives the f64 nearest the exact value, so 4700.0 and not
         // 4699.999999999999 as a product of binary floats could.
-        let exact = decimal_to_f64(&hundredths.to_string(), decade_exponent - 2)
-            .ok_or(out_of_range.clone())?;
+        let exact =
+            decimal_to_f64(&hundredths.to_string(), decade_exponent - 2).ok_or(out_of_range.clone())?;
         if !exact.is_finite() || exact == 0.0 {
             return Err(out_of_range);
         }
@@ -252,8 +236,7 @@ impl ESeries {
                 best = Some((position, distance));
             }
         }
-        best.map(|(position, _)| position)
-            .ok_or(QuantityError::SeriesOutOfRange { value })
+        best.map(|(position, _)| position).ok_or(QuantityError::SeriesOutOfRange { value })
     }
 
     fn next_up_position(self, value: f64) -> Result<i64, QuantityError> {
