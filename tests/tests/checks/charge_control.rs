@@ -58,7 +58,12 @@ fn rise_fall_and_time_to_saturation_match_hand_computed_values() {
     //   ts     = τS·ln[(IB1 + IB2)/(IC/β + IB2)]              = 100 ns·ln(1.5/1.2)  = 22.314355 ns
     // Tolerance 1e-6 relative: the literals carry 8 significant figures.
     let p = point(1e-9, 50.0, 100e-9, 10e-3, 0.5e-3, 1e-3);
-    assert_relative(p.time_to_saturation_s().expect("IB1 > IC/β saturates"), 25.541281e-9, 1e-6, "time to saturation");
+    assert_relative(
+        p.time_to_saturation_s().expect("IB1 > IC/β saturates"),
+        25.541281e-9,
+        1e-6,
+        "time to saturation",
+    );
     assert_relative(p.rise_time_s().expect("IB1 > 0.9·IC/β"), 20.273255e-9, 1e-6, "rise time");
     assert_relative(p.fall_time_s(), 7.2855906e-9, 1e-6, "fall time");
     assert_relative(p.storage_time_s(), 22.314355e-9, 1e-6, "storage time");
@@ -116,7 +121,12 @@ fn commutating_capacitor_rule_reproduces_bell_example_13_4() {
     assert!(slope > 0.0, "storage time must grow with τS");
     let tau_s = 50e-9 + (260e-9 - ta) / slope;
     let bell = bell_estimate(tau_s, 0.0);
-    assert_relative(bell.switching_time_s.expect("switching time"), 260e-9, 1e-9, "constructed switching time");
+    assert_relative(
+        bell.switching_time_s.expect("switching time"),
+        260e-9,
+        1e-9,
+        "constructed switching time",
+    );
     // Bell quotes C1 ≈ 258 pF (10 · 260 ns / 10.086 kΩ = 257.79 pF): 0.5 % covers his rounding.
     assert_relative(bell.commutating_rule_f.expect("rule C1"), 258e-12, 0.005, "Bell ex. 13.4 C1");
 }

@@ -1,7 +1,9 @@
 //! Checks of the Ebers–Moll model: saturation voltage (Jaeger & Blalock), datasheet derivation, Moll's storage constant and IS(T).
 
 use flipwright::device::archetypes::{self, TRANSISTOR_ARCHETYPE_IDS};
-use flipwright::device::ebers_moll::{saturation_voltage, scale_saturation_current, storage_time_constant, EbersMoll};
+use flipwright::device::ebers_moll::{
+    saturation_voltage, scale_saturation_current, storage_time_constant, EbersMoll,
+};
 use flipwright::device::Polarity;
 
 use crate::handbook::assert_relative;
@@ -64,8 +66,14 @@ fn solve_increasing(mut f: impl FnMut(f64) -> f64, target: f64, mut low: f64, mu
 /// to give IB; then bisect VCE until IC matches (at fixed IB, IC rises from below zero at
 /// VCE = 0 towards βF·IB in the active region).
 fn saturated_junctions(model: &EbersMoll, ic: f64, ib: f64) -> (f64, f64) {
-    let vbe_for = |vce: f64| solve_increasing(|vbe| model.evaluate(vbe, vbe - vce).base_current_a, ib, -0.5, 1.5);
-    let vce = solve_increasing(|vce| model.evaluate(vbe_for(vce), vbe_for(vce) - vce).collector_current_a, ic, 0.0, 1.0);
+    let vbe_for =
+        |vce: f64| solve_increasing(|vbe| model.evaluate(vbe, vbe - vce).base_current_a, ib, -0.5, 1.5);
+    let vce = solve_increasing(
+        |vce| model.evaluate(vbe_for(vce), vbe_for(vce) - vce).collector_current_a,
+        ic,
+        0.0,
+        1.0,
+    );
     let vbe = vbe_for(vce);
     (vbe, vbe - vce)
 }
@@ -78,10 +86,17 @@ fn saturation_voltage_matches_jaeger_blalock_stated_case() {
     assert!((got - 66.958e-3).abs() < 0.5e-6, "VCE(sat) {got}");
     // Same formula, other cases, against the test's own evaluation (1e-12: same arithmetic
     // up to operation order).
-    for (forced, beta_f, beta_r) in [(10.0, 100.0, 1.0), (1.0, 50.0, 0.1), (40.0, 50.0, 5.0), (5.0, 300.0, 0.02)] {
+    for (forced, beta_f, beta_r) in
+        [(10.0, 100.0, 1.0), (1.0, 50.0, 0.1), (40.0, 50.0, 5.0), (5.0, 300.0, 0.02)]
+    {
         let v = vt(25.0);
         let got = saturation_voltage(v, forced, beta_f, beta_r).expect("saturated");
-        assert_relative(got, jaeger_blalock(v, forced, beta_f, beta_r), 1e-12, &format!("βf {forced}, βF {beta_f}, βR {beta_r}"));
+        assert_relative(
+            got,
+            jaeger_blalock(v, forced, beta_f, beta_r),
+            1e-12,
+            &format!("βf {forced}, βF {beta_f}, βR {beta_r}"),
+        );
     }
 }
 
@@ -158,7 +173,12 @@ fn derived_models_reproduce_the_datasheet_storage_constant_by_molls_relation() {
         let moll = (omega_n + omega_i) / (omega_n * omega_i * (1.0 - alpha_n * alpha_i));
         assert_relative(moll, tau_s, 1e-9, &format!("{id}: Moll's frequency form"));
         // τF = 1/(2π·fT) (domain brief §4, common practice).
-        assert_relative(model.forward_transit_s, 1.0 / (2.0 * std::f64::consts::PI * sheet.ft_hz), 1e-12, &format!("{id}: τF"));
+        assert_relative(
+            model.forward_transit_s,
+            1.0 / (2.0 * std::f64::consts::PI * sheet.ft_hz),
+            1e-12,
+            &format!("{id}: τF"),
+        );
     }
 }
 
@@ -187,7 +207,12 @@ fn saturation_current_follows_the_band_gap_law() {
     // The model's own temperature scaling uses the same law (emission coefficient 1).
     let model = intrinsic(100.0, 1.0, 25.0);
     let hot = model.at_temperature(35.0, 0.0, 10.0);
-    assert_relative(hot.saturation_current_a / model.saturation_current_a, is_ratio(25.0, 35.0, 1.11), 1e-12, "at_temperature");
+    assert_relative(
+        hot.saturation_current_a / model.saturation_current_a,
+        is_ratio(25.0, 35.0, 1.11),
+        1e-12,
+        "at_temperature",
+    );
     assert_eq!(hot.temperature_c, 35.0);
 }
 
@@ -198,7 +223,9 @@ fn base_emitter_voltage_falls_about_two_millivolts_per_degree() {
     // between 25 and 35 °C at 1 mA, in the forward-active region (VBC = −2 V).
     let sheet = archetypes::transistor("si-npn-switch-40v").expect("archetype");
     let model = EbersMoll::from_datasheet(&sheet).expect("model").model;
-    let vbe_at = |m: &EbersMoll| solve_increasing(|vbe| m.evaluate(vbe, vbe - 2.0).collector_current_a, 1e-3, 0.0, 1.2);
+    let vbe_at = |m: &EbersMoll| {
+        solve_increasing(|vbe| m.evaluate(vbe, vbe - 2.0).collector_current_a, 1e-3, 0.0, 1.2)
+    };
     let cold = vbe_at(&model);
     let hot = vbe_at(&model.at_temperature(35.0, sheet.hfe_tempco_per_c, sheet.icbo_doubling_c));
     let slope = (hot - cold) / 10.0;

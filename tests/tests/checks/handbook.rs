@@ -84,7 +84,12 @@ pub(crate) fn fixed_bias_input(
         transistor,
         diode: archetypes::diode("si-signal-diode").expect("shipped diode archetype"),
         supplies: Supplies { collector_supply_v: vcc, bias_supply_v: vbb, tolerance: 0.0 },
-        conditions: Conditions { t_min_c: 25.0, t_max_c: 25.0, resistor_tolerance: 0.0, capacitor_tolerance: 0.0 },
+        conditions: Conditions {
+            t_min_c: 25.0,
+            t_max_c: 25.0,
+            resistor_tolerance: 0.0,
+            capacitor_tolerance: 0.0,
+        },
         requirements: plain_requirements(BiasScheme::Fixed),
         loads: [Load::None, Load::None],
         values: StageValues {
@@ -111,7 +116,10 @@ pub(crate) fn named<N: AsRef<str>>(list: &[(N, f64)], name: &str) -> f64 {
 /// Demands `got` within `relative` of `expected`.
 pub(crate) fn assert_relative(got: f64, expected: f64, relative: f64, what: &str) {
     let error = (got - expected).abs() / expected.abs();
-    assert!(error <= relative, "{what}: got {got}, expected {expected} (relative error {error:.3e} > {relative:e})");
+    assert!(
+        error <= relative,
+        "{what}: got {got}, expected {expected} (relative error {error:.3e} > {relative:e})"
+    );
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -168,7 +176,8 @@ fn published_procedure_reproduces_the_worked_examples() {
 /// c·R1² + [c·(RC + R2) − a − d]·R1 + [c·RC·R2 − a·R2 − d·RC] = 0 with a = hFE·(VCC − VBE),
 /// c = hFE·(VBE + VBB)/R2 + k·(VCC − VCE)/RC, d = k·(VCE + VBB). Returns the positive root.
 fn exact_balance_r1(input: &ProcedureInput, rc: f64, r2: f64) -> f64 {
-    let (vcc, vbb, vce, vbe) = (input.collector_supply_v, input.bias_supply_v, input.vce_sat_v, input.vbe_sat_v);
+    let (vcc, vbb, vce, vbe) =
+        (input.collector_supply_v, input.bias_supply_v, input.vce_sat_v, input.vbe_sat_v);
     let (hfe, k) = (input.hfe_min, input.overdrive);
     let a = hfe * (vcc - vbe);
     let c = hfe * (vbe + vbb) / r2 + k * (vcc - vce) / rc;
@@ -185,25 +194,43 @@ fn exact_balance_r1(input: &ProcedureInput, rc: f64, r2: f64) -> f64 {
 
 fn check_refined(input: ProcedureInput, source: &str) {
     let first = published_procedure(&input);
-    let refined = refined_procedure(&input).unwrap_or_else(|| panic!("refined procedure found no R1 for {source}"));
+    let refined =
+        refined_procedure(&input).unwrap_or_else(|| panic!("refined procedure found no R1 for {source}"));
     // RC and R2 come from the same steps as published.
     assert_eq!(refined.collector_resistor_ohm, first.collector_resistor_ohm, "{source}: RC");
     assert_eq!(refined.base_resistor_ohm, first.base_resistor_ohm, "{source}: R2");
-    let (rc, r1, r2) = (refined.collector_resistor_ohm, refined.cross_resistor_ohm, refined.base_resistor_ohm);
+    let (rc, r1, r2) =
+        (refined.collector_resistor_ohm, refined.cross_resistor_ohm, refined.base_resistor_ohm);
     // Direction: the ON collector also feeds the other divider, so the real IC is below the
     // design IC and less base drive is needed: R1 grows, by a few percent (domain brief §3).
     let growth = r1 / first.cross_resistor_ohm - 1.0;
-    assert!(growth > 0.005 && growth < 0.10, "{source}: refined R1 {r1} vs published {} ({:+.2} %)", first.cross_resistor_ohm, 100.0 * growth);
+    assert!(
+        growth > 0.005 && growth < 0.10,
+        "{source}: refined R1 {r1} vs published {} ({:+.2} %)",
+        first.cross_resistor_ohm,
+        100.0 * growth
+    );
     // Size: against the closed-form root of the exact balance. The library bisects to
     // 1e-9·RC in R1, i.e. ≲ 2e-10 relative; 1e-8 leaves room for rounding in the quadratic.
-    assert_relative(r1, exact_balance_r1(&input, rc, r2), 1e-8, &format!("{source}: refined R1 against the quadratic"));
+    assert_relative(
+        r1,
+        exact_balance_r1(&input, rc, r2),
+        1e-8,
+        &format!("{source}: refined R1 against the quadratic"),
+    );
     // And the balance itself holds at the refined R1 (published current-balance equations).
-    let (vcc, vbb, vce, vbe) = (input.collector_supply_v, input.bias_supply_v, input.vce_sat_v, input.vbe_sat_v);
+    let (vcc, vbb, vce, vbe) =
+        (input.collector_supply_v, input.bias_supply_v, input.vce_sat_v, input.vbe_sat_v);
     let ic_exact = (vcc - vce) / rc - (vce + vbb) / (r1 + r2);
     let ib = (vcc - vbe) / (rc + r1) - (vbe + vbb) / r2;
     // 1e-9 relative: a relative error ε in R1 moves hFE·IB by about ε·R1/(RC + R1)·(IB + I2)/IB
     // ≈ 5ε; with ε ≲ 2e-10 that is ≲ 1e-9.
-    assert_relative(input.hfe_min * ib, input.overdrive * ic_exact, 1e-9, &format!("{source}: hFE·IB = k·IC"));
+    assert_relative(
+        input.hfe_min * ib,
+        input.overdrive * ic_exact,
+        1e-9,
+        &format!("{source}: hFE·IB = k·IC"),
+    );
 }
 
 #[test]
@@ -237,9 +264,41 @@ fn refined_procedure_refuses_an_unreachable_overdrive() {
 /// smallest, ICBO·(R1∥R2) with 1 µA, is 1e-3 of VB).
 const NETWORK_RELATIVE: f64 = 2e-7;
 
-fn check_network(vcc: f64, vbb: f64, vce: f64, vbe: f64, hfe: f64, icbo: f64, rc: f64, r1: f64, r2: f64, source: &str) {
-    let design = StageDesign::new(fixed_bias_input(exact_transistor(hfe, vce, vbe, icbo), vcc, vbb, rc, r1, r2))
-        .unwrap_or_else(|e| panic!("{source}: test design invalid: {e:?}"));
+/// One stage for the closed-form comparison: rails, ON-device levels, leakage, resistors.
+#[derive(Clone, Copy)]
+struct Case {
+    vcc: f64,
+    vbb: f64,
+    vce: f64,
+    vbe: f64,
+    hfe: f64,
+    icbo: f64,
+    rc: f64,
+    r1: f64,
+    r2: f64,
+}
+
+/// Venkata Rao ch. 9 problem 1 values, as designed (RC 1.98 kΩ, R1 12.94 kΩ, R2 20.6 kΩ).
+const VENKATA_RAO_STAGE: Case = Case {
+    vcc: 10.0,
+    vbb: 10.0,
+    vce: 0.1,
+    vbe: 0.3,
+    hfe: 50.0,
+    icbo: 0.0,
+    rc: 1.98e3,
+    r1: 12.94e3,
+    r2: 20.6e3,
+};
+/// Bell ex. 13.1 values (RC 2.4 kΩ, R1 16.4 kΩ, R2 28.5 kΩ).
+const BELL_STAGE: Case =
+    Case { vcc: 5.0, vbb: 5.0, vce: 0.2, vbe: 0.7, hfe: 70.0, icbo: 0.0, rc: 2.4e3, r1: 16.4e3, r2: 28.5e3 };
+
+fn check_network(case: Case, source: &str) {
+    let Case { vcc, vbb, vce, vbe, hfe, icbo, rc, r1, r2 } = case;
+    let design =
+        StageDesign::new(fixed_bias_input(exact_transistor(hfe, vce, vbe, icbo), vcc, vbb, rc, r1, r2))
+            .unwrap_or_else(|e| panic!("{source}: test design invalid: {e:?}"));
     let corner = Corner::nominal(&design, 25.0);
     let network = StageNetwork::build(&design, &corner);
     let device = design.transistor().piecewise_at(25.0, SpreadPoint::default());
@@ -257,18 +316,38 @@ fn check_network(vcc: f64, vbb: f64, vce: f64, vbe: f64, hfe: f64, icbo: f64, rc
             if on_side == 0 { ("B2", "C2", "C1", "B1") } else { ("B1", "C1", "C2", "B2") };
         let what = |q: &str| format!("{source}, Q{} ON: {q}", on_side + 1);
         // The ON transistor sits at its saturation voltages (the model's definition).
-        assert_relative(named(&state.node_voltages, on_collector), vce, NETWORK_RELATIVE, &what("VC(on) = VCE(sat)"));
-        assert_relative(named(&state.node_voltages, on_base), vbe, NETWORK_RELATIVE, &what("VB(on) = VBE(sat)"));
+        assert_relative(
+            named(&state.node_voltages, on_collector),
+            vce,
+            NETWORK_RELATIVE,
+            &what("VC(on) = VCE(sat)"),
+        );
+        assert_relative(
+            named(&state.node_voltages, on_base),
+            vbe,
+            NETWORK_RELATIVE,
+            &what("VB(on) = VBE(sat)"),
+        );
         assert_relative(named(&state.node_voltages, off_base), vb_off, NETWORK_RELATIVE, &what("VB(off)"));
         assert_relative(state.off_base_emitter_v, vb_off, NETWORK_RELATIVE, &what("VBE(off)"));
-        assert_relative(state.cutoff_margin_v, device.vbe_cutoff_v - vb_off, NETWORK_RELATIVE, &what("cut-off margin"));
+        assert_relative(
+            state.cutoff_margin_v,
+            device.vbe_cutoff_v - vb_off,
+            NETWORK_RELATIVE,
+            &what("cut-off margin"),
+        );
         if icbo == 0.0 {
             // The IB and VC(off) closed forms hold for ICBO = 0 (the leakage of the OFF
             // transistor is drawn from its collector node).
             assert_relative(state.on_base_current_a, ib_on, NETWORK_RELATIVE, &what("IB(on)"));
             assert_relative(state.on_collector_current_a, ic_on, NETWORK_RELATIVE, &what("IC(on)"));
             assert_relative(state.overdrive, hfe * ib_on / ic_on, NETWORK_RELATIVE, &what("overdrive"));
-            assert_relative(named(&state.node_voltages, off_collector), vc_off, NETWORK_RELATIVE, &what("VC(off)"));
+            assert_relative(
+                named(&state.node_voltages, off_collector),
+                vc_off,
+                NETWORK_RELATIVE,
+                &what("VC(off)"),
+            );
             assert_relative(state.output_swing_v, vc_off - vce, NETWORK_RELATIVE, &what("swing"));
         }
     }
@@ -276,17 +355,15 @@ fn check_network(vcc: f64, vbb: f64, vce: f64, vbe: f64, hfe: f64, icbo: f64, rc
 
 #[test]
 fn piecewise_network_reproduces_the_handbook_closed_forms() {
-    // Venkata Rao ch. 9 problem 1 values, as designed (RC 1.98 kΩ, R1 12.94 kΩ, R2 20.6 kΩ).
-    check_network(10.0, 10.0, 0.1, 0.3, 50.0, 0.0, 1.98e3, 12.94e3, 20.6e3, "Venkata Rao ch. 9");
-    // Bell ex. 13.1 values (RC 2.4 kΩ, R1 16.4 kΩ, R2 28.5 kΩ).
-    check_network(5.0, 5.0, 0.2, 0.7, 70.0, 0.0, 2.4e3, 16.4e3, 28.5e3, "Bell ex. 13.1");
+    check_network(VENKATA_RAO_STAGE, "Venkata Rao ch. 9");
+    check_network(BELL_STAGE, "Bell ex. 13.1");
 }
 
 #[test]
 fn piecewise_off_base_includes_leakage_times_r1_parallel_r2() {
     // ICBO·(R1∥R2) term of the published VB(off): 1 µA (germanium-like) and 5 µA.
-    check_network(10.0, 10.0, 0.1, 0.3, 50.0, 1e-6, 1.98e3, 12.94e3, 20.6e3, "Venkata Rao ch. 9, ICBO 1 µA");
-    check_network(5.0, 5.0, 0.2, 0.7, 70.0, 5e-6, 2.4e3, 16.4e3, 28.5e3, "Bell ex. 13.1, ICBO 5 µA");
+    check_network(Case { icbo: 1e-6, ..VENKATA_RAO_STAGE }, "Venkata Rao ch. 9, ICBO 1 µA");
+    check_network(Case { icbo: 5e-6, ..BELL_STAGE }, "Bell ex. 13.1, ICBO 5 µA");
 }
 
 #[test]

@@ -2,10 +2,13 @@
 //!
 //! One test binary; each module holds the checks for one area and names its sources.
 
-mod series;
-mod units;
-mod physics;
-mod handbook;
 mod charge_control;
+mod design_file;
 mod ebers_moll;
+mod handbook;
+mod physics;
+mod robustness;
+mod series;
 mod stage_models;
+mod units;
+mod worst_case;

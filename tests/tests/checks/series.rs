@@ -5,11 +5,7 @@ use proptest::prelude::*;
 
 /// The mantissa of a series rounded the way IEC 60063 prints it, for exact comparisons.
 fn hundredths(series: ESeries) -> Vec<i64> {
-    series
-        .mantissas()
-        .iter()
-        .map(|mantissa| (mantissa * 100.0).round() as i64)
-        .collect()
+    series.mantissas().iter().map(|mantissa| (mantissa * 100.0).round() as i64).collect()
 }
 
 /// 10^(i/n) rounded to the series' significant figures, in hundredths: the construction rule
@@ -29,15 +25,12 @@ fn two_digit_tables_match_iec_60063() {
     // package `eseries` by tests/python/eseries_check.py).
     assert_eq!(hundredths(ESeries::E3), [100, 220, 470]);
     assert_eq!(hundredths(ESeries::E6), [100, 150, 220, 330, 470, 680]);
-    assert_eq!(
-        hundredths(ESeries::E12),
-        [100, 120, 150, 180, 220, 270, 330, 390, 470, 560, 680, 820]
-    );
+    assert_eq!(hundredths(ESeries::E12), [100, 120, 150, 180, 220, 270, 330, 390, 470, 560, 680, 820]);
     assert_eq!(
         hundredths(ESeries::E24),
         [
-            100, 110, 120, 130, 150, 160, 180, 200, 220, 240, 270, 300, 330, 360, 390, 430, 470,
-            510, 560, 620, 680, 750, 820, 910
+            100, 110, 120, 130, 150, 160, 180, 200, 220, 240, 270, 300, 330, 360, 390, 430, 470, 510, 560,
+            620, 680, 750, 820, 910
         ]
     );
 }
@@ -57,11 +50,7 @@ fn historical_values_differ_from_the_formula() {
     // Every other E24 value follows the formula: IEC 60063 construction rule.
     for (index, value) in e24.iter().enumerate() {
         if !historical.contains(value) {
-            assert_eq!(
-                formula_hundredths(ESeries::E24, index),
-                *value,
-                "E24[{index}]"
-            );
+            assert_eq!(formula_hundredths(ESeries::E24, index), *value, "E24[{index}]");
         }
     }
     // 10^(5/24) = 2.61 yet E24 has 2.7 at that place (IEC 60063 table 1).
@@ -79,12 +68,7 @@ fn three_digit_tables_follow_the_formula_except_e192_920() {
                 assert_eq!(formula_hundredths(series, index), 919);
                 continue;
             }
-            assert_eq!(
-                formula_hundredths(series, index),
-                *value,
-                "{}[{index}]",
-                series.name()
-            );
+            assert_eq!(formula_hundredths(series, index), *value, "{}[{index}]", series.name());
         }
     }
     assert!(hundredths(ESeries::E192).contains(&920));
@@ -125,10 +109,7 @@ fn names_and_tolerances() {
         assert_eq!(series.tolerance(), tolerance, "{name}");
         assert_eq!(ESeries::from_name(name), Ok(series));
         assert_eq!(ESeries::from_name(&name.to_lowercase()), Ok(series));
-        assert_eq!(
-            series.mantissas().len().to_string(),
-            name.trim_start_matches('E')
-        );
+        assert_eq!(series.mantissas().len().to_string(), name.trim_start_matches('E'));
     }
     assert_eq!(ESeries::from_name(" e24 "), Ok(ESeries::E24));
     let message = ESeries::from_name("E7").map_err(|error| error.to_string());
@@ -179,18 +160,9 @@ fn stepping_moves_along_the_series() {
     assert_eq!(e12.step(5000.0, 12), Ok(47_000.0)); // 12 steps = one decade
     assert_eq!(e12.step(4.7, -24), Ok(0.047));
     // 10^400 overflows and 10^-400 underflows f64 (IEEE 754 binary64 range).
-    assert!(matches!(
-        ESeries::E3.step(1.0, 3 * 400),
-        Err(QuantityError::SeriesOutOfRange { .. })
-    ));
-    assert!(matches!(
-        ESeries::E3.step(1.0, -3 * 400),
-        Err(QuantityError::SeriesOutOfRange { .. })
-    ));
-    assert!(matches!(
-        ESeries::E3.step(1.0, i32::MAX),
-        Err(QuantityError::SeriesOutOfRange { .. })
-    ));
+    assert!(matches!(ESeries::E3.step(1.0, 3 * 400), Err(QuantityError::SeriesOutOfRange { .. })));
+    assert!(matches!(ESeries::E3.step(1.0, -3 * 400), Err(QuantityError::SeriesOutOfRange { .. })));
+    assert!(matches!(ESeries::E3.step(1.0, i32::MAX), Err(QuantityError::SeriesOutOfRange { .. })));
     assert!(ESeries::E3.step(1.0, i32::MIN).is_err());
 }
 
@@ -200,14 +172,11 @@ fn values_between_includes_both_ends() {
     assert_eq!(
         ESeries::E12.values_between(1000.0, 10_000.0),
         [
-            1000.0, 1200.0, 1500.0, 1800.0, 2200.0, 2700.0, 3300.0, 3900.0, 4700.0, 5600.0, 6800.0,
-            8200.0, 10_000.0
+            1000.0, 1200.0, 1500.0, 1800.0, 2200.0, 2700.0, 3300.0, 3900.0, 4700.0, 5600.0, 6800.0, 8200.0,
+            10_000.0
         ]
     );
-    assert_eq!(
-        ESeries::E6.values_between(0.5e-9, 2.5e-9),
-        [0.68e-9, 1e-9, 1.5e-9, 2.2e-9]
-    );
+    assert_eq!(ESeries::E6.values_between(0.5e-9, 2.5e-9), [0.68e-9, 1e-9, 1.5e-9, 2.2e-9]);
     assert_eq!(ESeries::E3.values_between(4.7, 4.7), [4.7]);
     assert!(ESeries::E3.values_between(4.8, 9.9).is_empty());
     assert!(ESeries::E3.values_between(10.0, 1.0).is_empty());
@@ -234,11 +203,7 @@ fn results_are_exact_decimals() {
                     .chars()
                     .filter(char::is_ascii_digit)
                     .count();
-                assert!(
-                    digits <= 3,
-                    "{} {approximate} gave {printed}",
-                    series.name()
-                );
+                assert!(digits <= 3, "{} {approximate} gave {printed}", series.name());
                 assert!((value / approximate - 1.0).abs() < 1e-12);
             }
         }
@@ -255,21 +220,11 @@ fn bad_values_are_refused_with_a_message() {
             ESeries::E12.step(value, 1),
         ];
         for result in results {
-            let message = result
-                .err()
-                .map(|error| error.to_string())
-                .unwrap_or_default();
-            assert!(
-                message.contains("expected a positive finite value"),
-                "{value}: {message}"
-            );
+            let message = result.err().map(|error| error.to_string()).unwrap_or_default();
+            assert!(message.contains("expected a positive finite value"), "{value}: {message}");
         }
     }
-    let message = ESeries::E12
-        .next_up(f64::MAX)
-        .err()
-        .map(|error| error.to_string())
-        .unwrap_or_default();
+    let message = ESeries::E12.next_up(f64::MAX).err().map(|error| error.to_string()).unwrap_or_default();
     assert!(message.contains("beyond the range"), "{message}");
     // The smallest positive f64 still has a series value above it.
     assert!(ESeries::E12.next_up(f64::MIN_POSITIVE).is_ok());

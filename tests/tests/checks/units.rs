@@ -1,8 +1,8 @@
 //! Checks of quantity text and IEC 60062 codes against SI prefix definitions and IEC 60062 examples.
 
 use flipwright::units::{
-    format_code, format_quantity, format_quantity_digits, parse_code, parse_quantity,
-    tolerance_from_letter, tolerance_letter, QuantityError, Unit,
+    format_code, format_quantity, format_quantity_digits, parse_code, parse_quantity, tolerance_from_letter,
+    tolerance_letter, QuantityError, Unit,
 };
 use proptest::prelude::*;
 
@@ -23,10 +23,7 @@ fn check_error(input: &str, unit: Unit, fragments: &[&str]) -> QuantityError {
     };
     let message = error.to_string();
     for fragment in fragments {
-        assert!(
-            message.contains(fragment),
-            "message for {input:?} lacks {fragment:?}: {message}"
-        );
+        assert!(message.contains(fragment), "message for {input:?} lacks {fragment:?}: {message}");
     }
     error
 }
@@ -136,11 +133,7 @@ fn codes_are_written_as_iec_60062_says() {
         (10_000.0, "10K"),
     ];
     for (value, expected) in resistor_cases {
-        assert_eq!(
-            format_code(value, Unit::Ohm, 3),
-            Ok(expected.to_string()),
-            "{value}"
-        );
+        assert_eq!(format_code(value, Unit::Ohm, 3), Ok(expected.to_string()), "{value}");
     }
     let capacitor_cases = [
         (2.2e-9, "2n2"),
@@ -151,11 +144,7 @@ fn codes_are_written_as_iec_60062_says() {
         (470e-12, "470p"),
     ];
     for (value, expected) in capacitor_cases {
-        assert_eq!(
-            format_code(value, Unit::Farad, 3),
-            Ok(expected.to_string()),
-            "{value}"
-        );
+        assert_eq!(format_code(value, Unit::Farad, 3), Ok(expected.to_string()), "{value}");
     }
 }
 
@@ -178,19 +167,12 @@ fn code_errors_say_what_was_expected() {
         ("470", Unit::Ohm, "no multiplier letter"),
         ("4K7K", Unit::Ohm, "more than one multiplier letter"),
         ("K", Unit::Ohm, "no digits"),
-        (
-            "4m7",
-            Unit::Ohm,
-            "'m' is not a digit or a multiplier letter",
-        ),
+        ("4m7", Unit::Ohm, "'m' is not a digit or a multiplier letter"),
         ("4.7K", Unit::Ohm, "'.' is not a digit"),
         ("4R7", Unit::Farad, "'R' is not a digit"),
     ];
     for (text, unit, fragment) in cases {
-        let message = parse_code(text, unit)
-            .map_err(|error| error.to_string())
-            .err()
-            .unwrap_or_default();
+        let message = parse_code(text, unit).map_err(|error| error.to_string()).err().unwrap_or_default();
         assert!(message.contains(fragment), "{text}: {message}");
         assert!(message.contains("expected digits"), "{text}: {message}");
     }
@@ -203,14 +185,8 @@ fn code_errors_say_what_was_expected() {
         format_code(1e4, Unit::Farad, 3),
     ];
     for result in writing_errors {
-        let message = result
-            .err()
-            .map(|error| error.to_string())
-            .unwrap_or_default();
-        assert!(
-            message.contains("cannot be written as an IEC 60062 code"),
-            "{message}"
-        );
+        let message = result.err().map(|error| error.to_string()).unwrap_or_default();
+        assert!(message.contains("cannot be written as an IEC 60062 code"), "{message}");
     }
     assert!(matches!(
         format_code(4700.0, Unit::Ohm, 0),
@@ -295,15 +271,9 @@ fn wrong_input_is_refused_with_a_helpful_message() {
 fn ambiguous_prefixes_are_refused() {
     // Bare "m" on a resistance: milliohm by SI, megohm by shop habit; refused by design.
     let error = check_error("1m", Unit::Ohm, &["ambiguous", "\"M\"", "mΩ"]);
-    assert!(matches!(
-        error,
-        QuantityError::AmbiguousResistancePrefix { .. }
-    ));
+    assert!(matches!(error, QuantityError::AmbiguousResistancePrefix { .. }));
     let error = check_error("1M", Unit::Farad, &["megafarads", "µ"]);
-    assert!(matches!(
-        error,
-        QuantityError::ImplausibleCapacitancePrefix { .. }
-    ));
+    assert!(matches!(error, QuantityError::ImplausibleCapacitancePrefix { .. }));
     // Spelled-out units are unambiguous.
     check("1 mΩ", Unit::Ohm, 1e-3);
     check("1 MF", Unit::Farad, 1e6);

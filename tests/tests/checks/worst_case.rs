@@ -47,7 +47,8 @@ fn check(design: &StageDesign, what: &str) {
             .iter()
             .find(|m| m.kind == kind)
             .unwrap_or_else(|| panic!("{what}: no worst case for {kind:?}"));
-        let exhaustive = exhaustive_worst(design, kind).unwrap_or_else(|| panic!("{what}: exhaustive found nothing for {kind:?}"));
+        let exhaustive = exhaustive_worst(design, kind)
+            .unwrap_or_else(|| panic!("{what}: exhaustive found nothing for {kind:?}"));
         let scale = exhaustive.abs().max(1e-12);
         if (guided.worst - exhaustive).abs() > 1e-9 * scale {
             mismatches.push(format!(
@@ -59,7 +60,11 @@ fn check(design: &StageDesign, what: &str) {
             ));
         }
     }
-    assert!(mismatches.is_empty(), "{what}: the guided search misses the worst corner:\n  {}", mismatches.join("\n  "));
+    assert!(
+        mismatches.is_empty(),
+        "{what}: the guided search misses the worst corner:\n  {}",
+        mismatches.join("\n  ")
+    );
 }
 
 #[test]
@@ -92,4 +97,3 @@ fn exhaustive_worst_is_never_better_than_nominal() {
         assert!(exhaustive < nominal, "{kind:?}: exhaustive {exhaustive} not below nominal {nominal}");
     }
 }
-

@@ -1,0 +1,240 @@
+//! End-to-end checks of the `flipwright` binary: commands, files written, output formats and documented exit codes.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+use flipwright::design_file::DesignFile;
+use serde_json::Value;
+
+const BIN: &str = env!("CARGO_BIN_EXE_flipwright");
+
+/// A fresh scratch directory per test (removed when dropped).
+struct Scratch(PathBuf);
+
+impl Scratch {
+    fn new(name: &str) -> Scratch {
+        let dir = std::env::temp_dir().join(format!("flipwright-cli-{}-{name}", std::process::id()));
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).expect("create scratch directory");
+        Scratch(dir)
+    }
+    fn path(&self, file: &str) -> PathBuf {
+        self.0.join(file)
+    }
+}
+
+impl Drop for Scratch {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_dir_all(&self.0);
+    }
+}
+
+fn run(args: &[&str], dir: &Path) -> Output {
+    Command::new(BIN).args(args).current_dir(dir).output().expect("binary runs")
+}
+
+fn stdout(output: &Output) -> String {
+    String::from_utf8_lossy(&output.stdout).into_owned()
+}
+
+fn stderr(output: &Output) -> String {
+    String::from_utf8_lossy(&output.stderr).into_owned()
+}
+
+/// Demands the exit code (documented in `flipwright help`: 0 success, 1 margins fail,
+/// 2 bad command line, 3 invalid design file).
+fn check_exit(output: &Output, code: i32, what: &str) {
+    assert_eq!(
+        output.status.code(),
+        Some(code),
+        "{what}: exit {:?}\n--- stdout\n{}\n--- stderr\n{}",
+        output.status.code(),
+        stdout(output),
+        stderr(output)
+    );
+}
+
+/// Writes the demo design into `scratch` and returns its path.
+fn demo_file(scratch: &Scratch) -> PathBuf {
+    let path = scratch.path("demo.json");
+    let output = run(&["demo", path.to_str().expect("utf-8 path")], &scratch.0);
+    check_exit(&output, 0, "demo");
+    path
+}
+
+/// Splits one CSV record per RFC 4180 (quoted fields may hold commas and doubled quotes).
+fn csv_fields(line: &str) -> Vec<String> {
+    let mut fields = vec![String::new()];
+    let mut quoted = false;
+    let mut chars = line.chars().peekable();
+    while let Some(c) = chars.next() {
+        match (c, quoted) {
+            ('"', true) if chars.peek() == Some(&'"') => {
+                chars.next();
+                fields.last_mut().expect("field").push('"');
+            }
+            ('"', _) => quoted = !quoted,
+            (',', false) => fields.push(String::new()),
+            (c, _) => fields.last_mut().expect("field").push(c),
+        }
+    }
+    fields
+}
+
+#[test]
+fn demo_writes_a_design_with_values() {
+    let scratch = Scratch::new("demo");
+    let path = demo_file(&scratch);
+    let text = std::fs::read_to_string(&path).expect("demo file written");
+    let (file, design) = DesignFile::load(&text).unwrap_or_else(|e| panic!("demo file invalid: {e:#?}"));
+    assert!(file.values.is_some());
+    assert!(design.values().collector_resistor_ohm > 0.0);
+}
+
+#[test]
+fn check_passes_the_demo_and_prints_pass_lines() {
+    let scratch = Scratch::new("check");
+    let path = demo_file(&scratch);
+    let output = run(&["check", path.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 0, "check demo");
+    let text = stdout(&output);
+    let pass_lines = text.lines().filter(|l| l.trim_end().ends_with("PASS")).count();
+    // Ten margins are reported for a toggle stage with a trigger network (DC, loop gain,
+    // toggle rate, trigger amplitude); every one passes for the demo.
+    assert!(pass_lines >= 9, "only {pass_lines} PASS lines:\n{text}");
+    assert!(!text.lines().any(|l| l.trim_end().ends_with("FAIL")), "{text}");
+}
+
+#[test]
+fn check_json_is_valid_json_with_the_margins() {
+    let scratch = Scratch::new("json");
+    let path = demo_file(&scratch);
+    let output = run(&["check", path.to_str().expect("utf-8"), "--json"], &scratch.0);
+    check_exit(&output, 0, "check --json");
+    let json: Value =
+        serde_json::from_str(&stdout(&output)).unwrap_or_else(|e| panic!("not JSON (RFC 8259): {e}"));
+    let margins = json["report"]["margins"].as_array().expect("report.margins is an array");
+    assert!(margins.len() >= 9, "{} margins", margins.len());
+    for m in margins {
+        assert!(m["pass"].is_boolean() && m["worst"].is_number() && m["title"].is_string(), "{m}");
+    }
+    assert_eq!(json["design"]["format"], "flipwright-design");
+}
+
+#[test]
+fn parts_csv_has_a_header_and_stage_one_designators() {
+    let scratch = Scratch::new("parts");
+    let path = demo_file(&scratch);
+    let output = run(&["parts", path.to_str().expect("utf-8"), "--csv"], &scratch.0);
+    check_exit(&output, 0, "parts --csv");
+    let text = stdout(&output);
+    let mut lines = text.lines();
+    let header = csv_fields(lines.next().expect("header line"));
+    assert_eq!(header.first().map(String::as_str), Some("designator"));
+    let rows: Vec<Vec<String>> = lines.map(csv_fields).collect();
+    // RFC 4180: every record has the same number of fields as the header.
+    for row in &rows {
+        assert_eq!(row.len(), header.len(), "{row:?}");
+    }
+    // Stage numbering R101 … for stage 1 (common practice); R101 is Q1's collector resistor,
+    // whose value must be the one in the file.
+    let r101 = rows.iter().find(|r| r[0] == "R101").unwrap_or_else(|| panic!("no R101 in:\n{text}"));
+    let value_column = header.iter().position(|h| h == "value_si").expect("value_si column");
+    let (_, design) = DesignFile::load(&std::fs::read_to_string(&path).expect("read")).expect("valid");
+    let value: f64 = r101[value_column].parse().expect("numeric value_si");
+    assert_eq!(value, design.values().collector_resistor_ohm);
+    // Stage 2 renumbers from 201.
+    let output = run(&["parts", path.to_str().expect("utf-8"), "--csv", "--stage", "2"], &scratch.0);
+    check_exit(&output, 0, "parts --stage 2");
+    assert!(stdout(&output).lines().any(|l| l.starts_with("R201,")));
+}
+
+#[test]
+fn bad_fields_exit_3_and_are_named_on_stderr() {
+    let scratch = Scratch::new("bad");
+    let path = demo_file(&scratch);
+    let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&path).expect("read")).expect("JSON");
+    doc["supplies"]["collector_supply_v"] = Value::String("abc".into());
+    doc["requirements"].as_object_mut().expect("object").remove("min_overdrive");
+    let bad = scratch.path("bad.json");
+    std::fs::write(&bad, doc.to_string()).expect("write");
+    for command in ["check", "parts", "design"] {
+        let output = run(&[command, bad.to_str().expect("utf-8")], &scratch.0);
+        check_exit(&output, 3, command);
+        let err = stderr(&output);
+        assert!(err.contains("supplies.collector_supply_v"), "{command}: {err}");
+        assert!(err.contains("requirements.min_overdrive"), "{command}: {err}");
+    }
+    // A semantic problem is reported by path too.
+    doc = serde_json::from_str(&std::fs::read_to_string(&path).expect("read")).expect("JSON");
+    doc["values"]["cross_resistor_ohm"] = serde_json::json!(-1.0);
+    std::fs::write(&bad, doc.to_string()).expect("write");
+    let output = run(&["check", bad.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 3, "check negative R1");
+    assert!(stderr(&output).contains("values.cross_resistor_ohm"), "{}", stderr(&output));
+}
+
+#[test]
+fn missing_file_exits_3() {
+    let scratch = Scratch::new("missing");
+    let output = run(&["check", "no-such-file.json"], &scratch.0);
+    check_exit(&output, 3, "check missing file");
+    assert!(stderr(&output).contains("no-such-file.json"));
+}
+
+#[test]
+fn bad_command_lines_exit_2() {
+    let scratch = Scratch::new("usage");
+    for args in [
+        vec!["frobnicate"],
+        vec!["check"],
+        vec!["check", "a.json", "b.json"],
+        vec!["check", "a.json", "--bogus"],
+        vec!["parts", "a.json", "--stage", "0"],
+    ] {
+        let output = run(&args, &scratch.0);
+        check_exit(&output, 2, &args.join(" "));
+        assert!(stderr(&output).contains("flipwright help"), "{args:?}: {}", stderr(&output));
+    }
+}
+
+#[test]
+fn help_documents_the_exit_codes() {
+    let scratch = Scratch::new("help");
+    for args in [vec![], vec!["help"], vec!["--help"]] {
+        let output = run(&args, &scratch.0);
+        check_exit(&output, 0, "help");
+        let text = stdout(&output);
+        assert!(
+            text.contains("EXIT CODES") && text.contains("3  unreadable or invalid design file"),
+            "{text}"
+        );
+    }
+}
+
+#[test]
+fn design_completes_a_requirements_only_file() {
+    let scratch = Scratch::new("design");
+    let input = scratch.path("wanted.json");
+    std::fs::write(&input, DesignFile::demo().to_json()).expect("write");
+    // Without values, `check` points at `design`.
+    let output = run(&["check", input.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 3, "check requirements-only");
+    assert!(stderr(&output).contains("flipwright design"), "{}", stderr(&output));
+    let out = scratch.path("done.json");
+    let output =
+        run(&["design", input.to_str().expect("utf-8"), "--out", out.to_str().expect("utf-8")], &scratch.0);
+    // The demo's requirements are met (exit 0); 1 would mean a shortfall was reported.
+    check_exit(&output, 0, "design");
+    let text = std::fs::read_to_string(&out).expect("completed file written");
+    let (file, _) = DesignFile::load(&text).unwrap_or_else(|e| panic!("completed file invalid: {e:#?}"));
+    assert!(file.values.is_some());
+    assert_eq!(file.requirements, DesignFile::demo().requirements, "requirements must be kept as given");
+    // The completed file checks clean.
+    let output = run(&["check", out.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 0, "check completed file");
+    // Default output name: FILE with .designed.json.
+    let output = run(&["design", input.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 0, "design, default output");
+    assert!(scratch.path("wanted.designed.json").exists());
+}
