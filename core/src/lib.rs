@@ -10,4 +10,5 @@ pub mod numeric;
 pub mod physics;
 pub mod stage;
 pub mod table;
+pub mod transient;
 pub mod units;

@@ -49,17 +49,48 @@ fn default_temperature_c() -> f64 {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "kind", rename_all = "snake_case")]
 pub enum Element {
-    Resistor { name: String, positive_node: String, negative_node: String, resistance_ohm: f64 },
-    Capacitor { name: String, positive_node: String, negative_node: String, capacitance_f: f64 },
+    Resistor {
+        name: String,
+        positive_node: String,
+        negative_node: String,
+        resistance_ohm: f64,
+    },
+    Capacitor {
+        name: String,
+        positive_node: String,
+        negative_node: String,
+        capacitance_f: f64,
+    },
     /// V(positive_node) − V(negative_node) = waveform (volts).
-    VoltageSource { name: String, positive_node: String, negative_node: String, waveform: Waveform },
+    VoltageSource {
+        name: String,
+        positive_node: String,
+        negative_node: String,
+        waveform: Waveform,
+    },
     /// A current (amperes) leaving `from_node`, passing through the source and entering
     /// `to_node`.
-    CurrentSource { name: String, from_node: String, to_node: String, waveform: Waveform },
-    Diode { name: String, anode: String, cathode: String, model: DiodeModel },
+    CurrentSource {
+        name: String,
+        from_node: String,
+        to_node: String,
+        waveform: Waveform,
+    },
+    Diode {
+        name: String,
+        anode: String,
+        cathode: String,
+        model: DiodeModel,
+    },
     /// Ebers–Moll transistor; `model.polarity` selects NPN or PNP, its `temperature_c` sets
     /// the thermal voltage, its base and collector resistances add internal nodes.
-    Transistor { name: String, collector: String, base: String, emitter: String, model: EbersMoll },
+    Transistor {
+        name: String,
+        collector: String,
+        base: String,
+        emitter: String,
+        model: EbersMoll,
+    },
 }
 
 impl Element {
@@ -194,8 +225,12 @@ impl Circuit {
                 touches_ground |= is_ground(node);
             }
             match element {
-                Element::Resistor { resistance_ohm, .. } => positive(&mut errors, name, "resistance_ohm", *resistance_ohm),
-                Element::Capacitor { capacitance_f, .. } => not_negative(&mut errors, name, "capacitance_f", *capacitance_f),
+                Element::Resistor { resistance_ohm, .. } => {
+                    positive(&mut errors, name, "resistance_ohm", *resistance_ohm)
+                }
+                Element::Capacitor { capacitance_f, .. } => {
+                    not_negative(&mut errors, name, "capacitance_f", *capacitance_f)
+                }
                 Element::VoltageSource { positive_node, negative_node, waveform, .. } => {
                     if positive_node == negative_node
                         || (is_ground(positive_node) && is_ground(negative_node))
@@ -203,23 +238,42 @@ impl Circuit {
                         errors.push(CircuitError {
                             element: name.into(),
                             field: "negative_node".into(),
-                            problem: "is the same node as positive_node: a voltage source cannot be shorted".into(),
+                            problem: "is the same node as positive_node: a voltage source cannot be shorted"
+                                .into(),
                         });
                     }
                     for (field, problem) in waveform.problems() {
-                        errors.push(CircuitError { element: name.into(), field: format!("waveform.{field}"), problem });
+                        errors.push(CircuitError {
+                            element: name.into(),
+                            field: format!("waveform.{field}"),
+                            problem,
+                        });
                     }
                 }
                 Element::CurrentSource { waveform, .. } => {
                     for (field, problem) in waveform.problems() {
-                        errors.push(CircuitError { element: name.into(), field: format!("waveform.{field}"), problem });
+                        errors.push(CircuitError {
+                            element: name.into(),
+                            field: format!("waveform.{field}"),
+                            problem,
+                        });
                     }
                 }
                 Element::Diode { model, .. } => {
                     positive(&mut errors, name, "model.saturation_current_a", model.saturation_current_a);
                     positive(&mut errors, name, "model.emission_coefficient", model.emission_coefficient);
-                    not_negative(&mut errors, name, "model.series_resistance_ohm", model.series_resistance_ohm);
-                    not_negative(&mut errors, name, "model.junction_capacitance_f", model.junction_capacitance_f);
+                    not_negative(
+                        &mut errors,
+                        name,
+                        "model.series_resistance_ohm",
+                        model.series_resistance_ohm,
+                    );
+                    not_negative(
+                        &mut errors,
+                        name,
+                        "model.junction_capacitance_f",
+                        model.junction_capacitance_f,
+                    );
                     positive(&mut errors, name, "model.junction_potential_v", model.junction_potential_v);
                     grading(&mut errors, name, "model.junction_grading", model.junction_grading);
                     not_negative(&mut errors, name, "model.transit_time_s", model.transit_time_s);
@@ -242,7 +296,12 @@ impl Circuit {
                         "model.collector_junction_capacitance_f",
                         model.collector_junction_capacitance_f,
                     );
-                    positive(&mut errors, name, "model.emitter_junction_potential_v", model.emitter_junction_potential_v);
+                    positive(
+                        &mut errors,
+                        name,
+                        "model.emitter_junction_potential_v",
+                        model.emitter_junction_potential_v,
+                    );
                     positive(
                         &mut errors,
                         name,
@@ -251,7 +310,12 @@ impl Circuit {
                     );
                     grading(&mut errors, name, "model.junction_grading", model.junction_grading);
                     not_negative(&mut errors, name, "model.base_resistance_ohm", model.base_resistance_ohm);
-                    not_negative(&mut errors, name, "model.collector_resistance_ohm", model.collector_resistance_ohm);
+                    not_negative(
+                        &mut errors,
+                        name,
+                        "model.collector_resistance_ohm",
+                        model.collector_resistance_ohm,
+                    );
                     not_negative(&mut errors, name, "model.leakage_a", model.leakage_a);
                     if !(model.temperature_c > -273.15) || !model.temperature_c.is_finite() {
                         errors.push(CircuitError {
@@ -275,5 +339,57 @@ impl Circuit {
         } else {
             Err(errors)
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn json_round_trip_and_field_names() {
+        let text = r#"{"elements": [
+            {"kind": "voltage_source", "name": "V1", "positive_node": "in", "negative_node": "0",
+             "waveform": {"shape": "constant", "value": 5.0}},
+            {"kind": "resistor", "name": "R1", "positive_node": "in", "negative_node": "out", "resistance_ohm": 1000.0},
+            {"kind": "diode", "name": "D1", "anode": "out", "cathode": "ground",
+             "model": {"saturation_current_a": 1e-14, "emission_coefficient": 1.0}}
+        ]}"#;
+        let parsed: Result<Circuit, _> = serde_json::from_str(text);
+        assert!(parsed.is_ok(), "{parsed:?}");
+        let Ok(circuit) = parsed else { return };
+        assert_eq!(circuit.temperature_c, 25.0);
+        assert_eq!(circuit.validate(), Ok(()));
+        let again: Result<Circuit, _> =
+            serde_json::to_string(&circuit).and_then(|s| serde_json::from_str(&s));
+        assert_eq!(again.ok(), Some(circuit));
+    }
+
+    #[test]
+    fn validation_names_element_and_field() {
+        let circuit = Circuit {
+            elements: vec![
+                Element::Resistor {
+                    name: "R1".into(),
+                    positive_node: "a".into(),
+                    negative_node: "0".into(),
+                    resistance_ohm: -1.0,
+                },
+                Element::VoltageSource {
+                    name: "V1".into(),
+                    positive_node: "a".into(),
+                    negative_node: "a".into(),
+                    waveform: Waveform::PiecewiseLinear { points: vec![(1.0, 0.0), (0.5, 1.0)] },
+                },
+            ],
+            temperature_c: 25.0,
+        };
+        let errors = circuit.validate().err().unwrap_or_default();
+        let found: Vec<(&str, &str)> =
+            errors.iter().map(|e| (e.element.as_str(), e.field.as_str())).collect();
+        assert_eq!(
+            found,
+            vec![("R1", "resistance_ohm"), ("V1", "negative_node"), ("V1", "waveform.points[1]")]
+        );
     }
 }

@@ -88,7 +88,8 @@ impl Waveform {
                     return None;
                 }
                 let offsets = [0.0, *rise_time_s, rise_time_s + width_s, rise_time_s + width_s + fall_time_s];
-                let first_period = if time_s < *delay_s { 0.0 } else { ((time_s - delay_s) / period_s).floor() };
+                let first_period =
+                    if time_s < *delay_s { 0.0 } else { ((time_s - delay_s) / period_s).floor() };
                 for k in 0..CORNER_SEARCH_PERIODS {
                     let start = delay_s + (first_period + k as f64) * period_s;
                     for offset in offsets {
@@ -139,7 +140,10 @@ impl Waveform {
                 // A zero-length edge would be a jump; the integrator needs a ramp to follow.
                 for (field, value) in [("rise_time_s", *rise_time_s), ("fall_time_s", *fall_time_s)] {
                     if value == 0.0 {
-                        found.push((field.to_string(), "must be positive: give the edge a duration".to_string()));
+                        found.push((
+                            field.to_string(),
+                            "must be positive: give the edge a duration".to_string(),
+                        ));
                     }
                 }
                 let busy = rise_time_s + width_s + fall_time_s;
@@ -154,7 +158,8 @@ impl Waveform {
             }
             Waveform::PiecewiseLinear { points } => {
                 if points.is_empty() {
-                    found.push(("points".to_string(), "needs at least one (time_s, value) point".to_string()));
+                    found
+                        .push(("points".to_string(), "needs at least one (time_s, value) point".to_string()));
                 }
                 for (index, &(t, v)) in points.iter().enumerate() {
                     if !t.is_finite() || !v.is_finite() || t < 0.0 {
@@ -166,7 +171,10 @@ impl Waveform {
                 }
                 for (index, pair) in points.windows(2).enumerate() {
                     if !(pair[1].0 > pair[0].0) {
-                        found.push((format!("points[{}]", index + 1), "times must increase strictly".to_string()));
+                        found.push((
+                            format!("points[{}]", index + 1),
+                            "times must increase strictly".to_string(),
+                        ));
                     }
                 }
             }

@@ -10,5 +10,6 @@ mod physics;
 mod robustness;
 mod series;
 mod stage_models;
+mod transient;
 mod units;
 mod worst_case;

@@ -1,0 +1,103 @@
+//! Junction laws shared by the diode and transistor stamps: depletion charge, diffusion
+//! current, and the Newton junction-voltage limit.
+
+use crate::device::ebers_moll::limited_exp;
+
+/// Fraction of the junction potential beyond which Cj0/(1 − V/φ)^m is continued linearly
+/// (the domain brief: "linearised past about half of φ"); keeps charge finite at V ≥ φ.
+pub const DEPLETION_LINEAR_FRACTION: f64 = 0.5;
+
+/// Depletion charge and capacitance (q, dq/dV) of Cj0/(1 − V/φ)^m, with the capacitance
+/// continued as its tangent line beyond V = ½φ (standard textbook continuation).
+pub fn depletion_charge(voltage_v: f64, zero_bias_f: f64, potential_v: f64, grading: f64) -> (f64, f64) {
+    if zero_bias_f == 0.0 {
+        return (0.0, 0.0);
+    }
+    let fc = DEPLETION_LINEAR_FRACTION;
+    let m = grading;
+    let phi = potential_v;
+    let knee_v = fc * phi;
+    if voltage_v < knee_v {
+        let x = 1.0 - voltage_v / phi;
+        let charge = zero_bias_f * phi / (1.0 - m) * (1.0 - x.powf(1.0 - m));
+        (charge, zero_bias_f * x.powf(-m))
+    } else {
+        let knee_charge = zero_bias_f * phi / (1.0 - m) * (1.0 - (1.0 - fc).powf(1.0 - m));
+        let scale = zero_bias_f / (1.0 - fc).powf(1.0 + m);
+        let dv = voltage_v - knee_v;
+        let charge = knee_charge
+            + scale * ((1.0 - fc * (1.0 + m)) * dv + m / (2.0 * phi) * (voltage_v.powi(2) - knee_v.powi(2)));
+        (charge, scale * (1.0 - fc * (1.0 + m) + m * voltage_v / phi))
+    }
+}
+
+/// I = IS·(e^(V/(n·VT)) − 1) and its derivative.
+pub fn junction_current(voltage_v: f64, saturation_current_a: f64, n_vt: f64) -> (f64, f64) {
+    let (e, de) = limited_exp(voltage_v / n_vt);
+    (saturation_current_a * (e - 1.0), saturation_current_a * de / n_vt)
+}
+
+/// Voltage above which the junction law is steep enough to need limiting:
+/// n·VT·ln(n·VT/(√2·IS)), where the current's curvature radius is smallest.
+pub fn critical_voltage(saturation_current_a: f64, n_vt: f64) -> f64 {
+    n_vt * (n_vt / (std::f64::consts::SQRT_2 * saturation_current_a)).ln()
+}
+
+/// Limits a proposed junction voltage against the previous iterate (logarithmic damping of
+/// forward steps, Nagel 1975): an exponential overshoots badly when Newton extrapolates it
+/// linearly from far below. Returns the voltage to evaluate at and whether it was limited.
+pub fn limit_junction_voltage(proposed_v: f64, previous_v: f64, n_vt: f64, critical_v: f64) -> (f64, bool) {
+    if !proposed_v.is_finite() {
+        return (previous_v, true);
+    }
+    if proposed_v > critical_v && (proposed_v - previous_v).abs() > 2.0 * n_vt {
+        let limited = if previous_v > 0.0 {
+            let argument = 1.0 + (proposed_v - previous_v) / n_vt;
+            if argument > 0.0 {
+                previous_v + n_vt * argument.ln()
+            } else {
+                critical_v
+            }
+        } else {
+            n_vt * (proposed_v / n_vt).ln()
+        };
+        return (limited, true);
+    }
+    (proposed_v, false)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn depletion_charge_is_continuous_and_its_slope_is_the_capacitance() {
+        let (cj0, phi, m) = (2e-12, 0.75, 0.33);
+        let knee = DEPLETION_LINEAR_FRACTION * phi;
+        let below = depletion_charge(knee - 1e-9, cj0, phi, m);
+        let above = depletion_charge(knee + 1e-9, cj0, phi, m);
+        assert!((below.0 - above.0).abs() < 1e-20 && (below.1 - above.1).abs() < 1e-17);
+        // Central difference of the charge against the returned capacitance, both branches.
+        for v in [-5.0, -0.5, 0.0, 0.3, 0.5, 1.2] {
+            let h = 1e-6;
+            let numeric =
+                (depletion_charge(v + h, cj0, phi, m).0 - depletion_charge(v - h, cj0, phi, m).0) / (2.0 * h);
+            let analytic = depletion_charge(v, cj0, phi, m).1;
+            assert!((numeric - analytic).abs() < 1e-6 * analytic, "v = {v}: {numeric} vs {analytic}");
+        }
+        // At zero bias the capacitance is Cj0 by definition.
+        assert!((depletion_charge(0.0, cj0, phi, m).1 - cj0).abs() < 1e-24);
+    }
+
+    #[test]
+    fn limiting_compresses_large_forward_steps_only() {
+        let n_vt = 0.02585;
+        let critical = critical_voltage(1e-14, n_vt);
+        let (v, limited) = limit_junction_voltage(5.0, 0.6, n_vt, critical);
+        assert!(limited && v < 0.8 && v > 0.6, "{v}");
+        let (v, limited) = limit_junction_voltage(0.61, 0.6, n_vt, critical);
+        assert!(!limited && v == 0.61);
+        let (v, limited) = limit_junction_voltage(-3.0, 0.6, n_vt, critical);
+        assert!(!limited && v == -3.0);
+    }
+}

@@ -1,0 +1,325 @@
+//! Transient analysis: trapezoidal rule on charges with a backward-Euler step at the start
+//! and after every source corner, step size from the charges' local truncation error.
+
+use serde::{Deserialize, Serialize};
+
+use super::circuit::Circuit;
+use super::error::SimulationError;
+use super::linear::{DenseSolver, LinearSolver};
+use super::operating_point::{
+    default_tolerances, solve_operating_point, OperatingPointHints, OperatingPointMethod,
+};
+use super::system::{Conditions, Failure, Integration, NewtonTolerances, System};
+
+/// Step reduction after a failed Newton solve.
+const NEWTON_FAILURE_SHRINK: f64 = 0.125;
+/// Bounds on the change of step between two steps: growth limits how far the error
+/// estimate is trusted; the floor stops one bad estimate collapsing the step.
+const MAX_STEP_GROWTH: f64 = 2.0;
+const MIN_STEP_SHRINK: f64 = 0.1;
+/// Margin on the step predicted from the error estimate, so the next step usually passes.
+const STEP_SAFETY: f64 = 0.9;
+
+/// Settings of one transient run.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TransientSettings {
+    pub stop_time_s: f64,
+    /// Largest step; default stop_time_s / 50.
+    #[serde(default)]
+    pub max_step_s: Option<f64>,
+    /// Step at t = 0 and after each source corner; default stop_time_s · 1e-6.
+    #[serde(default)]
+    pub initial_step_s: Option<f64>,
+    /// Smallest step before the run fails; default stop_time_s · 1e-13.
+    #[serde(default)]
+    pub min_step_s: Option<f64>,
+    /// Allowed local truncation error of each charge relative to its size, and the Newton
+    /// relative tolerance.
+    pub relative_tolerance: f64,
+    pub charge_tolerance_c: f64,
+    pub voltage_tolerance_v: f64,
+    pub current_tolerance_a: f64,
+    pub max_newton_iterations: usize,
+    pub max_steps: usize,
+}
+
+impl TransientSettings {
+    /// Defaults suited to switching circuits: 1e-3 relative, 1 fC, 1 µV, 1 pA.
+    pub fn new(stop_time_s: f64) -> Self {
+        TransientSettings {
+            stop_time_s,
+            max_step_s: None,
+            initial_step_s: None,
+            min_step_s: None,
+            relative_tolerance: 1e-3,
+            charge_tolerance_c: 1e-15,
+            voltage_tolerance_v: 1e-6,
+            current_tolerance_a: 1e-12,
+            max_newton_iterations: 50,
+            max_steps: 1_000_000,
+        }
+    }
+
+    fn check(&self) -> Result<(), SimulationError> {
+        let bad = |field: &str, problem: &str| {
+            Err(SimulationError::InvalidSettings { field: field.into(), problem: problem.into() })
+        };
+        if !(self.stop_time_s > 0.0) || !self.stop_time_s.is_finite() {
+            return bad("stop_time_s", "must be a positive finite time");
+        }
+        for (field, value) in [
+            ("max_step_s", self.max_step_s),
+            ("initial_step_s", self.initial_step_s),
+            ("min_step_s", self.min_step_s),
+        ] {
+            if let Some(v) = value {
+                if !(v > 0.0) || !v.is_finite() {
+                    return bad(field, "must be a positive finite time when given");
+                }
+            }
+        }
+        if !(self.relative_tolerance > 0.0 && self.relative_tolerance < 1.0) {
+            return bad("relative_tolerance", "must be between 0 and 1 (1e-3 is usual)");
+        }
+        for (field, value) in [
+            ("charge_tolerance_c", self.charge_tolerance_c),
+            ("voltage_tolerance_v", self.voltage_tolerance_v),
+            ("current_tolerance_a", self.current_tolerance_a),
+        ] {
+            if !(value > 0.0) || !value.is_finite() {
+                return bad(field, "must be a positive finite number");
+            }
+        }
+        if self.max_newton_iterations == 0 || self.max_steps == 0 {
+            return bad("max_newton_iterations / max_steps", "must be at least 1");
+        }
+        Ok(())
+    }
+}
+
+/// Counts of one run.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize)]
+pub struct RunStatistics {
+    pub accepted_steps: usize,
+    pub rejected_steps: usize,
+    pub newton_iterations: usize,
+}
+
+/// Waveforms of a run: one entry per accepted time point.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct TransientResult {
+    pub time_s: Vec<f64>,
+    pub node_names: Vec<String>,
+    /// `node_voltages_v[node][point]`.
+    pub node_voltages_v: Vec<Vec<f64>>,
+    pub source_names: Vec<String>,
+    /// `source_currents_a[source][point]`, from the positive terminal through the source.
+    pub source_currents_a: Vec<Vec<f64>>,
+    pub operating_point_method: OperatingPointMethod,
+    pub statistics: RunStatistics,
+}
+
+impl TransientResult {
+    /// The waveform of a node by name.
+    pub fn voltage(&self, node: &str) -> Option<&[f64]> {
+        let index = self.node_names.iter().position(|n| n == node)?;
+        self.node_voltages_v.get(index).map(|v| v.as_slice())
+    }
+    /// The current waveform of a voltage source by name.
+    pub fn source_current(&self, source: &str) -> Option<&[f64]> {
+        let index = self.source_names.iter().position(|n| n == source)?;
+        self.source_currents_a.get(index).map(|v| v.as_slice())
+    }
+}
+
+/// Transient run with the dense solver.
+pub fn simulate(
+    circuit: &Circuit,
+    settings: &TransientSettings,
+    hints: &OperatingPointHints,
+) -> Result<TransientResult, SimulationError> {
+    simulate_with(circuit, settings, hints, &mut DenseSolver::default())
+}
+
+/// Third (or second) divided difference of a charge over the last points, for the error
+/// estimate. `points` holds (time, charge), oldest first.
+fn divided_difference(points: &[(f64, f64)]) -> f64 {
+    let mut values: Vec<f64> = points.iter().map(|p| p.1).collect();
+    for level in 1..points.len() {
+        for i in 0..points.len() - level {
+            let span = points[i + level].0 - points[i].0;
+            values[i] = if span > 0.0 { (values[i + 1] - values[i]) / span } else { 0.0 };
+        }
+    }
+    values.first().copied().unwrap_or(0.0)
+}
+
+/// Transient run with any [`LinearSolver`].
+pub fn simulate_with<S: LinearSolver>(
+    circuit: &Circuit,
+    settings: &TransientSettings,
+    hints: &OperatingPointHints,
+    solver: &mut S,
+) -> Result<TransientResult, SimulationError> {
+    settings.check()?;
+    let system = System::compile(circuit)?;
+    let stop = settings.stop_time_s;
+    let max_step = settings.max_step_s.unwrap_or(stop / 50.0).min(stop);
+    let initial_step = settings.initial_step_s.unwrap_or(stop * 1e-6).min(max_step);
+    let min_step = settings.min_step_s.unwrap_or(stop * 1e-13).min(initial_step);
+    let (op, method, mut junctions) = solve_operating_point(&system, solver, hints, default_tolerances())?;
+    let tolerances = NewtonTolerances {
+        relative: settings.relative_tolerance,
+        voltage_v: settings.voltage_tolerance_v,
+        current_a: settings.current_tolerance_a,
+        max_iterations: settings.max_newton_iterations,
+    };
+    let node_count = system.node_count();
+    let mut result = TransientResult {
+        time_s: vec![0.0],
+        node_names: system.node_names.clone(),
+        node_voltages_v: (0..node_count).map(|i| vec![op.unknowns.get(i).copied().unwrap_or(0.0)]).collect(),
+        source_names: system.source_names.clone(),
+        source_currents_a: (node_count..system.size())
+            .map(|i| vec![op.unknowns.get(i).copied().unwrap_or(0.0)])
+            .collect(),
+        operating_point_method: method,
+        statistics: RunStatistics { newton_iterations: op.iterations, ..RunStatistics::default() },
+    };
+    let mut time = 0.0;
+    let mut unknowns = op.unknowns;
+    let mut charges = op.charges;
+    // At the operating point no charge changes.
+    let mut charge_currents = vec![0.0; charges.len()];
+    // Accepted (time, charges) since the last restart, oldest first, at most 3.
+    let mut history: Vec<(f64, Vec<f64>)> = vec![(0.0, charges.clone())];
+    let mut step = initial_step;
+    // Every accepted or rejected step counts, so the loop is bounded even if steps shrink.
+    let attempt_limit = settings.max_steps.saturating_mul(20);
+    for _ in 0..attempt_limit {
+        if time >= stop {
+            return Ok(result);
+        }
+        if result.statistics.accepted_steps >= settings.max_steps {
+            return Err(SimulationError::StepLimit { time_s: time, max_steps: settings.max_steps });
+        }
+        let target = system.next_corner_after(time).map_or(stop, |corner| corner.min(stop));
+        let restarting = history.len() < 2;
+        if restarting {
+            step = step.min(initial_step).min(0.1 * (target - time));
+        }
+        step = step.min(max_step).max(min_step);
+        // Land exactly on the target when close, so no sliver step follows.
+        let landing = time + step >= target - 0.01 * step;
+        let new_time = if landing { target } else { time + step };
+        let h = new_time - time;
+        let trapezoidal = !restarting;
+        let integration = if trapezoidal {
+            Integration { a: 2.0 / h, b: -1.0 }
+        } else {
+            Integration { a: 1.0 / h, b: 0.0 }
+        };
+        let conditions = Conditions {
+            time_s: new_time,
+            source_scale: 1.0,
+            extra_gmin_s: 0.0,
+            integration: Some(integration),
+            previous_charges: &charges,
+            previous_charge_currents: &charge_currents,
+            pulls: &[],
+        };
+        let mut trial_junctions = junctions.clone();
+        let solved = match system.newton(solver, &unknowns, &mut trial_junctions, &conditions, tolerances) {
+            Ok(solved) => solved,
+            Err(Failure::Singular { unknown }) => {
+                return Err(SimulationError::Singular {
+                    time_s: new_time,
+                    node: system.unknown_name(unknown),
+                })
+            }
+            Err(Failure::NotConverged { unknown, iterations, .. }) => {
+                result.statistics.newton_iterations += iterations;
+                result.statistics.rejected_steps += 1;
+                step = h * NEWTON_FAILURE_SHRINK;
+                if step < min_step {
+                    return Err(SimulationError::NonConvergence {
+                        time_s: time,
+                        node: system.unknown_name(unknown),
+                    });
+                }
+                continue;
+            }
+        };
+        result.statistics.newton_iterations += solved.iterations;
+        // Local truncation error of every charge from divided differences through the new
+        // point: trapezoidal h³·q'''/12 with q''' ≈ 6·DD3; with only three points the
+        // backward-Euler form h²·q''/2 with q'' ≈ 2·DD2 (pessimistic for one step).
+        let mut worst_ratio: f64 = 0.0;
+        let mut order = 1.0;
+        if history.len() >= 2 {
+            let use_third = history.len() >= 3 && trapezoidal;
+            order = if use_third { 2.0 } else { 1.0 };
+            let first = if use_third { history.len() - 3 } else { history.len() - 2 };
+            for slot in 0..solved.charges.len() {
+                let mut points: Vec<(f64, f64)> = history
+                    .get(first..)
+                    .unwrap_or(&[])
+                    .iter()
+                    .map(|(t, q)| (*t, q.get(slot).copied().unwrap_or(0.0)))
+                    .collect();
+                let new_charge = solved.charges.get(slot).copied().unwrap_or(0.0);
+                points.push((new_time, new_charge));
+                let dd = divided_difference(&points);
+                let error = if use_third { h.powi(3) * dd.abs() / 2.0 } else { h.powi(2) * dd.abs() };
+                let old_charge = charges.get(slot).copied().unwrap_or(0.0);
+                let allowed = settings.relative_tolerance * new_charge.abs().max(old_charge.abs())
+                    + settings.charge_tolerance_c;
+                worst_ratio = worst_ratio.max(error / allowed);
+            }
+            if !worst_ratio.is_finite() {
+                worst_ratio = f64::MAX;
+            }
+            if worst_ratio > 1.0 {
+                result.statistics.rejected_steps += 1;
+                let factor = (STEP_SAFETY * worst_ratio.powf(-1.0 / (order + 1.0))).max(MIN_STEP_SHRINK);
+                step = h * factor;
+                if step < min_step {
+                    return Err(SimulationError::TimestepTooSmall { time_s: time, step_s: step });
+                }
+                continue;
+            }
+        }
+        // Accept.
+        result.statistics.accepted_steps += 1;
+        time = new_time;
+        junctions = trial_junctions;
+        unknowns = solved.unknowns;
+        charges = solved.charges;
+        charge_currents = solved.charge_currents;
+        result.time_s.push(time);
+        for (index, series) in result.node_voltages_v.iter_mut().enumerate() {
+            series.push(unknowns.get(index).copied().unwrap_or(0.0));
+        }
+        for (index, series) in result.source_currents_a.iter_mut().enumerate() {
+            series.push(unknowns.get(node_count + index).copied().unwrap_or(0.0));
+        }
+        let growth = if worst_ratio > 0.0 {
+            (STEP_SAFETY * worst_ratio.powf(-1.0 / (order + 1.0))).min(MAX_STEP_GROWTH)
+        } else {
+            MAX_STEP_GROWTH
+        };
+        step = h * growth;
+        if landing && target < stop {
+            // A source corner: the charges' derivatives jump, so the old points no longer
+            // describe a smooth curve. Restart with backward Euler and a small step.
+            history.clear();
+            history.push((time, charges.clone()));
+        } else {
+            history.push((time, charges.clone()));
+            if history.len() > 3 {
+                history.remove(0);
+            }
+        }
+    }
+    Err(SimulationError::StepLimit { time_s: time, max_steps: settings.max_steps })
+}

@@ -1,0 +1,184 @@
+//! Measurements on simulated waveforms: threshold crossings, delays, 10–90 % edges, toggles.
+
+use serde::Serialize;
+
+/// Direction of a crossing.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Edge {
+    Rising,
+    Falling,
+    Either,
+}
+
+/// Why a measurement has no value.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub enum MeasureError {
+    /// Occurs when the time and value series differ in length.
+    LengthMismatch { times: usize, values: usize },
+    /// Occurs when the waveform never does what the measurement looks for.
+    NotFound { what: String },
+}
+
+impl std::fmt::Display for MeasureError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            MeasureError::LengthMismatch { times, values } => {
+                write!(f, "{times} time points but {values} values: pass one waveform's own series")
+            }
+            MeasureError::NotFound { what } => {
+                write!(f, "the waveform has no {what}: run longer or check the thresholds")
+            }
+        }
+    }
+}
+
+fn check_lengths(times: &[f64], values: &[f64]) -> Result<(), MeasureError> {
+    if times.len() != values.len() {
+        return Err(MeasureError::LengthMismatch { times: times.len(), values: values.len() });
+    }
+    Ok(())
+}
+
+/// Every time the waveform crosses `threshold` in the given direction, by linear
+/// interpolation between the bracketing points (the integrator's points are dense enough near
+/// edges for this to be within its own error).
+pub fn crossings(
+    times: &[f64],
+    values: &[f64],
+    threshold: f64,
+    edge: Edge,
+) -> Result<Vec<f64>, MeasureError> {
+    check_lengths(times, values)?;
+    let mut found = Vec::new();
+    for (t, v) in times.windows(2).zip(values.windows(2)) {
+        let (below0, below1) = (v[0] < threshold, v[1] < threshold);
+        if below0 == below1 {
+            continue;
+        }
+        let rising = below0;
+        let wanted = match edge {
+            Edge::Rising => rising,
+            Edge::Falling => !rising,
+            Edge::Either => true,
+        };
+        if wanted {
+            let fraction = (threshold - v[0]) / (v[1] - v[0]);
+            found.push(t[0] + fraction * (t[1] - t[0]));
+        }
+    }
+    Ok(found)
+}
+
+/// The first crossing at or after `after_s`.
+pub fn first_crossing_after(
+    times: &[f64],
+    values: &[f64],
+    threshold: f64,
+    edge: Edge,
+    after_s: f64,
+) -> Result<f64, MeasureError> {
+    crossings(times, values, threshold, edge)?.into_iter().find(|&t| t >= after_s).ok_or_else(|| {
+        MeasureError::NotFound { what: format!("{edge:?} crossing of {threshold} after {after_s:e} s") }
+    })
+}
+
+/// Delay from the first `edge_from` crossing of `from_threshold` by `from` (at or after
+/// `after_s`) to the next `edge_to` crossing of `to_threshold` by `to`. Both waveforms share
+/// `times`.
+#[allow(clippy::too_many_arguments)]
+pub fn delay(
+    times: &[f64],
+    from: &[f64],
+    from_threshold: f64,
+    edge_from: Edge,
+    to: &[f64],
+    to_threshold: f64,
+    edge_to: Edge,
+    after_s: f64,
+) -> Result<f64, MeasureError> {
+    let start = first_crossing_after(times, from, from_threshold, edge_from, after_s)?;
+    let end = first_crossing_after(times, to, to_threshold, edge_to, start)?;
+    Ok(end - start)
+}
+
+/// 10–90 % rise time of the first rising edge after `after_s` between levels `low` and
+/// `high`; the 90 % crossing is the first one after the 10 % crossing.
+pub fn rise_time_10_90(
+    times: &[f64],
+    values: &[f64],
+    low: f64,
+    high: f64,
+    after_s: f64,
+) -> Result<f64, MeasureError> {
+    let span = high - low;
+    let t10 = first_crossing_after(times, values, low + 0.1 * span, Edge::Rising, after_s)?;
+    let t90 = first_crossing_after(times, values, low + 0.9 * span, Edge::Rising, t10)?;
+    Ok(t90 - t10)
+}
+
+/// 90–10 % fall time of the first falling edge after `after_s` between `low` and `high`.
+pub fn fall_time_90_10(
+    times: &[f64],
+    values: &[f64],
+    low: f64,
+    high: f64,
+    after_s: f64,
+) -> Result<f64, MeasureError> {
+    let span = high - low;
+    let t90 = first_crossing_after(times, values, low + 0.9 * span, Edge::Falling, after_s)?;
+    let t10 = first_crossing_after(times, values, low + 0.1 * span, Edge::Falling, t90)?;
+    Ok(t10 - t90)
+}
+
+/// Number of changes of logic state with hysteresis: the state goes high above `high` and low
+/// below `low`, so noise between the two is not counted. The starting state is not a toggle.
+pub fn toggle_count(values: &[f64], low: f64, high: f64) -> usize {
+    let mut state: Option<bool> = None;
+    let mut toggles = 0;
+    for &v in values {
+        let next = if v > high {
+            Some(true)
+        } else if v < low {
+            Some(false)
+        } else {
+            state
+        };
+        if let (Some(old), Some(new)) = (state, next) {
+            if old != new {
+                toggles += 1;
+            }
+        }
+        state = next;
+    }
+    toggles
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn crossings_interpolate_linearly() {
+        // A triangle 0 → 2 → 0 over t = 0, 1, 2: 1.0 is crossed at 0.5 (rising) and 1.5.
+        let t = [0.0, 1.0, 2.0];
+        let v = [0.0, 2.0, 0.0];
+        assert_eq!(crossings(&t, &v, 1.0, Edge::Rising), Ok(vec![0.5]));
+        assert_eq!(crossings(&t, &v, 1.0, Edge::Falling), Ok(vec![1.5]));
+        assert_eq!(crossings(&t, &v, 1.0, Edge::Either), Ok(vec![0.5, 1.5]));
+        assert!(crossings(&t, &v[..2], 1.0, Edge::Rising).is_err());
+    }
+
+    #[test]
+    fn edges_and_toggles_of_a_trapezoid() {
+        // 0 V until 1, ramp to 10 V by 2, hold to 3, ramp down by 5: rise 0.8, fall 1.6.
+        let t = [0.0, 1.0, 2.0, 3.0, 5.0, 6.0];
+        let v = [0.0, 0.0, 10.0, 10.0, 0.0, 0.0];
+        let rise = rise_time_10_90(&t, &v, 0.0, 10.0, 0.0).unwrap_or(f64::NAN);
+        let fall = fall_time_90_10(&t, &v, 0.0, 10.0, 0.0).unwrap_or(f64::NAN);
+        assert!((rise - 0.8).abs() < 1e-12 && (fall - 1.6).abs() < 1e-12, "{rise} {fall}");
+        assert_eq!(toggle_count(&v, 3.0, 7.0), 2);
+        let d = delay(&t, &v, 5.0, Edge::Rising, &v, 5.0, Edge::Falling, 0.0).unwrap_or(f64::NAN);
+        assert!((d - 2.5).abs() < 1e-12, "{d}");
+    }
+}

@@ -1,0 +1,614 @@
+//! Modified nodal analysis: the validated circuit compiled into unknowns and stamps, and the
+//! Newton–Raphson loop with junction-voltage limiting that solves it at one instant.
+
+use std::collections::BTreeMap;
+
+use super::circuit::{is_ground, Circuit, Element};
+use super::devices::{critical_voltage, depletion_charge, junction_current, limit_junction_voltage};
+use super::error::SimulationError;
+use super::linear::LinearSolver;
+use super::waveform::Waveform;
+use crate::device::ebers_moll::EbersMoll;
+use crate::physics::thermal_voltage;
+
+/// Conductance from every node to ground and across every junction: keeps the matrix regular
+/// when a node is reached only through capacitors or cut-off junctions. 1 pS shifts a 10 V,
+/// 10 kΩ node by about 1 µV.
+pub const GMIN_S: f64 = 1e-12;
+
+/// A terminal: an unknown's index, or `None` for ground.
+type Pin = Option<usize>;
+
+#[derive(Debug, Clone)]
+enum Stamp {
+    Conductance {
+        a: Pin,
+        b: Pin,
+        conductance_s: f64,
+    },
+    Capacitor {
+        a: Pin,
+        b: Pin,
+        capacitance_f: f64,
+        charge: usize,
+    },
+    VoltageSource {
+        positive: Pin,
+        negative: Pin,
+        row: usize,
+        waveform: Waveform,
+    },
+    CurrentSource {
+        from: Pin,
+        to: Pin,
+        waveform: Waveform,
+    },
+    Diode {
+        anode: Pin,
+        cathode: Pin,
+        law: DiodeLaw,
+        charge: usize,
+        junction: usize,
+    },
+    Transistor {
+        collector: Pin,
+        base: Pin,
+        emitter: Pin,
+        law: TransistorLaw,
+        charges: [usize; 2],
+        junctions: [usize; 2],
+    },
+}
+
+#[derive(Debug, Clone, Copy)]
+struct DiodeLaw {
+    saturation_current_a: f64,
+    n_vt: f64,
+    critical_v: f64,
+    junction_capacitance_f: f64,
+    junction_potential_v: f64,
+    junction_grading: f64,
+    transit_time_s: f64,
+}
+
+#[derive(Debug, Clone, Copy)]
+struct TransistorLaw {
+    model: EbersMoll,
+    /// +1 NPN, −1 PNP: real voltages times `sign` are NPN-frame voltages.
+    sign: f64,
+    vt: f64,
+    critical_v: f64,
+}
+
+/// How charges turn into currents at this solve: i = a·(q − q_previous) + b·i_previous.
+/// Backward Euler: a = 1/h, b = 0. Trapezoidal: a = 2/h, b = −1.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Integration {
+    pub a: f64,
+    pub b: f64,
+}
+
+/// Everything that varies between solves besides the unknowns.
+#[derive(Debug, Clone)]
+pub(crate) struct Conditions<'a> {
+    pub time_s: f64,
+    /// Multiplies every independent source (source stepping); 1 normally.
+    pub source_scale: f64,
+    /// Added to [`GMIN_S`] from every node to ground (gmin stepping); 0 normally.
+    pub extra_gmin_s: f64,
+    /// `None` for DC: charges carry no current.
+    pub integration: Option<Integration>,
+    pub previous_charges: &'a [f64],
+    pub previous_charge_currents: &'a [f64],
+    /// (unknown, volts, siemens): nodes pulled toward a hinted voltage.
+    pub pulls: &'a [(usize, f64, f64)],
+}
+
+/// Newton–Raphson tolerances and budget.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct NewtonTolerances {
+    pub relative: f64,
+    pub voltage_v: f64,
+    pub current_a: f64,
+    pub max_iterations: usize,
+}
+
+/// A converged solve.
+#[derive(Debug, Clone)]
+pub(crate) struct Solved {
+    pub unknowns: Vec<f64>,
+    pub charges: Vec<f64>,
+    pub charge_currents: Vec<f64>,
+    pub iterations: usize,
+}
+
+/// A failed solve: where the largest update was, or the singular unknown.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) enum Failure {
+    Singular { unknown: usize },
+    NotConverged { unknown: usize, largest_update: f64, iterations: usize },
+}
+
+/// The compiled circuit.
+#[derive(Debug, Clone)]
+pub struct System {
+    /// Names of the node unknowns: the circuit's nodes, then internal ones ("Q1.base").
+    pub node_names: Vec<String>,
+    /// Names of the voltage sources, one current unknown each after the nodes.
+    pub source_names: Vec<String>,
+    stamps: Vec<Stamp>,
+    pub(crate) charge_count: usize,
+    pub(crate) junction_count: usize,
+}
+
+fn pin_voltage(unknowns: &[f64], pin: Pin) -> f64 {
+    pin.and_then(|i| unknowns.get(i).copied()).unwrap_or(0.0)
+}
+
+/// Matrix and right-hand side being assembled.
+struct Assembly<'s, S: LinearSolver> {
+    solver: &'s mut S,
+    rhs: Vec<f64>,
+}
+
+impl<S: LinearSolver> Assembly<'_, S> {
+    fn matrix(&mut self, row: Pin, column: Pin, value: f64) {
+        if let (Some(r), Some(c)) = (row, column) {
+            self.solver.add(r, c, value);
+        }
+    }
+    fn rhs(&mut self, row: Pin, value: f64) {
+        if let Some(entry) = row.and_then(|r| self.rhs.get_mut(r)) {
+            *entry += value;
+        }
+    }
+    /// A branch current i = equivalent + g·(V(a) − V(b)) leaving node a for node b.
+    fn branch(&mut self, a: Pin, b: Pin, conductance_s: f64, equivalent_a: f64) {
+        self.matrix(a, a, conductance_s);
+        self.matrix(b, b, conductance_s);
+        self.matrix(a, b, -conductance_s);
+        self.matrix(b, a, -conductance_s);
+        self.rhs(a, -equivalent_a);
+        self.rhs(b, equivalent_a);
+    }
+}
+
+impl System {
+    /// Compiles a circuit that passed [`Circuit::validate`] (validation runs again here).
+    pub fn compile(circuit: &Circuit) -> Result<System, SimulationError> {
+        circuit.validate().map_err(SimulationError::InvalidCircuit)?;
+        let mut node_index: BTreeMap<String, usize> = BTreeMap::new();
+        let mut node_names = Vec::new();
+        // External nodes first, in order of appearance, so results list them as written.
+        for element in &circuit.elements {
+            for (_, node) in element.terminals() {
+                if !is_ground(node) && !node_index.contains_key(node) {
+                    node_index.insert(node.to_string(), node_names.len());
+                    node_names.push(node.to_string());
+                }
+            }
+        }
+        let pin = |name: &str| -> Pin {
+            if is_ground(name) {
+                None
+            } else {
+                node_index.get(name).copied()
+            }
+        };
+        let mut internal = Vec::new();
+        let mut source_names = Vec::new();
+        let mut stamps = Vec::new();
+        let mut charge_count = 0;
+        let mut junction_count = 0;
+        let add_internal = |internal: &mut Vec<String>, name: String| -> Pin {
+            internal.push(name);
+            Some(node_names.len() + internal.len() - 1)
+        };
+        let mut sources = Vec::new();
+        for element in &circuit.elements {
+            match element {
+                Element::Resistor { positive_node, negative_node, resistance_ohm, .. } => {
+                    stamps.push(Stamp::Conductance {
+                        a: pin(positive_node),
+                        b: pin(negative_node),
+                        conductance_s: 1.0 / resistance_ohm,
+                    });
+                }
+                Element::Capacitor { positive_node, negative_node, capacitance_f, .. } => {
+                    stamps.push(Stamp::Capacitor {
+                        a: pin(positive_node),
+                        b: pin(negative_node),
+                        capacitance_f: *capacitance_f,
+                        charge: charge_count,
+                    });
+                    charge_count += 1;
+                }
+                Element::VoltageSource { name, positive_node, negative_node, waveform } => {
+                    sources.push((pin(positive_node), pin(negative_node), waveform.clone()));
+                    source_names.push(name.clone());
+                }
+                Element::CurrentSource { from_node, to_node, waveform, .. } => {
+                    stamps.push(Stamp::CurrentSource {
+                        from: pin(from_node),
+                        to: pin(to_node),
+                        waveform: waveform.clone(),
+                    });
+                }
+                Element::Diode { name, anode, cathode, model } => {
+                    let n_vt = model.emission_coefficient * thermal_voltage(circuit.temperature_c);
+                    let mut inner_anode = pin(anode);
+                    if model.series_resistance_ohm > 0.0 {
+                        inner_anode = add_internal(&mut internal, format!("{name}.anode"));
+                        stamps.push(Stamp::Conductance {
+                            a: pin(anode),
+                            b: inner_anode,
+                            conductance_s: 1.0 / model.series_resistance_ohm,
+                        });
+                    }
+                    stamps.push(Stamp::Diode {
+                        anode: inner_anode,
+                        cathode: pin(cathode),
+                        law: DiodeLaw {
+                            saturation_current_a: model.saturation_current_a,
+                            n_vt,
+                            critical_v: critical_voltage(model.saturation_current_a, n_vt),
+                            junction_capacitance_f: model.junction_capacitance_f,
+                            junction_potential_v: model.junction_potential_v,
+                            junction_grading: model.junction_grading,
+                            transit_time_s: model.transit_time_s,
+                        },
+                        charge: charge_count,
+                        junction: junction_count,
+                    });
+                    charge_count += 1;
+                    junction_count += 1;
+                }
+                Element::Transistor { name, collector, base, emitter, model } => {
+                    let mut inner_base = pin(base);
+                    if model.base_resistance_ohm > 0.0 {
+                        inner_base = add_internal(&mut internal, format!("{name}.base"));
+                        stamps.push(Stamp::Conductance {
+                            a: pin(base),
+                            b: inner_base,
+                            conductance_s: 1.0 / model.base_resistance_ohm,
+                        });
+                    }
+                    let mut inner_collector = pin(collector);
+                    if model.collector_resistance_ohm > 0.0 {
+                        inner_collector = add_internal(&mut internal, format!("{name}.collector"));
+                        stamps.push(Stamp::Conductance {
+                            a: pin(collector),
+                            b: inner_collector,
+                            conductance_s: 1.0 / model.collector_resistance_ohm,
+                        });
+                    }
+                    let vt = thermal_voltage(model.temperature_c);
+                    stamps.push(Stamp::Transistor {
+                        collector: inner_collector,
+                        base: inner_base,
+                        emitter: pin(emitter),
+                        law: TransistorLaw {
+                            model: *model,
+                            sign: model.polarity.sign(),
+                            vt,
+                            critical_v: critical_voltage(model.saturation_current_a, vt),
+                        },
+                        charges: [charge_count, charge_count + 1],
+                        junctions: [junction_count, junction_count + 1],
+                    });
+                    charge_count += 2;
+                    junction_count += 2;
+                }
+            }
+        }
+        let node_count = node_names.len() + internal.len();
+        for (index, (positive, negative, waveform)) in sources.into_iter().enumerate() {
+            stamps.push(Stamp::VoltageSource { positive, negative, row: node_count + index, waveform });
+        }
+        node_names.extend(internal);
+        Ok(System { node_names, source_names, stamps, charge_count, junction_count })
+    }
+
+    pub fn node_count(&self) -> usize {
+        self.node_names.len()
+    }
+
+    /// Number of unknowns: node voltages, then voltage-source currents.
+    pub fn size(&self) -> usize {
+        self.node_names.len() + self.source_names.len()
+    }
+
+    /// Index of a node unknown by name; `None` for ground or an unknown name.
+    pub fn node(&self, name: &str) -> Option<usize> {
+        self.node_names.iter().position(|n| n == name)
+    }
+
+    /// A readable name for unknown `index`.
+    pub fn unknown_name(&self, index: usize) -> String {
+        if let Some(name) = self.node_names.get(index) {
+            return name.clone();
+        }
+        match self.source_names.get(index.saturating_sub(self.node_names.len())) {
+            Some(source) => format!("the current of {source}"),
+            None => format!("unknown #{index}"),
+        }
+    }
+
+    /// Every corner of every source waveform strictly after `time_s`: the earliest.
+    pub fn next_corner_after(&self, time_s: f64) -> Option<f64> {
+        self.stamps
+            .iter()
+            .filter_map(|stamp| match stamp {
+                Stamp::VoltageSource { waveform, .. } | Stamp::CurrentSource { waveform, .. } => {
+                    waveform.next_corner_after(time_s)
+                }
+                _ => None,
+            })
+            .min_by(f64::total_cmp)
+    }
+
+    /// Junction voltages (NPN frame for transistors) implied by the unknowns.
+    pub(crate) fn junction_voltages(&self, unknowns: &[f64]) -> Vec<f64> {
+        let mut junctions = vec![0.0; self.junction_count];
+        for stamp in &self.stamps {
+            match stamp {
+                Stamp::Diode { anode, cathode, junction, .. } => {
+                    if let Some(slot) = junctions.get_mut(*junction) {
+                        *slot = pin_voltage(unknowns, *anode) - pin_voltage(unknowns, *cathode);
+                    }
+                }
+                Stamp::Transistor { collector, base, emitter, law, junctions: [je, jc], .. } => {
+                    let vb = pin_voltage(unknowns, *base);
+                    if let Some(slot) = junctions.get_mut(*je) {
+                        *slot = law.sign * (vb - pin_voltage(unknowns, *emitter));
+                    }
+                    if let Some(slot) = junctions.get_mut(*jc) {
+                        *slot = law.sign * (vb - pin_voltage(unknowns, *collector));
+                    }
+                }
+                _ => {}
+            }
+        }
+        junctions
+    }
+
+    /// Starting junction voltages for limiting: those of `unknowns`, but never above the
+    /// critical voltage, so a wild start is limited on the first iteration.
+    pub(crate) fn starting_junctions(&self, unknowns: &[f64]) -> Vec<f64> {
+        let mut junctions = self.junction_voltages(unknowns);
+        for stamp in &self.stamps {
+            match stamp {
+                Stamp::Diode { law, junction, .. } => {
+                    if let Some(v) = junctions.get_mut(*junction) {
+                        *v = v.min(law.critical_v);
+                    }
+                }
+                Stamp::Transistor { law, junctions: pair, .. } => {
+                    for j in pair {
+                        if let Some(v) = junctions.get_mut(*j) {
+                            *v = v.min(law.critical_v);
+                        }
+                    }
+                }
+                _ => {}
+            }
+        }
+        junctions
+    }
+
+    /// Stamps the system linearised at `junctions` (already limited) and `unknowns`;
+    /// returns the right-hand side and fills charges and charge currents.
+    fn assemble<S: LinearSolver>(
+        &self,
+        solver: &mut S,
+        unknowns: &[f64],
+        junctions: &[f64],
+        conditions: &Conditions,
+        charges: &mut [f64],
+        charge_currents: &mut [f64],
+    ) -> Vec<f64> {
+        let size = self.size();
+        solver.reset(size);
+        let mut assembly = Assembly { solver, rhs: vec![0.0; size] };
+        let node_gmin = GMIN_S + conditions.extra_gmin_s;
+        for node in 0..self.node_count() {
+            assembly.matrix(Some(node), Some(node), node_gmin);
+        }
+        for &(node, voltage_v, conductance_s) in conditions.pulls {
+            assembly.matrix(Some(node), Some(node), conductance_s);
+            assembly.rhs(Some(node), conductance_s * voltage_v);
+        }
+        // Charge branch: q(v), C(v) at branch voltage v → companion conductance and current.
+        let mut charge_branch =
+            |assembly: &mut Assembly<S>, a: Pin, b: Pin, slot: usize, v: f64, q: f64, c: f64| {
+                if let Some(entry) = charges.get_mut(slot) {
+                    *entry = q;
+                }
+                let Some(integration) = conditions.integration else { return };
+                let q_previous = conditions.previous_charges.get(slot).copied().unwrap_or(0.0);
+                let i_previous = conditions.previous_charge_currents.get(slot).copied().unwrap_or(0.0);
+                let current = integration.a * (q - q_previous) + integration.b * i_previous;
+                if let Some(entry) = charge_currents.get_mut(slot) {
+                    *entry = current;
+                }
+                let conductance = integration.a * c;
+                assembly.branch(a, b, conductance, current - conductance * v);
+            };
+        for stamp in &self.stamps {
+            match stamp {
+                Stamp::Conductance { a, b, conductance_s } => assembly.branch(*a, *b, *conductance_s, 0.0),
+                Stamp::Capacitor { a, b, capacitance_f, charge } => {
+                    let v = pin_voltage(unknowns, *a) - pin_voltage(unknowns, *b);
+                    charge_branch(&mut assembly, *a, *b, *charge, v, capacitance_f * v, *capacitance_f);
+                }
+                Stamp::VoltageSource { positive, negative, row, waveform } => {
+                    let r = Some(*row);
+                    assembly.matrix(*positive, r, 1.0);
+                    assembly.matrix(*negative, r, -1.0);
+                    assembly.matrix(r, *positive, 1.0);
+                    assembly.matrix(r, *negative, -1.0);
+                    assembly.rhs(r, conditions.source_scale * waveform.value_at(conditions.time_s));
+                }
+                Stamp::CurrentSource { from, to, waveform } => {
+                    let current = conditions.source_scale * waveform.value_at(conditions.time_s);
+                    assembly.rhs(*from, -current);
+                    assembly.rhs(*to, current);
+                }
+                Stamp::Diode { anode, cathode, law, charge, junction } => {
+                    let v = junctions.get(*junction).copied().unwrap_or(0.0);
+                    let (i, g) = junction_current(v, law.saturation_current_a, law.n_vt);
+                    let (i, g) = (i + GMIN_S * v, g + GMIN_S);
+                    assembly.branch(*anode, *cathode, g, i - g * v);
+                    let (qj, cj) = depletion_charge(
+                        v,
+                        law.junction_capacitance_f,
+                        law.junction_potential_v,
+                        law.junction_grading,
+                    );
+                    let (id, gd) = junction_current(v, law.saturation_current_a, law.n_vt);
+                    let q = qj + law.transit_time_s * id;
+                    let c = cj + law.transit_time_s * gd;
+                    charge_branch(&mut assembly, *anode, *cathode, *charge, v, q, c);
+                }
+                Stamp::Transistor {
+                    collector,
+                    base,
+                    emitter,
+                    law,
+                    charges: [qe, qc],
+                    junctions: [je, jc],
+                } => {
+                    let s = law.sign;
+                    let model = &law.model;
+                    let vbe = junctions.get(*je).copied().unwrap_or(0.0);
+                    let vbc = junctions.get(*jc).copied().unwrap_or(0.0);
+                    let op = model.evaluate(vbe, vbc);
+                    // Real-frame branch voltages at the linearisation point.
+                    let (vbe_real, vbc_real) = (s * vbe, s * vbc);
+                    let ic = s * op.collector_current_a + GMIN_S * -vbc_real;
+                    let ib = s * op.base_current_a + GMIN_S * (vbe_real + vbc_real);
+                    let (gc_be, gc_bc) = (op.dic_dvbe, op.dic_dvbc - GMIN_S);
+                    let (gb_be, gb_bc) = (op.dib_dvbe + GMIN_S, op.dib_dvbc + GMIN_S);
+                    let rows = [
+                        (*collector, ic, gc_be, gc_bc),
+                        (*base, ib, gb_be, gb_bc),
+                        (*emitter, -(ic + ib), -(gc_be + gb_be), -(gc_bc + gb_bc)),
+                    ];
+                    for (row, current, g_be, g_bc) in rows {
+                        assembly.matrix(row, *base, g_be + g_bc);
+                        assembly.matrix(row, *emitter, -g_be);
+                        assembly.matrix(row, *collector, -g_bc);
+                        assembly.rhs(row, -(current - g_be * vbe_real - g_bc * vbc_real));
+                    }
+                    // Charges: τF·IF + emitter depletion on B–E, τR·IR + collector depletion on B–C.
+                    let (i_forward, g_forward) = junction_current(vbe, model.saturation_current_a, law.vt);
+                    let (i_reverse, g_reverse) = junction_current(vbc, model.saturation_current_a, law.vt);
+                    let (qje, cje) = depletion_charge(
+                        vbe,
+                        model.emitter_junction_capacitance_f,
+                        model.emitter_junction_potential_v,
+                        model.junction_grading,
+                    );
+                    let (qjc, cjc) = depletion_charge(
+                        vbc,
+                        model.collector_junction_capacitance_f,
+                        model.collector_junction_potential_v,
+                        model.junction_grading,
+                    );
+                    let q_be = model.forward_transit_s * i_forward + qje;
+                    let c_be = model.forward_transit_s * g_forward + cje;
+                    let q_bc = model.reverse_transit_s * i_reverse + qjc;
+                    let c_bc = model.reverse_transit_s * g_reverse + cjc;
+                    // Real frame: charge s·q at branch voltage s·v; the capacitance is unchanged.
+                    charge_branch(&mut assembly, *base, *emitter, *qe, vbe_real, s * q_be, c_be);
+                    charge_branch(&mut assembly, *base, *collector, *qc, vbc_real, s * q_bc, c_bc);
+                }
+            }
+        }
+        assembly.rhs
+    }
+
+    /// Limits every junction's proposed voltage against `junctions` (updated in place);
+    /// true when any was limited.
+    fn limit_junctions(&self, proposed: &[f64], junctions: &mut [f64]) -> bool {
+        let mut limited_any = false;
+        let mut limit = |slot: usize, n_vt: f64, critical_v: f64| {
+            let (Some(previous), Some(&new)) = (junctions.get_mut(slot), proposed.get(slot)) else { return };
+            let (value, limited) = limit_junction_voltage(new, *previous, n_vt, critical_v);
+            *previous = value;
+            limited_any |= limited;
+        };
+        for stamp in &self.stamps {
+            match stamp {
+                Stamp::Diode { law, junction, .. } => limit(*junction, law.n_vt, law.critical_v),
+                Stamp::Transistor { law, junctions: [je, jc], .. } => {
+                    limit(*je, law.vt, law.critical_v);
+                    limit(*jc, law.vt, law.critical_v);
+                }
+                _ => {}
+            }
+        }
+        limited_any
+    }
+
+    /// Newton–Raphson from `start`; `junctions` holds the limiting history and is left at the
+    /// last evaluated junction voltages.
+    pub(crate) fn newton<S: LinearSolver>(
+        &self,
+        solver: &mut S,
+        start: &[f64],
+        junctions: &mut Vec<f64>,
+        conditions: &Conditions,
+        tolerances: NewtonTolerances,
+    ) -> Result<Solved, Failure> {
+        let size = self.size();
+        let node_count = self.node_count();
+        let mut unknowns = start.to_vec();
+        unknowns.resize(size, 0.0);
+        junctions.resize(self.junction_count, 0.0);
+        let mut charges = vec![0.0; self.charge_count];
+        let mut charge_currents = vec![0.0; self.charge_count];
+        let mut worst = (0, f64::INFINITY);
+        let mut limited = self.limit_junctions(&self.junction_voltages(&unknowns), junctions);
+        for iteration in 1..=tolerances.max_iterations {
+            let rhs =
+                self.assemble(solver, &unknowns, junctions, conditions, &mut charges, &mut charge_currents);
+            let next = solver.solve(&rhs).map_err(|e| Failure::Singular { unknown: e.column })?;
+            // Largest update relative to its tolerance decides convergence and names the
+            // culprit when the budget runs out.
+            let mut worst_ratio = 0.0;
+            worst = (0, 0.0);
+            for (index, (&new, &old)) in next.iter().zip(&unknowns).enumerate() {
+                let absolute = if index < node_count { tolerances.voltage_v } else { tolerances.current_a };
+                let allowed = tolerances.relative * new.abs().max(old.abs()) + absolute;
+                let ratio = (new - old).abs() / allowed;
+                if !(ratio <= worst_ratio) {
+                    worst_ratio = ratio;
+                    worst = (index, (new - old).abs());
+                }
+            }
+            if !worst_ratio.is_finite() {
+                return Err(Failure::NotConverged {
+                    unknown: worst.0,
+                    largest_update: worst.1,
+                    iterations: iteration,
+                });
+            }
+            let converged = worst_ratio <= 1.0 && !limited && iteration > 1;
+            unknowns = next;
+            limited = self.limit_junctions(&self.junction_voltages(&unknowns), junctions);
+            if converged {
+                // Charges at the solution itself (not the last linearisation point), so the
+                // stored history is consistent with the reported voltages.
+                let exact = self.junction_voltages(&unknowns);
+                self.assemble(solver, &unknowns, &exact, conditions, &mut charges, &mut charge_currents);
+                return Ok(Solved { unknowns, charges, charge_currents, iterations: iteration });
+            }
+        }
+        Err(Failure::NotConverged {
+            unknown: worst.0,
+            largest_update: worst.1,
+            iterations: tolerances.max_iterations,
+        })
+    }
+}
