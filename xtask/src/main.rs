@@ -121,7 +121,6 @@ fn test() -> Result<(), String> {
     run("cargo", &["fmt", "--all", "--check"])?;
     run("cargo", &["clippy", "--workspace", "--all-targets", "--quiet", "--", "-D", "warnings"])?;
     run("cargo", &["test", "--workspace", "--quiet"])?;
-    run("cargo", &["test", "--workspace", "--doc", "--quiet"])?;
     eseries_check()?;
     browser_tests()?;
     eprintln!("\nall checks passed");
