@@ -12,7 +12,7 @@ cargo xtask <command>
   test    run every check: formatting, lints, unit and cross-check tests, CLI tests,
           and the IEC 60063 table cross-check against the PyPI package eseries
           (installed into target/xtask-venv on first use)
-  bench   run the benchmarks (release build) and print medians
+  bench   run the benchmarks (core, release build; the page in Chromium) and print medians
   browser-test  build the page and run only the browser tests
   page    build the offline page out/flipwright.html and open it in a browser
           (or print its path where none can be opened)
@@ -275,7 +275,25 @@ fn browser_tests() -> Result<(), String> {
 }
 
 fn bench() -> Result<(), String> {
-    run("cargo", &["bench", "-p", "flipwright-core", "--bench", "stage"])
+    run("cargo", &["bench", "-p", "flipwright-core"])?;
+    ensure_browser()?;
+    let page = build_page(false)?;
+    let dir = root().join("tests/browser");
+    if !dir.join("node_modules/playwright-core").exists() {
+        run("npm", &["ci", "--prefix", &dir.to_string_lossy(), "--no-audit", "--no-fund"])?;
+    }
+    eprintln!("$ node tests/browser/page-bench.mjs");
+    let status = Command::new("node")
+        .arg("page-bench.mjs")
+        .current_dir(&dir)
+        .env("FLIPWRIGHT_PAGE", &page)
+        .status()
+        .map_err(|e| format!("cannot start node: {e}"))?;
+    if status.success() {
+        Ok(())
+    } else {
+        Err("page benchmark failed".to_string())
+    }
 }
 
 fn main() -> ExitCode {
