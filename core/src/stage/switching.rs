@@ -128,6 +128,31 @@ fn parallel(a: f64, b: f64) -> f64 {
     a * b / (a + b)
 }
 
+/// Bell's rule for the commutating capacitor: C1·(R1∥R2) = 10 × the switching time.
+pub fn commutating_rule_bell_f(switching_time_s: f64, r1_ohm: f64, r2_ohm: f64) -> f64 {
+    10.0 * switching_time_s / parallel(r1_ohm, r2_ohm)
+}
+
+/// Bell's maximum rate f = 1/(2.3·C1·(R1∥R2)) (infinite without C1).
+pub fn max_rate_rule_bell_hz(c1_f: f64, r1_ohm: f64, r2_ohm: f64) -> f64 {
+    let tau = c1_f * parallel(r1_ohm, r2_ohm);
+    if tau > 0.0 {
+        1.0 / (2.3 * tau)
+    } else {
+        f64::INFINITY
+    }
+}
+
+/// The Millman–Taub-style rule f = 1/(2·C1·(R1∥R2)) (infinite without C1).
+pub fn max_rate_rule_half_hz(c1_f: f64, r1_ohm: f64, r2_ohm: f64) -> f64 {
+    let tau = c1_f * parallel(r1_ohm, r2_ohm);
+    if tau > 0.0 {
+        1.0 / (2.0 * tau)
+    } else {
+        f64::INFINITY
+    }
+}
+
 /// Scales applied to the passive values when estimating at a tolerance corner.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct PassiveScale {
@@ -186,7 +211,7 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
     let charge = SwitchingCharge { stored_excess_c, active_c, junction_c, total_c };
     let r_parallel = parallel(r1, r2);
     let commutating_min_f = total_c / swing;
-    let commutating_rule_f = switching_time_s.map(|t| 10.0 * t / r_parallel);
+    let commutating_rule_f = switching_time_s.map(|t| commutating_rule_bell_f(t, r1, r2));
     // With enough C1 the step itself removes the stored charge and charges the junctions, so
     // the transition is about the rise of one side and the fall of the other; with too little,
     // the full turn-on delay and storage add to it.
@@ -223,16 +248,8 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
         transition_s,
         recovery_time_constant_s,
         trigger_recovery_s,
-        max_rate_rule_bell_hz: if recovery_time_constant_s > 0.0 {
-            1.0 / (2.3 * recovery_time_constant_s)
-        } else {
-            f64::INFINITY
-        },
-        max_rate_rule_half_hz: if recovery_time_constant_s > 0.0 {
-            1.0 / (2.0 * recovery_time_constant_s)
-        } else {
-            f64::INFINITY
-        },
+        max_rate_rule_bell_hz: max_rate_rule_bell_hz(c1, r1, r2),
+        max_rate_rule_half_hz: max_rate_rule_half_hz(c1, r1, r2),
         max_toggle_rate_hz: 1.0 / resolving.max(1e-15),
         min_trigger_amplitude_v,
         available_trigger_amplitude_v: available,

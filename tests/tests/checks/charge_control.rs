@@ -2,7 +2,10 @@
 
 use flipwright::stage::margins::evaluate_corner;
 use flipwright::stage::network::Corner;
-use flipwright::stage::switching::{estimate, ChargeControlPoint, PassiveScale, SwitchingEstimate};
+use flipwright::stage::switching::{
+    commutating_rule_bell_f, estimate, max_rate_rule_bell_hz, max_rate_rule_half_hz, ChargeControlPoint,
+    PassiveScale, SwitchingEstimate,
+};
 use flipwright::stage::StageDesign;
 
 use crate::handbook::{assert_relative, exact_transistor, fixed_bias_input};
@@ -84,17 +87,28 @@ fn formulas_refuse_drive_that_cannot_reach_the_end_point() {
 // Bell, *Solid State Pulse Circuits*, ex. 13.4: R1 16.1 kΩ, R2 27 kΩ, switching time 260 ns
 // → C1 = 10·t/(R1∥R2) ≈ 258 pF and f(max) = 1/(2.3·C1·(R1∥R2)) ≈ 167 kHz.
 //
-// The module has no pure function for either rule: C1 = 10·t/(R1∥R2) is only reachable as
-// `SwitchingEstimate::commutating_rule_f`, whose t is the module's own switching-time estimate
-// for a design. The test therefore builds a design with Bell's R1 and R2 and chooses τS so that
-// the estimated switching time is exactly 260 ns (ts is linear in τS; delay, rise and fall do
-// not depend on it).
+// The rules are checked twice: directly through the pure functions, and through `estimate` on
+// a design with Bell's R1 and R2 whose τS is chosen so that the estimated switching time is
+// exactly 260 ns (ts is linear in τS; delay, rise and fall do not depend on it).
 // ---------------------------------------------------------------------------------------------
 
 /// Bell ex. 13.1/13.4 stage (VCC 5 V, VBB 5 V, RC 2.4 kΩ, R1 16.1 kΩ, R2 27 kΩ) with a
 /// transistor of hFE 150 (Bell's hFE(min) 70 would not saturate with R2 = 27 kΩ in this
 /// model's exact balance, and the estimate then has no rise time), storage constant `tau_s`
 /// and junction capacitances of 0.1 pF.
+#[test]
+fn pure_rule_functions_reproduce_bell_example_13_4() {
+    let (r1, r2) = (16.1e3, 27e3);
+    let c1 = commutating_rule_bell_f(260e-9, r1, r2);
+    // Bell ex. 13.4: C1 ≈ 258 pF, f(max) ≈ 167 kHz (both quoted to 3 figures: 0.5 %).
+    assert_relative(c1, 258e-12, 0.005, "Bell ex. 13.4 C1 (pure rule)");
+    assert_relative(max_rate_rule_bell_hz(c1, r1, r2), 167e3, 0.005, "Bell ex. 13.4 f(max) (pure rule)");
+    // The 1/(2·C1·R∥) form is larger by exactly 2.3/2.
+    let ratio = max_rate_rule_half_hz(c1, r1, r2) / max_rate_rule_bell_hz(c1, r1, r2);
+    assert!((ratio - 1.15).abs() < 1e-12, "ratio {ratio}");
+    assert!(max_rate_rule_bell_hz(0.0, r1, r2).is_infinite(), "no C1: no recovery limit");
+}
+
 fn bell_estimate(tau_s: f64, c1: f64) -> SwitchingEstimate {
     let mut transistor = exact_transistor(150.0, 0.2, 0.7, 0.0);
     transistor.storage_time_constant_s = Some(tau_s);
