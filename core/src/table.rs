@@ -267,8 +267,18 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
     let worst = |kind: K| report.margins.iter().find(|m| m.kind == kind);
     let vce_needed = worst(K::CollectorEmitterVoltage).map(|m| sheet.vceo_v - m.worst).unwrap_or(0.0);
     let vebo_needed = worst(K::ReverseBaseEmitter).map(|m| sheet.vebo_v - m.worst).unwrap_or(0.0);
+    let vcb_needed = worst(K::CollectorBaseVoltage).map(|m| sheet.vcbo_v - m.worst).unwrap_or(0.0);
     let ic_needed = worst(K::CollectorCurrent).map(|m| sheet.ic_max_a - m.worst).unwrap_or(0.0);
     let p_needed = report.worst_case.transistor_dissipation_w;
+    // Datasheets rate Ptot at 25 °C; derate linearly to the maximum junction temperature to
+    // find the 25 °C rating that still covers the dissipation at t_max.
+    let t_junction = crate::stage::margins::max_junction_temperature_c(sheet.material);
+    let t_max = input.conditions.t_max_c;
+    let ptot_25_needed = if t_max > 25.0 && t_max < t_junction {
+        p_needed * (t_junction - 25.0) / (t_junction - t_max)
+    } else {
+        p_needed
+    };
     // hFE(min) at 25 °C that would just give the minimum overdrive at the worst corner.
     let hfe_needed = worst(K::Overdrive)
         .filter(|m| m.worst > 0.0 && m.worst.is_finite())
@@ -304,13 +314,13 @@ pub fn component_table(design: &StageDesign, report: &StageReport, stage_number:
                 format_quantity(p_needed, Unit::Watt)
             ),
             rating_text: format!(
-                "VCEO ≥ {}, VEBO ≥ {}, IC ≥ {}, hFE(min) ≥ {:.0}, Ptot ≥ {} at {} °C",
+                "VCEO ≥ {}, VCBO ≥ {}, VEBO ≥ {}, IC ≥ {}, hFE(min) ≥ {:.0}, Ptot(25 °C) ≥ {}",
                 format_quantity(vce_needed, Unit::Volt),
+                format_quantity(vcb_needed, Unit::Volt),
                 format_quantity(vebo_needed, Unit::Volt),
                 format_quantity(ic_needed, Unit::Ampere),
                 hfe_needed.ceil(),
-                format_quantity(p_needed, Unit::Watt),
-                input.conditions.t_max_c
+                format_quantity(ptot_25_needed, Unit::Watt)
             ),
             meets: transistor_ok,
         });

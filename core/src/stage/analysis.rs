@@ -115,6 +115,9 @@ fn advice(kind: MarginKind, limiting: &[(Parameter, f64)], design: &StageDesign)
         MarginKind::OutputSwing => format!("raise R1 and R2 together (less loading of the OFF collector) or raise the supply; most limiting: {top}"),
         MarginKind::ReverseBaseEmitter => "reduce the bias supply or C1, add a clamp diode from base to emitter, or fit a transistor with a higher VEBO".to_string(),
         MarginKind::CollectorEmitterVoltage => "fit a transistor with a higher VCEO or lower the supply".to_string(),
+        MarginKind::CollectorBaseVoltage => {
+            "fit a transistor with a higher VCBO, lower the supply or the bias rail, or reduce C1".to_string()
+        }
         MarginKind::CollectorCurrent => "raise RC to lower the collector current, or fit a transistor rated for more current".to_string(),
         MarginKind::TransistorDissipation => "raise RC (less current) or fit a transistor with a higher Ptot; check the derating at the highest temperature".to_string(),
         MarginKind::ToggleRate => "lower C1 or R1∥R2 (raise the stage current), shorten the trigger network's recovery (smaller Rt·Ct), or fit a faster transistor".to_string(),
@@ -249,17 +252,30 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
             .filter_map(|e| e.min_trigger_amplitude_v)
             .fold(min_amplitude, f64::max);
         let available = switching.available_trigger_amplitude_v;
+        // Driven by an identical stage, the trigger at the worst corner is the worst-case swing.
+        let worst_available = match input.requirements.trigger_amplitude_v {
+            Some(amplitude) => amplitude,
+            None => worst_case
+                .margins
+                .iter()
+                .find(|m| m.kind == MarginKind::OutputSwing)
+                .map_or(available, |m| m.worst.min(available)),
+        };
         let required = required_value(MarginKind::TriggerAmplitude, design);
-        let pass = available / worst_min >= required;
+        let pass = worst_available / worst_min >= required;
         margins.push(MarginReport {
             kind: MarginKind::TriggerAmplitude,
             title: MarginKind::TriggerAmplitude.title().to_string(),
             unit: String::new(),
             nominal: available / min_amplitude,
-            worst: available / worst_min,
+            worst: worst_available / worst_min,
             required,
             pass,
-            worst_corner: vec!["Ct: low".to_string(), "hFE: high (most stored charge)".to_string()],
+            worst_corner: vec![
+                "Ct: low".to_string(),
+                "hFE: high (most stored charge)".to_string(),
+                "trigger: the worst-case swing when none is given".to_string(),
+            ],
             limiting: vec!["trigger charge through Ct".to_string()],
             advice: if pass { String::new() } else { advice(MarginKind::TriggerAmplitude, &[], design) },
         });

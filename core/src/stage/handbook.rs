@@ -59,7 +59,8 @@ pub fn analyse_state(
     let off_device = devices[off_side];
     let ic = solution.on_collector_current_a;
     let ib = solution.on_base_current_a;
-    let overdrive = if ic > 0.0 { on_device.hfe * ib / ic } else { f64::INFINITY };
+    // IC ≤ 0 means the ON transistor is not switching any current: no usable state.
+    let overdrive = if ic > 0.0 { on_device.hfe * ib / ic } else { 0.0 };
     let off_vbe = base[off_side] - emitter;
     let branch_currents: Vec<(&'static str, f64)> =
         network.resistors.iter().map(|r| (r.name, StageNetwork::resistor_current(r, v))).collect();

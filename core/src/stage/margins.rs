@@ -24,6 +24,8 @@ pub enum MarginKind {
     ReverseBaseEmitter,
     /// VCEO minus the largest collector–emitter voltage (≥ 0).
     CollectorEmitterVoltage,
+    /// VCBO minus the largest collector–base voltage, DC or transient (≥ 0).
+    CollectorBaseVoltage,
     /// IC(max) rating minus the largest collector current (≥ 0).
     CollectorCurrent,
     /// Derated Ptot minus the largest transistor dissipation (≥ 0).
@@ -43,6 +45,7 @@ impl MarginKind {
             MarginKind::OutputSwing => "output swing",
             MarginKind::ReverseBaseEmitter => "reverse base–emitter voltage against VEBO",
             MarginKind::CollectorEmitterVoltage => "collector–emitter voltage against VCEO",
+            MarginKind::CollectorBaseVoltage => "collector–base voltage against VCBO",
             MarginKind::CollectorCurrent => "collector current against IC(max)",
             MarginKind::TransistorDissipation => "transistor dissipation against derated Ptot",
             MarginKind::ToggleRate => "estimated maximum toggle rate against the requirement",
@@ -55,7 +58,8 @@ impl MarginKind {
             MarginKind::Cutoff
             | MarginKind::OutputSwing
             | MarginKind::ReverseBaseEmitter
-            | MarginKind::CollectorEmitterVoltage => "V",
+            | MarginKind::CollectorEmitterVoltage
+            | MarginKind::CollectorBaseVoltage => "V",
             MarginKind::CollectorCurrent => "A",
             MarginKind::TransistorDissipation => "W",
             _ => "",
@@ -72,6 +76,9 @@ pub struct CornerMetrics {
     /// Largest reverse VBE of either transistor (DC, or the transient estimate), V.
     pub reverse_base_emitter_v: f64,
     pub max_collector_emitter_v: f64,
+    /// Largest collector–base voltage of the OFF transistor, DC or while its base is pushed
+    /// down at turn-off, V.
+    pub max_collector_base_v: f64,
     pub max_collector_current_a: f64,
     pub max_transistor_dissipation_w: f64,
     /// Ptot derated linearly to zero at the maximum junction temperature.
@@ -121,6 +128,7 @@ pub fn evaluate_corner(
         output_swing_v: f64::INFINITY,
         reverse_base_emitter_v: 0.0,
         max_collector_emitter_v: 0.0,
+        max_collector_base_v: 0.0,
         max_collector_current_a: 0.0,
         max_transistor_dissipation_w: 0.0,
         derated_ptot_w: derated_ptot(sheet.ptot_w, sheet.material, corner.temperature_c),
@@ -128,31 +136,41 @@ pub fn evaluate_corner(
         supply_power_w: 0.0,
     };
     let c1 = values.commutating_capacitor_f;
-    let coupling = if c1 > 0.0 { c1 / (c1 + sheet.cib_f) } else { 0.0 };
     for state in &states {
         let on_device = devices[state.on_side];
         metrics.overdrive = metrics.overdrive.min(state.overdrive);
         metrics.cutoff_margin_v = metrics.cutoff_margin_v.min(state.cutoff_margin_v);
         metrics.output_swing_v = metrics.output_swing_v.min(state.output_swing_v);
-        // When this state is entered, the transistor turning off has its base at VBE(sat)
-        // and receives the falling collector step through C1 (divided by its input
-        // capacitance); a base-steered trigger pushes it beyond the diode's knee first. The
-        // two arrive one after the other (the step follows the transition the trigger
-        // starts), so the larger is taken.
-        let trigger_push = match values.trigger {
+        // The transistor turned off when this state is entered had its base at VBE(sat). A
+        // base-steered trigger first pulls that base down through Ct (beyond the diode's
+        // knee); then the other collector falls by the swing and C1 carries that step to the
+        // same base. Both charges land within the transition, far faster than the base
+        // recovers through R1∥R2, so they add, shared by the base node's capacitance (Cib,
+        // Cob, C1, and Ct while the diode conducts). The charge spent removing the stored base
+        // charge is not subtracted, which keeps the estimate on the safe side.
+        let (trigger_charge, trigger_capacitance) = match values.trigger {
             Some(t) if t.steering == Steering::Base => {
                 let amplitude = available_trigger_amplitude(design, state.output_swing_v);
-                let knee = design.diode().forward_voltage_v - (on_device.vbe_sat_v - on_device.vce_sat_v);
-                (amplitude - knee.max(0.0)).max(0.0) * t.trigger_capacitor_f
-                    / (t.trigger_capacitor_f + sheet.cib_f)
+                let knee = design
+                    .diode()
+                    .forward_voltage_at((0.1 * state.on_base_current_a).max(1e-9), corner.temperature_c);
+                let gap = (knee - (on_device.vbe_sat_v - on_device.vce_sat_v)).max(0.0);
+                ((amplitude - gap).max(0.0) * t.trigger_capacitor_f, t.trigger_capacitor_f)
             }
-            _ => 0.0,
+            _ => (0.0, 0.0),
         };
-        let transient_reverse = (state.output_swing_v * coupling).max(trigger_push) - on_device.vbe_sat_v;
+        let base_capacitance = sheet.cib_f + sheet.cob_f + c1 + trigger_capacitance;
+        let injected = state.output_swing_v * c1 + trigger_charge;
+        let transient_reverse =
+            if base_capacitance > 0.0 { injected / base_capacitance - on_device.vbe_sat_v } else { 0.0 };
         let dc_reverse = -state.off_base_emitter_v;
         metrics.reverse_base_emitter_v =
             metrics.reverse_base_emitter_v.max(dc_reverse).max(transient_reverse);
         metrics.max_collector_emitter_v = metrics.max_collector_emitter_v.max(state.off_collector_emitter_v);
+        let off_collector_base_dc = state.off_collector_emitter_v - state.off_base_emitter_v;
+        let off_collector_base_transient = state.off_collector_emitter_v + transient_reverse.max(0.0);
+        metrics.max_collector_base_v =
+            metrics.max_collector_base_v.max(off_collector_base_dc).max(off_collector_base_transient);
         metrics.max_collector_current_a = metrics.max_collector_current_a.max(state.on_collector_current_a);
         metrics.max_transistor_dissipation_w = metrics
             .max_transistor_dissipation_w
@@ -189,6 +207,7 @@ pub fn margin_value(kind: MarginKind, metrics: &CornerMetrics, design: &StageDes
         MarginKind::OutputSwing => metrics.output_swing_v,
         MarginKind::ReverseBaseEmitter => sheet.vebo_v - metrics.reverse_base_emitter_v,
         MarginKind::CollectorEmitterVoltage => sheet.vceo_v - metrics.max_collector_emitter_v,
+        MarginKind::CollectorBaseVoltage => sheet.vcbo_v - metrics.max_collector_base_v,
         MarginKind::CollectorCurrent => sheet.ic_max_a - metrics.max_collector_current_a,
         MarginKind::TransistorDissipation => metrics.derated_ptot_w - metrics.max_transistor_dissipation_w,
         MarginKind::LoopGain | MarginKind::ToggleRate | MarginKind::TriggerAmplitude => return None,
@@ -210,12 +229,13 @@ pub fn required_value(kind: MarginKind, design: &StageDesign) -> f64 {
 }
 
 /// The DC margins found from piecewise corner metrics.
-pub const DC_MARGINS: [MarginKind; 7] = [
+pub const DC_MARGINS: [MarginKind; 8] = [
     MarginKind::Overdrive,
     MarginKind::Cutoff,
     MarginKind::OutputSwing,
     MarginKind::ReverseBaseEmitter,
     MarginKind::CollectorEmitterVoltage,
+    MarginKind::CollectorBaseVoltage,
     MarginKind::CollectorCurrent,
     MarginKind::TransistorDissipation,
 ];

@@ -105,6 +105,8 @@ pub struct StageNetwork {
     pub transistors: [TransistorPins; 2],
     pub diodes: Vec<DiodePins>,
     pub corner: Corner,
+    /// The steering diodes' law at this corner's temperature.
+    pub diode_law: DiodeLaw,
 }
 
 /// Why a network could not be solved.
@@ -255,6 +257,11 @@ impl StageNetwork {
             ],
             diodes,
             corner: *corner,
+            diode_law: DiodeLaw {
+                saturation_current_a: design.diode().saturation_current_a(corner.temperature_c),
+                emission_coefficient: design.diode().emission_coefficient,
+                temperature_c: corner.temperature_c,
+            },
         }
     }
 
@@ -350,6 +357,26 @@ impl StageNetwork {
         let off_device = devices[off_side];
         // Leakage of the OFF transistor flows from its collector into its base.
         stamp_current(&mut rhs, off.collector, off.base, off_device.icbo_a);
+        // A base-steering diode on the ON side sits between the base (VBE(sat)) and, through
+        // Rt, its own collector (VCE(sat)): it is forward biased by VBE(sat) − VCE(sat) and
+        // takes a real DC current from the base. Both ends are pinned by the ON transistor,
+        // so the current follows from VF(I) + I·Rt = VBE(sat) − VCE(sat) alone.
+        let mut steering_current = None;
+        for pins in &self.diodes {
+            if pins.anode != on.base {
+                continue;
+            }
+            let Some(rt) = self.resistors.iter().find(|r| r.from == pins.cathode || r.to == pins.cathode)
+            else {
+                continue;
+            };
+            let bias = on_device.vbe_sat_v - on_device.vce_sat_v;
+            let current = self.diode_law.conduction_current(bias, rt.resistance_ohm);
+            if current > 0.0 {
+                stamp_current(&mut rhs, on.base, on.collector, current);
+                steering_current = Some((pins.cathode, current * rt.resistance_ohm));
+            }
+        }
         // ON transistor: VBE and VCE held by two sources whose currents are IB and IC.
         let base_row = n;
         let collector_row = n + 1;
@@ -366,7 +393,13 @@ impl StageNetwork {
             matrix.solve(&rhs).map_err(|e| SolveError::Singular { node: self.node_name(e.column) })?;
         let mut node_voltages = solution.get(..n).map(|s| s.to_vec()).unwrap_or_default();
         for &(node, other_end) in &dangling {
-            let v = Self::voltage(other_end, &node_voltages);
+            let mut v = Self::voltage(other_end, &node_voltages);
+            // The conducting steering node sits above its collector by the drop across Rt.
+            if let Some((Terminal::Node(steering), drop_v)) = steering_current {
+                if steering == node {
+                    v += drop_v;
+                }
+            }
             if let Some(slot) = node_voltages.get_mut(node) {
                 *slot = v;
             }
@@ -423,6 +456,18 @@ pub struct DiodeLaw {
 }
 
 impl DiodeLaw {
+    /// Current through the diode in series with a resistance across `voltage`: solves
+    /// V = n·VT·ln(1 + I/IS) + I·R by bisection (bounded), zero when not forward biased.
+    pub fn conduction_current(&self, voltage: f64, resistance_ohm: f64) -> f64 {
+        if !(voltage > 0.0 && resistance_ohm > 0.0) {
+            return 0.0;
+        }
+        let n_vt = self.emission_coefficient * thermal_voltage(self.temperature_c);
+        let excess =
+            |i: f64| n_vt * (i / self.saturation_current_a + 1.0).ln() + i * resistance_ohm - voltage;
+        crate::numeric::bisect(excess, 0.0, voltage / resistance_ohm, 1e-15, 200).unwrap_or(0.0)
+    }
+
     fn current(&self, voltage: f64) -> (f64, f64) {
         let n_vt = self.emission_coefficient * thermal_voltage(self.temperature_c);
         let (e, de) = limited_exp(voltage / n_vt);

@@ -353,6 +353,7 @@ fn dc_score(design: &StageDesign, base_model: &EbersMoll) -> Option<f64> {
             MarginKind::OutputSwing => required.max(0.5),
             MarginKind::ReverseBaseEmitter => sheet.vebo_v,
             MarginKind::CollectorEmitterVoltage => sheet.vceo_v,
+            MarginKind::CollectorBaseVoltage => sheet.vcbo_v,
             MarginKind::CollectorCurrent => sheet.ic_max_a,
             MarginKind::TransistorDissipation => sheet.ptot_w,
             MarginKind::ToggleRate | MarginKind::TriggerAmplitude => 1.0,

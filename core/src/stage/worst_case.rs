@@ -30,6 +30,7 @@ pub enum Parameter {
     VbeSat(u8),
     Temperature,
     LoadResistance(u8),
+    TriggerResistor(u8),
 }
 
 impl Parameter {
@@ -46,6 +47,7 @@ impl Parameter {
             Parameter::VbeSat(s) => format!("VBE(sat) of Q{}", s + 1),
             Parameter::Temperature => "temperature".to_string(),
             Parameter::LoadResistance(s) => format!("load resistance on Q{}", s + 1),
+            Parameter::TriggerResistor(s) => format!("steering resistor Rt on the Q{} side", s + 1),
         }
     }
 }
@@ -87,6 +89,13 @@ pub fn parameters(design: &StageDesign) -> Vec<Parameter> {
     for (side, load) in design.input().loads.iter().enumerate() {
         if matches!(load, Load::Resistance { .. }) {
             list.push(Parameter::LoadResistance(side as u8));
+        }
+    }
+    // Base-steering Rt sets the DC current the steering diode takes from the ON base.
+    if let Some(trigger) = values.trigger {
+        if trigger.steering == super::Steering::Base {
+            list.push(Parameter::TriggerResistor(0));
+            list.push(Parameter::TriggerResistor(1));
         }
     }
     list
@@ -141,6 +150,9 @@ pub fn apply(design: &StageDesign, corner: &mut Corner, parameter: Parameter, se
             }
         }
         Parameter::LoadResistance(s) => corner.load_resistance_factor[side(s)] = factor(r_tol),
+        Parameter::TriggerResistor(s) => {
+            corner.trigger_resistor_ohm[side(s)] = nominal.trigger_resistor_ohm[side(s)] * factor(r_tol)
+        }
     }
 }
 
@@ -371,9 +383,13 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
             })
             .collect();
         let mut temperature_c = nominal_corner.temperature_c;
+        // A corner that cannot be solved counts as failing: a margin must never pass on
+        // corners that were not checked.
         let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
-            let metrics = cached_metrics(&mut cache, assignment)?;
-            margin_value(kind, &metrics, design)
+            match cached_metrics(&mut cache, assignment) {
+                Some(metrics) => margin_value(kind, &metrics, design),
+                None => Some(f64::NEG_INFINITY),
+            }
         });
         if let Some(&(_, setting)) = corner.iter().find(|(p, _)| *p == Parameter::Temperature) {
             let mut probe = nominal_corner;
@@ -437,8 +453,12 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
             std::collections::HashMap::new();
         let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
             let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
+            // No middle equilibrium found at a corner counts as no regeneration there.
             *gain_cache.entry(key).or_insert_with(|| {
-                loop_gain_at(design, base_model, &corner_for(design, assignment)).map(|g| g.loop_gain)
+                Some(
+                    loop_gain_at(design, base_model, &corner_for(design, assignment))
+                        .map_or(0.0, |g| g.loop_gain),
+                )
             })
         });
         let temperature_c = corner_for(design, &corner).temperature_c;
