@@ -457,15 +457,31 @@ pub struct DiodeLaw {
 
 impl DiodeLaw {
     /// Current through the diode in series with a resistance across `voltage`: solves
-    /// V = n·VT·ln(1 + I/IS) + I·R by bisection (bounded), zero when not forward biased.
+    /// V = n·VT·ln(1 + I/IS) + I·R, zero when not forward biased. The left side is concave and
+    /// increasing in I, so Newton started at I = V/R (where it is positive) lands left of the
+    /// root once and then climbs to it monotonically; iterations are bounded.
     pub fn conduction_current(&self, voltage: f64, resistance_ohm: f64) -> f64 {
-        if !(voltage > 0.0 && resistance_ohm > 0.0) {
+        if !(voltage > 0.0 && resistance_ohm > 0.0 && self.saturation_current_a > 0.0) {
             return 0.0;
         }
         let n_vt = self.emission_coefficient * thermal_voltage(self.temperature_c);
-        let excess =
-            |i: f64| n_vt * (i / self.saturation_current_a + 1.0).ln() + i * resistance_ohm - voltage;
-        crate::numeric::bisect(excess, 0.0, voltage / resistance_ohm, 1e-15, 200).unwrap_or(0.0)
+        let is = self.saturation_current_a;
+        let mut current = voltage / resistance_ohm;
+        for _ in 0..60 {
+            let excess = n_vt * (current / is + 1.0).ln() + current * resistance_ohm - voltage;
+            let slope = n_vt / (is + current) + resistance_ohm;
+            let next = (current - excess / slope).max(0.0);
+            let converged = (next - current).abs() <= 1e-12 * current.max(1e-18);
+            current = next;
+            if converged {
+                break;
+            }
+        }
+        if current.is_finite() {
+            current
+        } else {
+            0.0
+        }
     }
 
     fn current(&self, voltage: f64) -> (f64, f64) {
