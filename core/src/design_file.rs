@@ -637,17 +637,7 @@ impl DesignFile {
 
     /// Requirements-only input for synthesis (placeholder values are replaced there).
     pub fn synthesis_input(&self) -> Result<StageInput, Vec<FieldError>> {
-        let placeholder = StageValues {
-            bias: self.requirements.bias,
-            collector_resistor_ohm: 1e3,
-            cross_resistor_ohm: 1e4,
-            base_resistor_ohm: 1e4,
-            emitter_resistor_ohm: 0.0,
-            emitter_bypass_capacitor_f: 0.0,
-            commutating_capacitor_f: 0.0,
-            trigger: None,
-        };
-        self.stage_input(Some(placeholder))
+        self.stage_input(Some(crate::stage::synthesis::placeholder_values(self.requirements.bias)))
     }
 
     /// The demo design: a scenario of our own — one toggle stage of a 9 V timebase divider,

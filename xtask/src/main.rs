@@ -249,15 +249,20 @@ fn ensure_browser() -> Result<(), String> {
     run("apt-get", &["install", "-y", "-qq", "chromium", "poppler-utils"])
 }
 
+/// The browser-test folder with its npm packages installed (from the lock file) on first use.
+fn browser_test_dir() -> Result<PathBuf, String> {
+    let dir = root().join("tests/browser");
+    if !dir.join("node_modules/playwright-core").exists() {
+        run("npm", &["ci", "--prefix", &dir.to_string_lossy(), "--no-audit", "--no-fund"])?;
+    }
+    Ok(dir)
+}
+
 fn browser_tests() -> Result<(), String> {
     ensure_browser()?;
     let page = build_page(false)?;
     let hooks = build_page(true)?;
-    let dir = root().join("tests/browser");
-    let dir_text = dir.to_string_lossy().to_string();
-    if !dir.join("node_modules/playwright-core").exists() {
-        run("npm", &["ci", "--prefix", &dir_text, "--no-audit", "--no-fund"])?;
-    }
+    let dir = browser_test_dir()?;
     eprintln!("$ node --test tests/browser/page.test.mjs");
     let status = Command::new("node")
         .args(["--test", "--test-concurrency=1", "page.test.mjs"])
@@ -278,10 +283,7 @@ fn bench() -> Result<(), String> {
     run("cargo", &["bench", "-p", "flipwright-core"])?;
     ensure_browser()?;
     let page = build_page(false)?;
-    let dir = root().join("tests/browser");
-    if !dir.join("node_modules/playwright-core").exists() {
-        run("npm", &["ci", "--prefix", &dir.to_string_lossy(), "--no-audit", "--no-fund"])?;
-    }
+    let dir = browser_test_dir()?;
     eprintln!("$ node tests/browser/page-bench.mjs");
     let status = Command::new("node")
         .arg("page-bench.mjs")

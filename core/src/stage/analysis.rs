@@ -8,9 +8,7 @@ use super::handbook::StateAnalysis;
 use super::margins::{evaluate_corner, required_value, CornerMetrics, MarginKind};
 use super::network::{Corner, StageNetwork};
 use super::switching::{estimate, PassiveScale, SwitchingEstimate};
-use super::worst_case::{
-    self, diode_at, models_at, nominal_temperature_c, Parameter, Setting, WorstCaseReport,
-};
+use super::worst_case::{self, models_at, nominal_temperature_c, Parameter, Setting, WorstCaseReport};
 use super::{BiasScheme, StageDesign};
 use crate::device::ebers_moll::{Derivation, EbersMoll};
 use crate::device::Material;
@@ -137,7 +135,7 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
         .map_err(|e| AnalysisError::NominalUnsolvable { reason: e.to_string() })?;
     let network = StageNetwork::build(design, &corner);
     let models = models_at(design, &derivation.model, &corner);
-    let diode = diode_at(design, t_nominal);
+    let diode = network.diode_law;
     let mut exact_states = Vec::new();
     let mut agreement = Vec::new();
     for state in &states {

@@ -5,6 +5,7 @@ use serde::Serialize;
 
 use super::handbook::{analyse_state, StateAnalysis};
 use super::network::{Corner, SolveError, StageNetwork};
+use super::switching::{base_steering_gap_v, steering_diode_knee_v};
 use super::{StageDesign, Steering};
 use crate::device::{Material, PiecewiseTransistor};
 
@@ -151,10 +152,8 @@ pub fn evaluate_corner(
         let (trigger_charge, trigger_capacitance) = match values.trigger {
             Some(t) if t.steering == Steering::Base => {
                 let amplitude = available_trigger_amplitude(design, state.output_swing_v);
-                let knee = design
-                    .diode()
-                    .forward_voltage_at((0.1 * state.on_base_current_a).max(1e-9), corner.temperature_c);
-                let gap = (knee - (on_device.vbe_sat_v - on_device.vce_sat_v)).max(0.0);
+                let knee = steering_diode_knee_v(design, state.on_base_current_a, corner.temperature_c);
+                let gap = base_steering_gap_v(knee, on_device.vbe_sat_v, on_device.vce_sat_v);
                 ((amplitude - gap).max(0.0) * t.trigger_capacitor_f, t.trigger_capacitor_f)
             }
             _ => (0.0, 0.0),

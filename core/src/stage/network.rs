@@ -257,11 +257,7 @@ impl StageNetwork {
             ],
             diodes,
             corner: *corner,
-            diode_law: DiodeLaw {
-                saturation_current_a: design.diode().saturation_current_a(corner.temperature_c),
-                emission_coefficient: design.diode().emission_coefficient,
-                temperature_c: corner.temperature_c,
-            },
+            diode_law: DiodeLaw::at_temperature(design.diode(), corner.temperature_c),
         }
     }
 
@@ -456,6 +452,15 @@ pub struct DiodeLaw {
 }
 
 impl DiodeLaw {
+    /// The law of a datasheet diode at a temperature.
+    pub fn at_temperature(diode: &crate::device::DiodeDatasheet, temperature_c: f64) -> DiodeLaw {
+        DiodeLaw {
+            saturation_current_a: diode.saturation_current_a(temperature_c),
+            emission_coefficient: diode.emission_coefficient,
+            temperature_c,
+        }
+    }
+
     /// Current through the diode in series with a resistance across `voltage`: solves
     /// V = n·VT·ln(1 + I/IS) + I·R, zero when not forward biased. The left side is concave and
     /// increasing in I, so Newton started at I = V/R (where it is positive) lands left of the

@@ -172,7 +172,6 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
     let input = design.input();
     let r1 = values.cross_resistor_ohm * scale.resistor;
     let r2 = values.base_resistor_ohm * scale.resistor;
-    let rc = values.collector_resistor_ohm * scale.resistor;
     let c1 = values.commutating_capacitor_f * scale.capacitor;
     let devices =
         sheet.piecewise_at(25.0, crate::device::SpreadPoint { hfe: scale.hfe_spread, ..Default::default() });
@@ -232,7 +231,7 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
     let available = input.requirements.trigger_amplitude_v.unwrap_or(state.output_swing_v);
     let min_trigger_amplitude_v = values.trigger.map(|t| {
         let scaled = TriggerNetwork { trigger_capacitor_f: t.trigger_capacitor_f * scale.capacitor, ..t };
-        minimum_trigger_amplitude(design, state, &scaled, c1, stored_excess_c + active_c, rc)
+        minimum_trigger_amplitude(design, state, &scaled, c1, stored_excess_c + active_c)
     });
     SwitchingEstimate {
         point,
@@ -258,8 +257,14 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
 
 /// Voltage at which a steering diode starts to pass useful current (its drop at a tenth of
 /// the ON base current).
-fn diode_knee_v(design: &StageDesign, state: &StateAnalysis) -> f64 {
-    design.diode().forward_voltage_at((0.1 * state.on_base_current_a).max(1e-9), 25.0)
+pub fn steering_diode_knee_v(design: &StageDesign, on_base_current_a: f64, temperature_c: f64) -> f64 {
+    design.diode().forward_voltage_at((0.1 * on_base_current_a).max(1e-9), temperature_c)
+}
+
+/// How far a base-steered trigger must go before its diode conducts: the knee less the
+/// forward bias the ON side already puts on the diode (VBE(sat) − VCE(sat)).
+pub fn base_steering_gap_v(knee_v: f64, vbe_sat_v: f64, vce_sat_v: f64) -> f64 {
+    (knee_v - (vbe_sat_v - vce_sat_v)).max(0.0)
 }
 
 /// Charge balance: the trigger must bring the steering diode into conduction (the gap), then
@@ -270,14 +275,13 @@ fn minimum_trigger_amplitude(
     trigger: &TriggerNetwork,
     commutating_f: f64,
     charge_c: f64,
-    _collector_resistor_ohm: f64,
 ) -> f64 {
     let devices = design.transistor().piecewise_at(25.0, Default::default());
-    let knee = diode_knee_v(design, state);
+    let knee = steering_diode_knee_v(design, state.on_base_current_a, 25.0);
     match trigger.steering {
         Steering::Base => {
-            let gap = (knee - (devices.vbe_sat_v - devices.vce_sat_v)).max(0.0);
-            gap + charge_c / trigger.trigger_capacitor_f
+            base_steering_gap_v(knee, devices.vbe_sat_v, devices.vce_sat_v)
+                + charge_c / trigger.trigger_capacitor_f
         }
         Steering::Collector => {
             let supply = design.input().supplies.collector_supply_v;
@@ -340,10 +344,10 @@ pub fn fit_capacitors(design: &StageDesign, state: &StateAnalysis) -> (StageValu
     let amplitude = input.requirements.trigger_amplitude_v.unwrap_or(state.output_swing_v);
     let charge = first.charge.stored_excess_c + first.charge.active_c;
     let devices = design.transistor().piecewise_at(25.0, Default::default());
-    let knee = diode_knee_v(design, state);
+    let knee = steering_diode_knee_v(design, state.on_base_current_a, 25.0);
     let ct_wanted = match steering {
         Steering::Base => {
-            let gap = (knee - (devices.vbe_sat_v - devices.vce_sat_v)).max(0.0);
+            let gap = base_steering_gap_v(knee, devices.vbe_sat_v, devices.vce_sat_v);
             TRIGGER_CHARGE_SAFETY * charge / (amplitude - gap).max(1e-3) / low
         }
         // Common-Ct collector steering: Ct well above C1 so the pulse reaches C1 undivided.

@@ -69,7 +69,7 @@ const MAX_CURRENT_ROUNDS: usize = 4;
 pub fn synthesise(input: &StageInput) -> Result<SynthesisOutcome, SynthesisError> {
     let mut steps = Vec::new();
     let mut probe_input = input.clone();
-    probe_input.values = placeholder_values(input);
+    probe_input.values = placeholder_values(input.requirements.bias);
     // Validate requirements with placeholder values so that only requirement errors show.
     StageDesign::new(probe_input.clone()).map_err(SynthesisError::Invalid)?;
     let mut collector_current = first_collector_current(input);
@@ -119,13 +119,15 @@ pub fn synthesise(input: &StageInput) -> Result<SynthesisOutcome, SynthesisError
     Ok(outcome)
 }
 
-fn placeholder_values(input: &StageInput) -> StageValues {
+/// Values that only stand in until synthesis chooses real ones (they let the requirements be
+/// validated on their own).
+pub fn placeholder_values(bias: BiasScheme) -> StageValues {
     StageValues {
-        bias: input.requirements.bias,
+        bias,
         collector_resistor_ohm: 1e3,
         cross_resistor_ohm: 1e4,
         base_resistor_ohm: 1e4,
-        emitter_resistor_ohm: if input.requirements.bias == BiasScheme::SelfBias { 100.0 } else { 0.0 },
+        emitter_resistor_ohm: if bias == BiasScheme::SelfBias { 100.0 } else { 0.0 },
         emitter_bypass_capacitor_f: 0.0,
         commutating_capacitor_f: 0.0,
         trigger: None,

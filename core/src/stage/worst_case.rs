@@ -11,7 +11,7 @@ use serde::Serialize;
 
 use super::exact::{loop_gain, LoopGain};
 use super::margins::{evaluate_corner, margin_value, CornerMetrics, MarginKind, DC_MARGINS};
-use super::network::{Corner, DiodeLaw, SolveError, StageNetwork};
+use super::network::{Corner, SolveError, StageNetwork};
 use super::{BiasScheme, Load, StageDesign};
 use crate::device::ebers_moll::EbersMoll;
 
@@ -306,21 +306,11 @@ pub fn models_at(design: &StageDesign, base: &EbersMoll, corner: &Corner) -> [Eb
     models
 }
 
-/// Diode law at a corner's temperature.
-pub fn diode_at(design: &StageDesign, temperature_c: f64) -> DiodeLaw {
-    let diode = design.diode();
-    DiodeLaw {
-        saturation_current_a: diode.saturation_current_a(temperature_c),
-        emission_coefficient: diode.emission_coefficient,
-        temperature_c,
-    }
-}
-
 /// Loop gain at a corner (exact model).
 pub fn loop_gain_at(design: &StageDesign, base: &EbersMoll, corner: &Corner) -> Option<LoopGain> {
     let network = StageNetwork::build(design, corner);
     let models = models_at(design, base, corner);
-    loop_gain(&network, &models, &diode_at(design, corner.temperature_c)).ok()
+    loop_gain(&network, &models, &network.diode_law).ok()
 }
 
 /// Runs the worst-case search for every DC margin and the loop gain.

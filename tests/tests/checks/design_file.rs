@@ -6,7 +6,7 @@ use flipwright::stage::{BiasScheme, FieldError, StageValues, Steering, TriggerNe
 use serde_json::{json, Value};
 
 /// The demo with a complete set of values, as the CLI's `demo` command writes it.
-fn demo_with_values() -> DesignFile {
+pub(crate) fn demo_with_values() -> DesignFile {
     let mut file = DesignFile::demo();
     file.values = Some(StageValues {
         bias: BiasScheme::Fixed,

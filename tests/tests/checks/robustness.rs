@@ -115,22 +115,7 @@ prop_compose! {
 
 /// The demo with values, as JSON.
 fn demo_json() -> Value {
-    let mut file = DesignFile::demo();
-    file.values = Some(StageValues {
-        bias: BiasScheme::Fixed,
-        collector_resistor_ohm: 2.4e3,
-        cross_resistor_ohm: 8.2e3,
-        base_resistor_ohm: 13e3,
-        emitter_resistor_ohm: 0.0,
-        emitter_bypass_capacitor_f: 0.0,
-        commutating_capacitor_f: 33e-12,
-        trigger: Some(TriggerNetwork {
-            steering: Steering::Base,
-            trigger_capacitor_f: 27e-12,
-            trigger_resistor_ohm: 6.2e3,
-        }),
-    });
-    serde_json::from_str(&file.to_json()).expect("own JSON")
+    serde_json::from_str(&crate::design_file::demo_with_values().to_json()).expect("own JSON")
 }
 
 /// Every leaf and inner node of a JSON document, as a list of JSON-pointer paths.
