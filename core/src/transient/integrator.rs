@@ -60,12 +60,12 @@ impl TransientSettings {
         }
     }
 
-    fn check(&self) -> Result<(), SimulationError> {
-        let bad = |field: &str, problem: &str| {
-            Err(SimulationError::InvalidSettings { field: field.into(), problem: problem.into() })
-        };
+    /// Every out-of-range setting as (field, problem), in field order; empty when a run can
+    /// start. Files report them all at once; [`simulate`] stops at the first.
+    pub fn problems(&self) -> Vec<(&'static str, &'static str)> {
+        let mut found = Vec::new();
         if !(self.stop_time_s > 0.0) || !self.stop_time_s.is_finite() {
-            return bad("stop_time_s", "must be a positive finite time");
+            found.push(("stop_time_s", "must be a positive finite time"));
         }
         for (field, value) in [
             ("max_step_s", self.max_step_s),
@@ -74,12 +74,12 @@ impl TransientSettings {
         ] {
             if let Some(v) = value {
                 if !(v > 0.0) || !v.is_finite() {
-                    return bad(field, "must be a positive finite time when given");
+                    found.push((field, "must be a positive finite time when given"));
                 }
             }
         }
         if !(self.relative_tolerance > 0.0 && self.relative_tolerance < 1.0) {
-            return bad("relative_tolerance", "must be between 0 and 1 (1e-3 is usual)");
+            found.push(("relative_tolerance", "must be between 0 and 1 (1e-3 is usual)"));
         }
         for (field, value) in [
             ("charge_tolerance_c", self.charge_tolerance_c),
@@ -87,13 +87,26 @@ impl TransientSettings {
             ("current_tolerance_a", self.current_tolerance_a),
         ] {
             if !(value > 0.0) || !value.is_finite() {
-                return bad(field, "must be a positive finite number");
+                found.push((field, "must be a positive finite number"));
             }
         }
-        if self.max_newton_iterations == 0 || self.max_steps == 0 {
-            return bad("max_newton_iterations / max_steps", "must be at least 1");
+        if self.max_newton_iterations == 0 {
+            found.push(("max_newton_iterations", "must be at least 1"));
         }
-        Ok(())
+        if self.max_steps == 0 {
+            found.push(("max_steps", "must be at least 1"));
+        }
+        found
+    }
+
+    fn check(&self) -> Result<(), SimulationError> {
+        match self.problems().first() {
+            Some((field, problem)) => Err(SimulationError::InvalidSettings {
+                field: field.to_string(),
+                problem: problem.to_string(),
+            }),
+            None => Ok(()),
+        }
     }
 }
 
