@@ -47,11 +47,12 @@ pub struct DesignFile {
     pub values: Option<StageValues>,
 }
 
-struct Reader {
-    errors: Vec<FieldError>,
+/// Collects every problem of a document while it is read (shared with the circuit file).
+pub(crate) struct Reader {
+    pub(crate) errors: Vec<FieldError>,
 }
 
-fn join(path: &str, key: &str) -> String {
+pub(crate) fn join(path: &str, key: &str) -> String {
     if path.is_empty() {
         key.to_string()
     } else {
@@ -73,18 +74,18 @@ fn unit_for(key: &str) -> Option<Unit> {
 }
 
 /// An object being read: records which keys were used so unknown ones can be reported.
-struct ObjectReader<'a> {
-    map: &'a Map<String, Value>,
-    path: String,
-    used: Vec<&'static str>,
+pub(crate) struct ObjectReader<'a> {
+    pub(crate) map: &'a Map<String, Value>,
+    pub(crate) path: String,
+    pub(crate) used: Vec<&'static str>,
 }
 
 impl Reader {
-    fn error(&mut self, path: String, message: impl Into<String>) {
+    pub(crate) fn error(&mut self, path: String, message: impl Into<String>) {
         self.errors.push(FieldError { path, message: message.into() });
     }
 
-    fn object<'a>(&mut self, value: Option<&'a Value>, path: &str) -> Option<ObjectReader<'a>> {
+    pub(crate) fn object<'a>(&mut self, value: Option<&'a Value>, path: &str) -> Option<ObjectReader<'a>> {
         match value {
             Some(Value::Object(map)) => Some(ObjectReader { map, path: path.to_string(), used: Vec::new() }),
             Some(_) => {
@@ -98,7 +99,7 @@ impl Reader {
         }
     }
 
-    fn number_at(&mut self, value: &Value, path: &str, key: &str) -> Option<f64> {
+    pub(crate) fn number_at(&mut self, value: &Value, path: &str, key: &str) -> Option<f64> {
         match value {
             Value::Number(n) => n.as_f64(),
             Value::String(text) => match unit_for(key) {
@@ -127,7 +128,7 @@ impl Reader {
         }
     }
 
-    fn finish(&mut self, object: ObjectReader<'_>) {
+    pub(crate) fn finish(&mut self, object: ObjectReader<'_>) {
         for key in object.map.keys() {
             if !object.used.iter().any(|u| u == key) {
                 let expected = object.used.join(", ");
@@ -136,7 +137,7 @@ impl Reader {
         }
     }
 
-    fn number(&mut self, object: &mut ObjectReader<'_>, key: &'static str) -> Option<f64> {
+    pub(crate) fn number(&mut self, object: &mut ObjectReader<'_>, key: &'static str) -> Option<f64> {
         object.used.push(key);
         let path = join(&object.path, key);
         match object.map.get(key) {
@@ -148,7 +149,11 @@ impl Reader {
         }
     }
 
-    fn optional_number(&mut self, object: &mut ObjectReader<'_>, key: &'static str) -> Option<Option<f64>> {
+    pub(crate) fn optional_number(
+        &mut self,
+        object: &mut ObjectReader<'_>,
+        key: &'static str,
+    ) -> Option<Option<f64>> {
         object.used.push(key);
         let path = join(&object.path, key);
         match object.map.get(key) {
@@ -157,7 +162,7 @@ impl Reader {
         }
     }
 
-    fn text(
+    pub(crate) fn text(
         &mut self,
         object: &mut ObjectReader<'_>,
         key: &'static str,
@@ -179,7 +184,7 @@ impl Reader {
         }
     }
 
-    fn choice<T: Copy>(
+    pub(crate) fn choice<T: Copy>(
         &mut self,
         object: &mut ObjectReader<'_>,
         key: &'static str,
@@ -209,7 +214,12 @@ impl Reader {
         }
     }
 
-    fn boolean(&mut self, object: &mut ObjectReader<'_>, key: &'static str, default: bool) -> Option<bool> {
+    pub(crate) fn boolean(
+        &mut self,
+        object: &mut ObjectReader<'_>,
+        key: &'static str,
+        default: bool,
+    ) -> Option<bool> {
         object.used.push(key);
         match object.map.get(key) {
             None => Some(default),
@@ -220,6 +230,62 @@ impl Reader {
             }
         }
     }
+}
+
+/// The document's JSON, or one error giving the line and column where it stops being JSON.
+pub(crate) fn parse_json(text: &str) -> Result<Value, Vec<FieldError>> {
+    serde_json::from_str(text).map_err(|e| {
+        vec![FieldError {
+            path: format!("(line {}, column {})", e.line(), e.column()),
+            message: format!("not valid JSON: {e}"),
+        }]
+    })
+}
+
+/// Reads `format` and `version`: a document of another format, or of a version newer than
+/// `current_version`, is refused at once with that single error (its other fields would only
+/// add noise). Shared by every versioned document of the tool.
+pub(crate) fn read_header(
+    reader: &mut Reader,
+    o: &mut ObjectReader<'_>,
+    format_name: &str,
+    current_version: u64,
+    what: &str,
+) -> Result<(Option<String>, Option<u64>), Vec<FieldError>> {
+    let format = reader.text(o, "format", None);
+    if let Some(f) = &format {
+        if f != format_name {
+            return Err(vec![FieldError {
+                path: "format".to_string(),
+                message: format!("\"{f}\" is not {what} of this tool (expected \"{format_name}\")"),
+            }]);
+        }
+    }
+    o.used.push("version");
+    let version = match o.map.get("version") {
+        Some(Value::Number(n)) if n.as_u64().is_some() => n.as_u64(),
+        _ => {
+            reader.error(
+                "version".to_string(),
+                format!("must be a whole number (this build reads version {current_version})"),
+            );
+            None
+        }
+    };
+    if let Some(v) = version {
+        if v > current_version {
+            return Err(vec![FieldError {
+                path: "version".to_string(),
+                message: format!(
+                    "version {v} is newer than this build understands ({current_version}); update the tool"
+                ),
+            }]);
+        }
+        if v < 1 {
+            reader.error("version".to_string(), "must be 1 or more");
+        }
+    }
+    Ok((format, version))
 }
 
 const POLARITIES: [(&str, Polarity); 2] = [("npn", Polarity::Npn), ("pnp", Polarity::Pnp)];
@@ -439,49 +505,13 @@ impl DesignFile {
     /// Parses and checks the structure of a design file. Semantic checks (ranges, consistency)
     /// follow in [`DesignFile::stage_input`]/[`StageDesign::new`]; [`DesignFile::load`] does both.
     pub fn parse(text: &str) -> Result<DesignFile, Vec<FieldError>> {
-        let root: Value = serde_json::from_str(text).map_err(|e| {
-            vec![FieldError {
-                path: format!("(line {}, column {})", e.line(), e.column()),
-                message: format!("not valid JSON: {e}"),
-            }]
-        })?;
+        let root = parse_json(text)?;
         let mut reader = Reader { errors: Vec::new() };
         let mut o = reader.object(Some(&root), "").ok_or_else(|| {
             vec![FieldError { path: "(document)".to_string(), message: "must be a JSON object".to_string() }]
         })?;
-        let format = reader.text(&mut o, "format", None);
-        if let Some(f) = &format {
-            if f != FORMAT_NAME {
-                return Err(vec![FieldError {
-                    path: "format".to_string(),
-                    message: format!(
-                        "\"{f}\" is not a design file of this tool (expected \"{FORMAT_NAME}\")"
-                    ),
-                }]);
-            }
-        }
-        o.used.push("version");
-        let version = match o.map.get("version") {
-            Some(Value::Number(n)) if n.as_u64().is_some() => n.as_u64(),
-            _ => {
-                reader.error(
-                    "version".to_string(),
-                    format!("must be a whole number (this build reads version {FORMAT_VERSION})"),
-                );
-                None
-            }
-        };
-        if let Some(v) = version {
-            if v > FORMAT_VERSION {
-                return Err(vec![FieldError {
-                    path: "version".to_string(),
-                    message: format!("version {v} is newer than this build understands ({FORMAT_VERSION}); update the tool"),
-                }]);
-            }
-            if v < 1 {
-                reader.error("version".to_string(), "must be 1 or more");
-            }
-        }
+        let (format, version) =
+            read_header(&mut reader, &mut o, FORMAT_NAME, FORMAT_VERSION, "a design file")?;
         let name = reader.text(&mut o, "name", Some("untitled design"));
         let notes = reader.text(&mut o, "notes", Some(""));
         o.used.push("transistor");

@@ -369,15 +369,19 @@ pub fn to_text(rows: &[ComponentRow]) -> String {
     out
 }
 
+/// One CSV field per RFC 4180: quoted, with doubled quotes, when it holds a comma, a quote
+/// or a line break; as it is otherwise.
+pub fn csv_field(field: &str) -> String {
+    if field.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", field.replace('"', "\"\""))
+    } else {
+        field.to_string()
+    }
+}
+
 /// CSV (RFC 4180 quoting) with a header line.
 pub fn to_csv(rows: &[ComponentRow]) -> String {
-    let quote = |field: &str| {
-        if field.contains([',', '"', '\n']) {
-            format!("\"{}\"", field.replace('"', "\"\""))
-        } else {
-            field.to_string()
-        }
-    };
+    let quote = csv_field;
     let mut out = String::from(
         "designator,part,value_si,value,code,tolerance,worst_case_stress,rating,meets,function\n",
     );

@@ -34,10 +34,10 @@ pub struct DiodeModel {
     pub transit_time_s: f64,
 }
 
-fn default_junction_potential_v() -> f64 {
+pub(crate) fn default_junction_potential_v() -> f64 {
     0.75
 }
-fn default_junction_grading() -> f64 {
+pub(crate) fn default_junction_grading() -> f64 {
     0.33
 }
 fn default_temperature_c() -> f64 {
