@@ -154,6 +154,42 @@ pub fn toggle_count(values: &[f64], low: f64, high: f64) -> usize {
     toggles
 }
 
+/// Basic measurements of one waveform, as a run report shows them.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct WaveformSummary {
+    pub min: f64,
+    pub max: f64,
+    /// Changes of state with hysteresis between 10 % and 90 % of the swing (min to max).
+    pub toggles: usize,
+    /// 10–90 % time of the first rising edge through the whole swing, if there is one.
+    pub first_rise_s: Option<f64>,
+    /// 90–10 % time of the first falling edge through the whole swing, if there is one.
+    pub first_fall_s: Option<f64>,
+}
+
+/// Extremes, toggles and first edges of a waveform. A swing of at most `flat_below` (in the
+/// waveform's unit) counts as no switching at all, so solver noise on a held node is not
+/// reported as edges.
+pub fn summarise(times: &[f64], values: &[f64], flat_below: f64) -> Result<WaveformSummary, MeasureError> {
+    check_lengths(times, values)?;
+    let min = values.iter().copied().fold(f64::INFINITY, f64::min);
+    let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if !(min <= max) {
+        return Err(MeasureError::NotFound { what: "points".to_string() });
+    }
+    let swing = max - min;
+    if !(swing > flat_below) {
+        return Ok(WaveformSummary { min, max, toggles: 0, first_rise_s: None, first_fall_s: None });
+    }
+    Ok(WaveformSummary {
+        min,
+        max,
+        toggles: toggle_count(values, min + 0.1 * swing, min + 0.9 * swing),
+        first_rise_s: rise_time_10_90(times, values, min, max, f64::NEG_INFINITY).ok(),
+        first_fall_s: fall_time_90_10(times, values, min, max, f64::NEG_INFINITY).ok(),
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -180,5 +216,21 @@ mod tests {
         assert_eq!(toggle_count(&v, 3.0, 7.0), 2);
         let d = delay(&t, &v, 5.0, Edge::Rising, &v, 5.0, Edge::Falling, 0.0).unwrap_or(f64::NAN);
         assert!((d - 2.5).abs() < 1e-12, "{d}");
+    }
+
+    #[test]
+    fn summary_of_a_trapezoid_and_of_a_flat_line() {
+        // The trapezoid of the test above: swing 0–10 V, rise 0.8, fall 1.6, two toggles.
+        let t = [0.0, 1.0, 2.0, 3.0, 5.0, 6.0];
+        let v = [0.0, 0.0, 10.0, 10.0, 0.0, 0.0];
+        let summary = summarise(&t, &v, 1e-6);
+        assert!(summary.is_ok(), "{summary:?}");
+        let Ok(summary) = summary else { return };
+        assert_eq!((summary.min, summary.max, summary.toggles), (0.0, 10.0, 2));
+        assert!(summary.first_rise_s.is_some_and(|r| (r - 0.8).abs() < 1e-12));
+        assert!(summary.first_fall_s.is_some_and(|f| (f - 1.6).abs() < 1e-12));
+        let flat = summarise(&t, &[5.0, 5.0, 5.0 + 1e-9, 5.0, 5.0, 5.0], 1e-6);
+        assert_eq!(flat.map(|s| (s.toggles, s.first_rise_s)), Ok((0, None)));
+        assert!(summarise(&[], &[], 1e-6).is_err());
     }
 }
