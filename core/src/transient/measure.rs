@@ -154,40 +154,99 @@ pub fn toggle_count(values: &[f64], low: f64, high: f64) -> usize {
     toggles
 }
 
+/// Bins of the histogram that finds the state levels.
+const LEVEL_HISTOGRAM_BINS: usize = 100;
+/// The second state level is looked for at least this fraction of the range from the first.
+const LEVEL_SEPARATION: f64 = 0.25;
+
+/// The two state levels (low, high) of a two-state waveform by the histogram method of
+/// IEEE Std 181 (transitions, pulses and related waveforms; from memory): a level is where the
+/// waveform spends the most time, so overshoot and coupled spikes do not move it the way they
+/// move min and max. Adapted: instead of splitting the range at its middle, the second level is
+/// the most-visited one at least a quarter of the range away from the first, so a node whose
+/// spikes reach far beyond one state still gets that state's level. Time-weighted, because the
+/// integrator's points crowd at the edges.
+pub fn state_levels(times: &[f64], values: &[f64]) -> Result<(f64, f64), MeasureError> {
+    check_lengths(times, values)?;
+    let min = values.iter().copied().fold(f64::INFINITY, f64::min);
+    let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    if !(min <= max) || !(times.len() >= 2) {
+        return Err(MeasureError::NotFound { what: "two or more points".to_string() });
+    }
+    let range = max - min;
+    if !(range > 0.0) {
+        return Ok((min, max));
+    }
+    // Per bin: total time and time-weighted sum of values (for a level finer than a bin).
+    let mut weight = [0.0f64; LEVEL_HISTOGRAM_BINS];
+    let mut weighted_sum = [0.0f64; LEVEL_HISTOGRAM_BINS];
+    let last = times.len() - 1;
+    for (i, &v) in values.iter().enumerate() {
+        let before = if i > 0 { times[i] - times[i - 1] } else { 0.0 };
+        let after = if i < last { times[i + 1] - times[i] } else { 0.0 };
+        let dt = 0.5 * (before + after);
+        let bin = (((v - min) / range) * LEVEL_HISTOGRAM_BINS as f64) as usize;
+        let bin = bin.min(LEVEL_HISTOGRAM_BINS - 1);
+        weight[bin] += dt;
+        weighted_sum[bin] += dt * v;
+    }
+    let level = |bin: usize| if weight[bin] > 0.0 { weighted_sum[bin] / weight[bin] } else { min };
+    let modal = |allowed: &dyn Fn(usize) -> bool| {
+        (0..LEVEL_HISTOGRAM_BINS).filter(|&b| allowed(b)).max_by(|&a, &b| weight[a].total_cmp(&weight[b]))
+    };
+    let Some(first) = modal(&|_| true) else { return Ok((min, max)) };
+    let separation = (LEVEL_SEPARATION * LEVEL_HISTOGRAM_BINS as f64).ceil() as usize;
+    let second = modal(&|b| b.abs_diff(first) >= separation && weight[b] > 0.0);
+    let (a, b) = match second {
+        Some(second) => (level(first), level(second)),
+        // Only one level is ever visited away from the edges: the other is the far extreme.
+        None => {
+            let here = level(first);
+            (here, if here - min > max - here { min } else { max })
+        }
+    };
+    Ok((a.min(b), a.max(b)))
+}
+
 /// Basic measurements of one waveform, as a run report shows them.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct WaveformSummary {
     pub min: f64,
     pub max: f64,
-    /// Changes of state with hysteresis between 10 % and 90 % of the swing (min to max).
+    /// State levels from [`state_levels`].
+    pub low_level: f64,
+    pub high_level: f64,
+    /// Changes of state with hysteresis between 10 % and 90 % of low level → high level.
     pub toggles: usize,
-    /// 10–90 % time of the first rising edge through the whole swing, if there is one.
+    /// 10–90 % time of the first rising edge between the levels, if there is one.
     pub first_rise_s: Option<f64>,
-    /// 90–10 % time of the first falling edge through the whole swing, if there is one.
+    /// 90–10 % time of the first falling edge between the levels, if there is one.
     pub first_fall_s: Option<f64>,
 }
 
-/// Extremes, toggles and first edges of a waveform. A swing of at most `flat_below` (in the
-/// waveform's unit) counts as no switching at all, so solver noise on a held node is not
-/// reported as edges.
+/// Extremes, state levels, toggles and first edges of a waveform. A swing between the levels
+/// of at most `flat_below` (in the waveform's unit) counts as no switching at all, so solver
+/// noise on a held node is not reported as edges.
 pub fn summarise(times: &[f64], values: &[f64], flat_below: f64) -> Result<WaveformSummary, MeasureError> {
-    check_lengths(times, values)?;
+    let (low, high) = state_levels(times, values)?;
     let min = values.iter().copied().fold(f64::INFINITY, f64::min);
     let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    if !(min <= max) {
-        return Err(MeasureError::NotFound { what: "points".to_string() });
-    }
-    let swing = max - min;
-    if !(swing > flat_below) {
-        return Ok(WaveformSummary { min, max, toggles: 0, first_rise_s: None, first_fall_s: None });
-    }
-    Ok(WaveformSummary {
+    let mut summary = WaveformSummary {
         min,
         max,
-        toggles: toggle_count(values, min + 0.1 * swing, min + 0.9 * swing),
-        first_rise_s: rise_time_10_90(times, values, min, max, f64::NEG_INFINITY).ok(),
-        first_fall_s: fall_time_90_10(times, values, min, max, f64::NEG_INFINITY).ok(),
-    })
+        low_level: low,
+        high_level: high,
+        toggles: 0,
+        first_rise_s: None,
+        first_fall_s: None,
+    };
+    let swing = high - low;
+    if swing > flat_below {
+        summary.toggles = toggle_count(values, low + 0.1 * swing, low + 0.9 * swing);
+        summary.first_rise_s = rise_time_10_90(times, values, low, high, f64::NEG_INFINITY).ok();
+        summary.first_fall_s = fall_time_90_10(times, values, low, high, f64::NEG_INFINITY).ok();
+    }
+    Ok(summary)
 }
 
 #[cfg(test)]
@@ -220,17 +279,31 @@ mod tests {
 
     #[test]
     fn summary_of_a_trapezoid_and_of_a_flat_line() {
-        // The trapezoid of the test above: swing 0–10 V, rise 0.8, fall 1.6, two toggles.
+        // The trapezoid of the test above: levels 0 and 10 V, rise 0.8, fall 1.6, two toggles.
         let t = [0.0, 1.0, 2.0, 3.0, 5.0, 6.0];
         let v = [0.0, 0.0, 10.0, 10.0, 0.0, 0.0];
         let summary = summarise(&t, &v, 1e-6);
         assert!(summary.is_ok(), "{summary:?}");
         let Ok(summary) = summary else { return };
         assert_eq!((summary.min, summary.max, summary.toggles), (0.0, 10.0, 2));
+        assert_eq!((summary.low_level, summary.high_level), (0.0, 10.0));
         assert!(summary.first_rise_s.is_some_and(|r| (r - 0.8).abs() < 1e-12));
         assert!(summary.first_fall_s.is_some_and(|f| (f - 1.6).abs() < 1e-12));
         let flat = summarise(&t, &[5.0, 5.0, 5.0 + 1e-9, 5.0, 5.0, 5.0], 1e-6);
         assert_eq!(flat.map(|s| (s.toggles, s.first_rise_s)), Ok((0, None)));
         assert!(summarise(&[], &[], 1e-6).is_err());
+    }
+
+    #[test]
+    fn state_levels_ignore_a_spike_beyond_one_state() {
+        // Low at 0 V for 4 s, high at 5 V for 4 s, with a 0.1 s spike to 8 V on top: the levels
+        // stay 0 and 5 V (max would say 8 V), so edges are measured between the real states.
+        let t = [0.0, 4.0, 4.1, 4.2, 4.3, 8.0, 8.1, 12.0];
+        let v = [0.0, 0.0, 5.0, 8.0, 5.0, 5.0, 0.0, 0.0];
+        assert_eq!(state_levels(&t, &v), Ok((0.0, 5.0)));
+        let summary = summarise(&t, &v, 1e-6);
+        assert!(
+            summary.is_ok_and(|s| s.toggles == 2 && s.first_rise_s.is_some_and(|r| (r - 0.08).abs() < 1e-12))
+        );
     }
 }
