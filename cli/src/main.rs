@@ -1,7 +1,8 @@
 //! `flipwright`: the command-line front end — write the demo design, analyse a design file,
-//! synthesise values from requirements, and print the component table.
+//! synthesise values from requirements, print the component table, and simulate circuits.
 
 mod report;
+mod simulate;
 
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -30,6 +31,12 @@ USAGE
                                       (default: FILE with .designed.json)
   flipwright parts FILE [--csv] [--stage N]
                                       print the component table (text or CSV)
+  flipwright simulate FILE [--csv OUT] [--probe NAME,...] [--stop TIME]
+                                      transient run of the circuit file FILE: writes the
+                                      waveforms to OUT (default: FILE with .csv) and prints
+                                      the run and each probe's min/max, toggles and edges;
+                                      NAME is a node, a voltage source (its current), or
+                                      voltage(NODE) / current(SOURCE)
   flipwright devices                  list the generic device archetypes
   flipwright series-tables            print the stored IEC 60063 E-series tables
   flipwright help                     this text
@@ -40,9 +47,10 @@ unit or IEC 60062 code (\"4k7\", \"100 nF\").
 EXIT CODES
   0  success (check/design: every margin passes at worst case)
   1  the analysis ran but some margin fails at worst case, or no design meets
-     the requirements (the message says which and by how much)
+     the requirements (the message says which and by how much), or a
+     simulation failed (the message says when and where)
   2  bad command line
-  3  unreadable or invalid design file (each bad field is listed)
+  3  unreadable or invalid design file or circuit file (each bad field is listed)
 ";
 
 struct Failure {
@@ -235,6 +243,7 @@ fn run(args: &[String]) -> Result<u8, Failure> {
             }
             Ok(0)
         }
+        "simulate" => simulate::run(rest),
         "devices" => {
             print!("{}", report::devices());
             Ok(0)

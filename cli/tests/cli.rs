@@ -238,3 +238,156 @@ fn design_completes_a_requirements_only_file() {
     check_exit(&output, 0, "design, default output");
     assert!(scratch.path("wanted.designed.json").exists());
 }
+
+/// The committed example circuit (examples/binary-stage-9v.circuit.json).
+fn example_circuit() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("../examples/binary-stage-9v.circuit.json")
+}
+
+/// An RC low-pass fed by one 5 V pulse: small enough to write out in a test.
+fn rc_circuit() -> Value {
+    serde_json::json!({
+        "format": "flipwright-circuit", "version": 1, "name": "RC test",
+        "circuit": {"elements": [
+            {"kind": "voltage_source", "name": "VIN", "positive_node": "in", "negative_node": "0",
+             "waveform": {"shape": "pulse_train", "initial_value": 0, "pulsed_value": 5, "delay_s": "1u",
+                          "rise_time_s": "10n", "fall_time_s": "10n", "width_s": "20u", "period_s": "50u"}},
+            {"kind": "resistor", "name": "R1", "positive_node": "in", "negative_node": "out", "resistance_ohm": "1k"},
+            {"kind": "capacitor", "name": "C1", "positive_node": "out", "negative_node": "0", "capacitance_f": "1n"}
+        ]},
+        "run": {"stop_time_s": "30u"}
+    })
+}
+
+fn write_json(scratch: &Scratch, name: &str, doc: &Value) -> PathBuf {
+    let path = scratch.path(name);
+    std::fs::write(&path, doc.to_string()).expect("write");
+    path
+}
+
+/// Reads the CSV `simulate` wrote: header and numeric rows (RFC 4180, every row as wide as
+/// the header).
+fn read_waveform_csv(path: &Path) -> (Vec<String>, Vec<Vec<f64>>) {
+    let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("no CSV at {}: {e}", path.display()));
+    let mut lines = text.lines();
+    let header = csv_fields(lines.next().expect("header line"));
+    let rows: Vec<Vec<f64>> = lines
+        .map(|line| csv_fields(line).iter().map(|f| f.parse::<f64>().expect("numeric field")).collect())
+        .collect();
+    for row in &rows {
+        assert_eq!(row.len(), header.len(), "{row:?}");
+    }
+    (header, rows)
+}
+
+#[test]
+fn simulate_runs_the_example_and_every_clock_edge_toggles_it() {
+    let scratch = Scratch::new("simulate-example");
+    let csv = scratch.path("wave.csv");
+    let output = run(
+        &["simulate", example_circuit().to_str().expect("utf-8"), "--csv", csv.to_str().expect("utf-8")],
+        &scratch.0,
+    );
+    check_exit(&output, 0, "simulate example");
+    let (header, rows) = read_waveform_csv(&csv);
+    assert_eq!(
+        header,
+        ["time_s", "voltage(c1)_v", "voltage(c2)_v", "voltage(b1)_v", "voltage(b2)_v", "current(VCC)_a"]
+    );
+    assert!(rows.len() > 100, "{} rows", rows.len());
+    // Times strictly increase from 0 to the file's 40 µs stop.
+    assert_eq!(rows.first().map(|r| r[0]), Some(0.0));
+    assert!(rows.windows(2).all(|w| w[1][0] > w[0][0]));
+    assert!((rows.last().map(|r| r[0]).unwrap_or(0.0) - 40e-6).abs() < 1e-15);
+    // A toggle (divide-by-two) stage changes state once per falling clock edge (domain brief
+    // §6); the example has four. The report's c1 line says so.
+    let text = stdout(&output);
+    let c1 =
+        text.lines().find(|l| l.starts_with("voltage(c1)")).unwrap_or_else(|| panic!("no c1 line:\n{text}"));
+    let toggles: Vec<&str> = c1.split_whitespace().collect();
+    assert_eq!(toggles.get(9).copied(), Some("4"), "{c1}");
+    assert!(text.contains("accepted steps") && text.contains("Newton iterations"), "{text}");
+}
+
+#[test]
+fn simulate_probe_and_stop_override_the_file() {
+    let scratch = Scratch::new("simulate-options");
+    let path = write_json(&scratch, "rc.json", &rc_circuit());
+    let output = run(
+        &["simulate", path.to_str().expect("utf-8"), "--probe", "out,VIN,voltage(in)", "--stop", "5 us"],
+        &scratch.0,
+    );
+    check_exit(&output, 0, "simulate --probe --stop");
+    // Default CSV name: FILE with .csv.
+    let (header, rows) = read_waveform_csv(&scratch.path("rc.csv"));
+    assert_eq!(header, ["time_s", "voltage(out)_v", "current(VIN)_a", "voltage(in)_v"]);
+    // RC step response (closed form, any circuits text): at the 5 µs stop, 4 time constants
+    // after the 1 µs delay, the output is 5·(1 − e^−4) = 4.908 V; 10 mV covers the 10 ns ramp
+    // and the engine's default 1e-3 relative tolerance.
+    let last = rows.last().cloned().unwrap_or_default();
+    assert!((last[0] - 5e-6).abs() < 1e-18, "{last:?}");
+    assert!((last[1] - 5.0 * (1.0 - (-4.0f64).exp())).abs() < 0.01, "{last:?}");
+    // Without --probe, the file's default probes: every named node.
+    let output = run(&["simulate", path.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 0, "simulate, default probes");
+    let (header, _) = read_waveform_csv(&scratch.path("rc.csv"));
+    assert_eq!(header, ["time_s", "voltage(in)_v", "voltage(out)_v"]);
+}
+
+#[test]
+fn simulate_refuses_bad_probes_and_stop_times_with_exit_2() {
+    let scratch = Scratch::new("simulate-usage");
+    let path = write_json(&scratch, "rc.json", &rc_circuit());
+    let file = path.to_str().expect("utf-8");
+    let output = run(&["simulate", file, "--probe", "out,R1"], &scratch.0);
+    check_exit(&output, 2, "unknown probe");
+    let err = stderr(&output);
+    assert!(err.contains("\"R1\"") && err.contains("nodes: in, out") && err.contains("VIN"), "{err}");
+    for stop in ["-1u", "soon"] {
+        let output = run(&["simulate", file, "--stop", stop], &scratch.0);
+        check_exit(&output, 2, &format!("--stop {stop}"));
+    }
+    let output = run(&["simulate"], &scratch.0);
+    check_exit(&output, 2, "simulate without a file");
+}
+
+#[test]
+fn invalid_circuit_files_exit_3_and_name_the_field() {
+    let scratch = Scratch::new("simulate-invalid");
+    let mut doc = rc_circuit();
+    doc["circuit"]["elements"][1]["resistance_ohm"] = Value::String("abc".into());
+    doc["circuit"]["elements"][2]["capacitance_f"] = serde_json::json!(-1e-9);
+    doc["run"]["stop_after"] = serde_json::json!(1);
+    let path = write_json(&scratch, "bad.json", &doc);
+    let output = run(&["simulate", path.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 3, "invalid circuit file");
+    let err = stderr(&output);
+    // Structure problems are all listed together, each by its path.
+    assert!(err.contains("circuit.elements[1].resistance_ohm"), "{err}");
+    assert!(err.contains("run.stop_after: unknown field"), "{err}");
+    // With the structure fixed, the value problem is named the same way.
+    doc["circuit"]["elements"][1]["resistance_ohm"] = serde_json::json!(1e3);
+    doc["run"].as_object_mut().expect("run").remove("stop_after");
+    let path = write_json(&scratch, "bad.json", &doc);
+    let output = run(&["simulate", path.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 3, "negative capacitance");
+    assert!(stderr(&output).contains("circuit.elements[2].capacitance_f"), "{}", stderr(&output));
+    // A newer version, another format, and a design file are refused by name.
+    let mut newer = rc_circuit();
+    newer["version"] = serde_json::json!(2);
+    let design = demo_file(&scratch);
+    for (path, expected) in [
+        (write_json(&scratch, "newer.json", &newer), "version 2 is newer"),
+        (
+            write_json(&scratch, "other.json", &serde_json::json!({"format": "spreadsheet"})),
+            "\"spreadsheet\"",
+        ),
+        (design, "simulating a design file is not available yet"),
+    ] {
+        let output = run(&["simulate", path.to_str().expect("utf-8")], &scratch.0);
+        check_exit(&output, 3, expected);
+        assert!(stderr(&output).contains(expected), "{}", stderr(&output));
+    }
+    let output = run(&["simulate", "no-such-circuit.json"], &scratch.0);
+    check_exit(&output, 3, "missing circuit file");
+}
