@@ -170,7 +170,7 @@ pub fn state_levels(times: &[f64], values: &[f64]) -> Result<(f64, f64), Measure
     check_lengths(times, values)?;
     let min = values.iter().copied().fold(f64::INFINITY, f64::min);
     let max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    if !(min <= max) || !(times.len() >= 2) {
+    if !(min <= max) || times.len() < 2 {
         return Err(MeasureError::NotFound { what: "two or more points".to_string() });
     }
     let range = max - min;
