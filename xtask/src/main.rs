@@ -10,8 +10,9 @@ cargo xtask <command>
   demo    build the command line, write the demo design to out/demo-design.json,
           analyse it and print its component table
   test    run every check: formatting, lints, unit and cross-check tests, CLI tests,
-          and the IEC 60063 table cross-check against the PyPI package eseries
-          (installed into target/xtask-venv on first use)
+          the IEC 60063 table cross-check against the PyPI package eseries, and the
+          transient engine against scipy's stiff ODE solver (both installed into
+          target/xtask-venv on first use)
   bench   run the benchmarks (core, release build; the page in Chromium) and print medians
   browser-test  build the page and run only the browser tests
   page    build the offline page out/flipwright.html and open it in a browser
@@ -117,11 +118,53 @@ fn eseries_check() -> Result<(), String> {
     }
 }
 
+/// Versions of the ODE cross-check's reference, checked on PyPI for Python 3.11.
+const NUMPY_VERSION: &str = "2.4.6";
+const SCIPY_VERSION: &str = "1.17.1";
+
+/// The same virtual environment with the pinned NumPy and SciPy, installed when missing or
+/// at another version.
+fn python_with_scipy() -> Result<PathBuf, String> {
+    let python = python_with_eseries()?;
+    let probe = format!(
+        "import sys, numpy, scipy; sys.exit(numpy.__version__ != '{NUMPY_VERSION}' or scipy.__version__ != '{SCIPY_VERSION}')"
+    );
+    let pinned = Command::new(&python).args(["-c", &probe]).status().map(|s| s.success()).unwrap_or(false);
+    if !pinned {
+        run(
+            &python.to_string_lossy(),
+            &[
+                "-m",
+                "pip",
+                "install",
+                "--quiet",
+                "--disable-pip-version-check",
+                &format!("numpy=={NUMPY_VERSION}"),
+                &format!("scipy=={SCIPY_VERSION}"),
+            ],
+        )?;
+    }
+    Ok(python)
+}
+
+/// The transient engine (through `flipwright simulate`) against scipy's Radau integrator on
+/// the same device equations.
+fn transient_ode_check() -> Result<(), String> {
+    let python = python_with_scipy()?;
+    run("cargo", &["build", "--release", "--quiet", "-p", "flipwright-cli"])?;
+    run(
+        &python.to_string_lossy(),
+        &["tests/python/transient_ode_check.py", "--cli", &cli_path().to_string_lossy()],
+    )
+    .map_err(|e| format!("{e}: the transient engine differs from the scipy reference (see above)"))
+}
+
 fn test() -> Result<(), String> {
     run("cargo", &["fmt", "--all", "--check"])?;
     run("cargo", &["clippy", "--workspace", "--all-targets", "--quiet", "--", "-D", "warnings"])?;
     run("cargo", &["test", "--workspace", "--quiet"])?;
     eseries_check()?;
+    transient_ode_check()?;
     browser_tests()?;
     eprintln!("\nall checks passed");
     Ok(())
