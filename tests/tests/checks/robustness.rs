@@ -1,4 +1,4 @@
-//! Property tests: validation, analysis and the design-file reader return a result or a typed error on any input, never a panic.
+//! Property tests: validation, analysis and the design- and circuit-file readers return a result or a typed error on any input, never a panic.
 
 use flipwright::design_file::DesignFile;
 use flipwright::device::archetypes::{self, DIODE_ARCHETYPE_IDS, TRANSISTOR_ARCHETYPE_IDS};
@@ -7,6 +7,7 @@ use flipwright::stage::{
     BiasScheme, Conditions, Load, Requirements, StageDesign, StageInput, StageValues, Steering, Supplies,
     TriggerNetwork,
 };
+use flipwright::transient::CircuitFile;
 use flipwright::units::ESeries;
 use proptest::prelude::*;
 use proptest::sample::Index;
@@ -139,6 +140,9 @@ fn pointers(value: &Value, prefix: String, out: &mut Vec<String>) {
     }
 }
 
+/// The committed example circuit file, the base of the circuit-file mutations.
+const EXAMPLE_CIRCUIT: &str = include_str!("../../../examples/binary-stage-9v.circuit.json");
+
 fn json_value() -> impl Strategy<Value = Value> {
     prop_oneof![
         Just(Value::Null),
@@ -157,7 +161,11 @@ fn json_value() -> impl Strategy<Value = Value> {
 /// Applies `(location, replacement)` edits to the demo: replace the value at a path, or
 /// remove it when the replacement is `{}` and the path is inside an object.
 fn mutated_demo(edits: &[(Index, Value)]) -> String {
-    let mut doc = demo_json();
+    mutated(demo_json(), edits)
+}
+
+/// The same edits on any document.
+fn mutated(mut doc: Value, edits: &[(Index, Value)]) -> String {
     for (location, replacement) in edits {
         let mut all = Vec::new();
         pointers(&doc, String::new(), &mut all);
@@ -212,6 +220,26 @@ proptest! {
             // Edits that keep the file valid must still analyse without panicking.
             Ok((_, design)) => { let _ = analyse(&design); }
         }
+    }
+
+    #[test]
+    fn circuit_file_load_never_panics_on_a_mutated_example(edits in prop::collection::vec((any::<Index>(), json_value()), 1..4)) {
+        let example: Value = serde_json::from_str(EXAMPLE_CIRCUIT).unwrap_or(Value::Null);
+        let text = mutated(example, &edits);
+        match CircuitFile::load(&text) {
+            Err(errors) => {
+                prop_assert!(!errors.is_empty());
+                for e in &errors {
+                    prop_assert!(!e.path.is_empty() && !e.message.is_empty(), "{:?}", e);
+                }
+            }
+            Ok(file) => prop_assert!(!file.recorded_probes().is_empty()),
+        }
+    }
+
+    #[test]
+    fn circuit_file_parse_never_panics_on_arbitrary_text(text in any::<String>()) {
+        let _ = CircuitFile::parse(&text);
     }
 
     #[test]
