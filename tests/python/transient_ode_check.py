@@ -1,7 +1,7 @@
 """Independent cross-check of Flipwright's transient engine against a general-purpose stiff ODE solver.
 
-Reference: scipy.integrate.solve_ivp from SciPy (version pinned by `cargo xtask test`, printed
-below), method "Radau" (implicit Runge-Kutta, Radau IIA of order 5: Hairer & Wanner, "Solving
+Reference: scipy.integrate.solve_ivp from SciPy 1.17.1 with NumPy 2.4.6 (the versions
+`cargo xtask test` pins in xtask/src/main.rs; the running ones are printed), method "Radau" (implicit Runge-Kutta, Radau IIA of order 5: Hairer & Wanner, "Solving
 Ordinary Differential Equations II", 1996), with tolerances far tighter than the engine's, and
 scipy.optimize.root (MINPACK hybrd) for the DC operating point. The engine and the reference share
 only the circuit file and the device equations as documented; the numerical methods (the engine's
@@ -28,7 +28,8 @@ What is compared (tolerances stated and justified beside each check in main()):
 2. every probed node voltage at every time point the engine accepted, against the reference's
    dense output there, for the file's run settings and for a copy with the engine's relative
    tolerance 100 times tighter (the difference must shrink: both must converge to one solution);
-3. the time each collector crosses half its swing on the switching edge;
+3. the time every node that swings more than 1 V first crosses half its swing after the first
+   source corner (the switching edge);
 4. the current of every probed voltage source, relative to its largest magnitude.
 
 Usage:
@@ -522,7 +523,7 @@ def compare(label: str, engine: dict[str, list[float]], reference: Reference) ->
                 if difference > worst_v:
                     worst_v, worst_v_where = difference, f"{node} at t = {t:.4e} s"
         elif source is not None:
-            scale = max(abs(v) for v in values)
+            scale = max(max(abs(v) for v in values), 1e-30)
             for t, value in zip(times, values):
                 difference = abs(value - reference.source_current(source, t)) / scale
                 if difference > worst_i:
