@@ -12,3 +12,4 @@ pub mod stage;
 pub mod table;
 pub mod transient;
 pub mod units;
+pub mod verify;

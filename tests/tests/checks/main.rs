@@ -12,4 +12,5 @@ mod series;
 mod stage_models;
 mod transient;
 mod units;
+mod verify;
 mod worst_case;

@@ -55,7 +55,7 @@ fn self_bias_design() -> StageDesign {
 
 /// A germanium PNP board: the alloy-junction archetype with point-contact steering diodes,
 /// −9 V supply with +3 V bias rail, 0–45 °C, 10 kHz.
-fn germanium_design() -> StageDesign {
+pub(crate) fn germanium_design() -> StageDesign {
     let mut file = DesignFile::demo();
     file.transistor = DeviceChoice::Archetype("ge-pnp-alloy-15v".to_string());
     file.diode = DeviceChoice::Archetype("ge-point-contact-diode".to_string());

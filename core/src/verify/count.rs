@@ -1,0 +1,175 @@
+//! Run a built circuit for a number of input edges and check the count it holds after each:
+//! every stage read from its two collectors just before the next active edge.
+
+use serde::Serialize;
+
+use super::build::BuiltCircuit;
+use crate::transient::{simulate, RunStatistics, SimulationError, TransientResult, TransientSettings};
+
+/// The two collectors must differ by this share of the collector supply for a stage's state
+/// to count as decided (our choice: well clear of the middle, below any usable swing).
+pub const DECIDED_SHARE_OF_SUPPLY: f64 = 0.2;
+/// States are read this share of a period before the next active edge.
+const SAMPLE_LEAD_SHARE: f64 = 0.02;
+
+/// Accuracy and limits of the runs a verification makes.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, serde::Deserialize)]
+pub struct RunAccuracy {
+    /// The engine's relative tolerance (charges and Newton).
+    pub relative_tolerance: f64,
+    /// Most accepted steps one run may take.
+    pub max_steps: usize,
+}
+
+impl Default for RunAccuracy {
+    fn default() -> Self {
+        RunAccuracy { relative_tolerance: 1e-3, max_steps: 2_000_000 }
+    }
+}
+
+/// The count checked after each input edge.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CountCheck {
+    pub stages: usize,
+    pub edges: usize,
+    /// Count before the first edge (every stage should start at 0).
+    pub initial: Option<u64>,
+    /// Expected count after edge k (k + 1 modulo 2^stages).
+    pub expected: Vec<u64>,
+    /// Count read after edge k; `None` where some stage sat between its states.
+    pub observed: Vec<Option<u64>>,
+    /// First edge (0-based) after which the count was wrong.
+    pub first_error: Option<usize>,
+    pub correct: bool,
+    pub statistics: RunStatistics,
+}
+
+impl CountCheck {
+    /// How many edges in a row, from the first, gave the right count.
+    pub fn correct_edges(&self) -> usize {
+        self.first_error.unwrap_or(self.edges)
+    }
+}
+
+/// Why a check could not be made.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub enum RunError {
+    Simulation(SimulationError),
+    /// Occurs when asked for no edges, or more than a run may hold.
+    EdgeCount {
+        requested: usize,
+    },
+    /// Occurs when the progress callback asked to stop.
+    Cancelled,
+}
+
+impl std::fmt::Display for RunError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            RunError::Simulation(error) => write!(f, "{error}"),
+            RunError::EdgeCount { requested } => {
+                write!(f, "a run needs 1 to {MAX_EDGES} input edges, not {requested}")
+            }
+            RunError::Cancelled => write!(f, "cancelled"),
+        }
+    }
+}
+
+impl std::error::Error for RunError {}
+
+impl From<SimulationError> for RunError {
+    fn from(error: SimulationError) -> Self {
+        RunError::Simulation(error)
+    }
+}
+
+/// Most input edges one run may be asked for.
+pub const MAX_EDGES: usize = 1 << 17;
+
+/// Value of a waveform at `time_s`, linear between recorded points.
+pub fn value_at(times: &[f64], values: &[f64], time_s: f64) -> Option<f64> {
+    let upper = times.partition_point(|&t| t < time_s);
+    if upper == 0 {
+        return values.first().copied();
+    }
+    let (t1, v1) = (*times.get(upper)?, *values.get(upper)?);
+    let (t0, v0) = (times[upper - 1], *values.get(upper - 1)?);
+    if t1 > t0 {
+        Some(v0 + (v1 - v0) * (time_s - t0) / (t1 - t0))
+    } else {
+        Some(v1)
+    }
+}
+
+/// The count held at `time_s`, `None` if any stage is undecided or missing.
+pub fn count_at(built: &BuiltCircuit, result: &TransientResult, time_s: f64) -> Option<u64> {
+    let decided = DECIDED_SHARE_OF_SUPPLY * built.collector_supply_v;
+    let mut count = 0u64;
+    for (bit, stage) in built.stages.iter().enumerate() {
+        let c1 = value_at(&result.time_s, result.voltage(&stage.collectors[0])?, time_s)?;
+        let c2 = value_at(&result.time_s, result.voltage(&stage.collectors[1])?, time_s)?;
+        if c1 - c2 > decided {
+            count |= 1 << bit;
+        } else if c2 - c1 <= decided {
+            return None;
+        }
+    }
+    Some(count)
+}
+
+/// Settings for a run covering `edges` active edges and the period after the last.
+pub fn run_settings(built: &BuiltCircuit, edges: usize, accuracy: &RunAccuracy) -> TransientSettings {
+    let period = built.pulse.period_s();
+    let stop = built.pulse.edge_time_s(edges);
+    let mut settings = TransientSettings::new(stop);
+    settings.max_step_s = Some((stop / 50.0).min(period / 4.0));
+    settings.initial_step_s = Some(built.pulse.effective_edge_s() * 1e-3);
+    settings.relative_tolerance = accuracy.relative_tolerance;
+    settings.max_steps = accuracy.max_steps;
+    settings
+}
+
+/// Checks an already simulated run.
+pub fn check_counts(built: &BuiltCircuit, result: &TransientResult, edges: usize) -> CountCheck {
+    let stages = built.stages.len();
+    let modulus = 1u64 << stages.min(63);
+    let lead = SAMPLE_LEAD_SHARE * built.pulse.period_s();
+    let initial = count_at(built, result, built.pulse.first_edge_s() - lead);
+    let mut expected = Vec::with_capacity(edges);
+    let mut observed = Vec::with_capacity(edges);
+    let mut first_error = if initial == Some(0) { None } else { Some(0) };
+    for k in 0..edges {
+        let want = (k as u64 + 1) % modulus;
+        let got = count_at(built, result, built.pulse.edge_time_s(k + 1) - lead);
+        if got != Some(want) && first_error.is_none() {
+            first_error = Some(k);
+        }
+        expected.push(want);
+        observed.push(got);
+    }
+    CountCheck {
+        stages,
+        edges,
+        initial,
+        expected,
+        observed,
+        first_error,
+        correct: first_error.is_none(),
+        statistics: result.statistics,
+    }
+}
+
+/// Simulates `edges` input edges and checks the count after each; the waveforms come back
+/// too, for plots and CSV.
+pub fn run_and_check(
+    built: &BuiltCircuit,
+    edges: usize,
+    accuracy: &RunAccuracy,
+) -> Result<(CountCheck, TransientResult), RunError> {
+    if edges == 0 || edges > MAX_EDGES {
+        return Err(RunError::EdgeCount { requested: edges });
+    }
+    let settings = run_settings(built, edges, accuracy);
+    let result = simulate(&built.circuit, &settings, &built.hints)?;
+    Ok((check_counts(built, &result, edges), result))
+}

@@ -1,0 +1,182 @@
+//! Verification by simulation: the designed stage (or a ripple chain of it) built as a
+//! transient circuit, run, and checked count by count; trigger sensitivity and maximum toggle
+//! rate measured by bisection and reported beside the handbook estimates.
+//!
+//! - [`build`]: design → circuit (input pulse, corner, stage and chain builders);
+//! - [`count`]: a run over K input edges and the count read after each;
+//! - [`search`]: bisection on amplitude and rate.
+
+pub mod build;
+pub mod count;
+pub mod search;
+
+use serde::{Deserialize, Serialize};
+
+pub use build::{chain_circuit, stage_circuit, BuildError, BuiltCircuit, InputPulse, SimulationCorner};
+pub use count::{run_and_check, CountCheck, RunAccuracy, RunError};
+pub use search::{measure_max_rate, measure_sensitivity, Measured, SearchOutcome, SearchSettings};
+
+use crate::stage::analysis::analyse;
+use crate::stage::StageDesign;
+use crate::transient::TransientResult;
+
+/// What a stage verification runs.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct VerifyOptions {
+    /// Edges of the nominal run at the design's rate and trigger amplitude.
+    pub nominal_edges: usize,
+    pub corner: SimulationCorner,
+    pub search: SearchSettings,
+    /// Also bisect for sensitivity and maximum rate (the long part).
+    pub measure: bool,
+}
+
+impl Default for VerifyOptions {
+    fn default() -> Self {
+        VerifyOptions {
+            nominal_edges: 8,
+            corner: SimulationCorner::nominal(),
+            search: SearchSettings::default(),
+            measure: true,
+        }
+    }
+}
+
+/// Where a verification has got to, for a progress bar.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Progress {
+    pub done_runs: usize,
+    /// Upper bound on the runs the whole verification makes.
+    pub total_runs: usize,
+    pub phase: &'static str,
+}
+
+/// Everything a stage verification found.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct StageVerification {
+    pub pulse: InputPulse,
+    pub corner: SimulationCorner,
+    /// The nominal run: the stage toggles on every edge at the design rate.
+    pub nominal: CountCheck,
+    pub sensitivity: Option<Measured>,
+    pub max_rate: Option<Measured>,
+    pub assumptions: Vec<String>,
+}
+
+/// Errors of a verification.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub enum VerifyError {
+    Build(BuildError),
+    Run(RunError),
+    /// Occurs when the analysis that provides the estimates fails.
+    Analysis(String),
+}
+
+impl std::fmt::Display for VerifyError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            VerifyError::Build(error) => write!(f, "{error}"),
+            VerifyError::Run(error) => write!(f, "{error}"),
+            VerifyError::Analysis(reason) => write!(f, "the analysis behind the estimates failed: {reason}"),
+        }
+    }
+}
+
+impl std::error::Error for VerifyError {}
+
+impl From<BuildError> for VerifyError {
+    fn from(error: BuildError) -> Self {
+        VerifyError::Build(error)
+    }
+}
+impl From<RunError> for VerifyError {
+    fn from(error: RunError) -> Self {
+        VerifyError::Run(error)
+    }
+}
+
+/// Bisection runs of one search at most: two bound checks and the bisections to resolution
+/// (sensitivity: 2/0.005 = 400 → 9; rate: ln 64 / ln 1.02 ≈ 210 → 8; one spare each).
+const RUNS_PER_SEARCH: usize = 12;
+
+/// The pulse a stage sees in service: the design's rate, its available trigger amplitude
+/// (the requirement, or the stage's own swing when driven by an identical stage), square.
+pub fn design_pulse(design: &StageDesign, available_amplitude_v: f64, edge_s: f64) -> InputPulse {
+    InputPulse {
+        amplitude_v: available_amplitude_v,
+        rate_hz: design.input().requirements.toggle_rate_hz,
+        edge_s,
+        duty: 0.5,
+    }
+}
+
+/// Verifies one stage: the nominal run, then (with `options.measure`) the two searches.
+/// `progress` is called before every run; returning false cancels.
+pub fn verify_stage(
+    design: &StageDesign,
+    options: &VerifyOptions,
+    progress: &mut dyn FnMut(Progress) -> bool,
+) -> Result<(StageVerification, TransientResult), VerifyError> {
+    let report = analyse(design).map_err(|e| VerifyError::Analysis(e.to_string()))?;
+    let switching = &report.switching;
+    let pulse = design_pulse(design, switching.available_trigger_amplitude_v, options.search.edge_s);
+    let total_runs = 1 + if options.measure { 2 * RUNS_PER_SEARCH } else { 0 };
+    let mut done = 0;
+    let mut tick = |phase: &'static str| {
+        let go_on = progress(Progress { done_runs: done, total_runs, phase });
+        done += 1;
+        go_on
+    };
+    if !tick("nominal run") {
+        return Err(VerifyError::Run(RunError::Cancelled));
+    }
+    let built = stage_circuit(design, &pulse, &options.corner)?;
+    let (nominal, waveforms) = run_and_check(&built, options.nominal_edges, &options.search.accuracy)?;
+    let (sensitivity, max_rate) = if options.measure {
+        let sensitivity = measure_sensitivity(
+            design,
+            pulse.rate_hz,
+            &options.corner,
+            &options.search,
+            switching.min_trigger_amplitude_v,
+            || tick("trigger sensitivity"),
+        )?;
+        let max_rate = measure_max_rate(
+            design,
+            pulse.amplitude_v,
+            &options.corner,
+            &options.search,
+            Some(switching.max_toggle_rate_hz),
+            || tick("maximum toggle rate"),
+        )?;
+        (Some(sensitivity), Some(max_rate))
+    } else {
+        (None, None)
+    };
+    Ok((
+        StageVerification {
+            pulse,
+            corner: options.corner,
+            nominal,
+            sensitivity,
+            max_rate,
+            assumptions: built.assumptions,
+        },
+        waveforms,
+    ))
+}
+
+/// Verifies a ripple chain of `stages` copies of the stage: `edges` input edges at the
+/// design's rate and amplitude, the count checked after each.
+pub fn verify_chain(
+    design: &StageDesign,
+    stages: usize,
+    edges: usize,
+    pulse: &InputPulse,
+    corner: &SimulationCorner,
+    accuracy: &RunAccuracy,
+) -> Result<(CountCheck, TransientResult, BuiltCircuit), VerifyError> {
+    let built = chain_circuit(design, stages, pulse, corner)?;
+    let (check, result) = run_and_check(&built, edges, accuracy)?;
+    Ok((check, result, built))
+}
