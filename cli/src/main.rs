@@ -3,6 +3,7 @@
 
 mod report;
 mod simulate;
+mod simulate_design;
 
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -37,6 +38,15 @@ USAGE
                                       the run and each probe's min/max, toggles and edges;
                                       NAME is a node, a voltage source (its current), or
                                       voltage(NODE) / current(SOURCE)
+  flipwright simulate DESIGN [--stages N] [--edges K] [--temperature T] [--quick]
+                      [--csv OUT] [--probe NAME,...]
+                                      verify the design in DESIGN by simulation: the stage
+                                      (or a ripple chain of N stages) driven for K input
+                                      edges (default 8, or two full output periods of a
+                                      chain), the count checked after every edge; for one
+                                      stage also the measured trigger sensitivity and
+                                      maximum toggle rate beside the estimates (--quick
+                                      skips the searches). Exit 1 if any count is wrong.
   flipwright devices                  list the generic device archetypes
   flipwright series-tables            print the stored IEC 60063 E-series tables
   flipwright help                     this text

@@ -14,15 +14,17 @@ use flipwright::transient::system::System;
 use flipwright::transient::{simulate, OperatingPointMethod, Probe, SimulationError, TransientResult};
 use flipwright::units::{format_quantity, parse_quantity, Unit};
 
+use crate::simulate_design::{simulate_design_file, DesignRequest};
 use crate::{input_error, parse_options, read, usage, write, Failure, EXIT_MARGINS_FAIL};
 
 /// Runs `simulate` with the arguments after the command name.
 pub fn run(args: &[String]) -> Result<u8, Failure> {
-    let options = parse_options(args, &["csv", "probe", "stop"], &[])?;
+    let options =
+        parse_options(args, &["csv", "probe", "stop", "stages", "edges", "temperature"], &["quick"])?;
     let path = match options.positional.as_slice() {
         [file] => PathBuf::from(file),
-        [] => return Err(usage("`simulate` needs a circuit file")),
-        _ => return Err(usage("`simulate` takes one circuit file")),
+        [] => return Err(usage("`simulate` needs a design file or a circuit file")),
+        _ => return Err(usage("`simulate` takes one design file or circuit file")),
     };
     let text = read(&path)?;
     let request = Request {
@@ -32,16 +34,23 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
     };
     match document_format(&path, &text)?.as_str() {
         circuit_file::FORMAT_NAME => simulate_circuit_file(&path, &text, &request),
-        design_file::FORMAT_NAME => Err(input_error(format!(
-            "{}: simulating a design file is not available yet; describe the circuit in a circuit \
-             file (\"format\": \"{}\", see examples/) and simulate that",
-            path.display(),
-            circuit_file::FORMAT_NAME
-        ))),
+        design_file::FORMAT_NAME => {
+            if request.stop.is_some() {
+                return Err(usage("--stop is for circuit files; a design run is set by --edges"));
+            }
+            let design_request = DesignRequest::parse(
+                options.value("stages"),
+                options.value("edges"),
+                options.value("temperature"),
+                options.has("quick"),
+            )?;
+            simulate_design_file(&path, &design_request, &request.csv, request.probes.as_deref())
+        }
         other => Err(input_error(format!(
-            "{}: format \"{other}\" is not one `simulate` runs (expected \"{}\")",
+            "{}: format \"{other}\" is not one `simulate` runs (expected \"{}\" or \"{}\")",
             path.display(),
-            circuit_file::FORMAT_NAME
+            circuit_file::FORMAT_NAME,
+            design_file::FORMAT_NAME
         ))),
     }
 }

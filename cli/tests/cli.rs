@@ -391,3 +391,83 @@ fn invalid_circuit_files_exit_3_and_name_the_field() {
     let output = run(&["simulate", "no-such-circuit.json"], &scratch.0);
     check_exit(&output, 3, "missing circuit file");
 }
+
+/// Writes the demo design (values chosen) into the scratch directory.
+fn demo_design_file(scratch: &Scratch) -> PathBuf {
+    let path = scratch.path("demo.json");
+    check_exit(&run(&["demo", path.to_str().expect("utf-8")], &scratch.0), 0, "demo");
+    path
+}
+
+#[test]
+fn simulate_a_design_verifies_the_stage_and_measures_beside_the_estimates() {
+    let scratch = Scratch::new("simulate-design");
+    let design = demo_design_file(&scratch);
+    let output = run(&["simulate", design.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 0, "simulate demo design");
+    let text = stdout(&output);
+    // A toggle stage changes state on every edge (common practice): 8 edges give 1 0 1 0 ….
+    assert!(text.contains("PASS: the count was right after every one of the 8 edges"), "{text}");
+    assert!(text.contains("Count after each edge: 1 0 1 0 1 0 1 0"), "{text}");
+    for quantity in ["Minimum trigger amplitude: estimate", "Maximum toggle rate: estimate"] {
+        let line =
+            text.lines().find(|l| l.starts_with(quantity)).unwrap_or_else(|| panic!("{quantity}:\n{text}"));
+        assert!(
+            line.contains("measured") && line.contains("passes at") && line.contains("fails at"),
+            "{line}"
+        );
+    }
+    assert!(text.contains("resolution") && text.contains("searched"), "{text}");
+    // Waveforms next to the design file: the input and both collectors and bases.
+    let (header, rows) = read_waveform_csv(&scratch.path("demo.csv"));
+    assert_eq!(
+        header,
+        ["time_s", "voltage(in)_v", "voltage(c1)_v", "voltage(c2)_v", "voltage(b1)_v", "voltage(b2)_v"]
+    );
+    assert!(rows.len() > 100);
+}
+
+#[test]
+fn simulate_a_chain_of_the_design_counts_modulo_its_length() {
+    let scratch = Scratch::new("simulate-chain");
+    let design = demo_design_file(&scratch);
+    let csv = scratch.path("chain.csv");
+    let output = run(
+        &[
+            "simulate",
+            design.to_str().expect("utf-8"),
+            "--stages",
+            "3",
+            "--csv",
+            csv.to_str().expect("utf-8"),
+        ],
+        &scratch.0,
+    );
+    check_exit(&output, 0, "three-stage chain");
+    let text = stdout(&output);
+    // Three binaries in ripple count 0…7 (Mano & Ciletti, Digital Design, ripple counters);
+    // the default is two full output periods, 16 edges.
+    assert!(text.contains("divide by 8"), "{text}");
+    assert!(text.contains("Count after each edge: 1 2 3 4 5 6 7 0 1 2 3 4 5 6 7 0"), "{text}");
+    let (header, _) = read_waveform_csv(&csv);
+    assert!(header.contains(&"voltage(s3.c1)_v".to_string()), "{header:?}");
+}
+
+#[test]
+fn simulate_a_design_refuses_bad_options_with_exit_2() {
+    let scratch = Scratch::new("simulate-design-usage");
+    let design = demo_design_file(&scratch);
+    let file = design.to_str().expect("utf-8");
+    for (args, says) in [
+        (vec!["simulate", file, "--stages", "0"], "--stages"),
+        (vec!["simulate", file, "--stages", "40"], "--stages"),
+        (vec!["simulate", file, "--edges", "many"], "--edges"),
+        (vec!["simulate", file, "--temperature", "900"], "--temperature"),
+        (vec!["simulate", file, "--stop", "1m"], "--stop"),
+        (vec!["simulate", file, "--quick", "--probe", "nowhere"], "nowhere"),
+    ] {
+        let output = run(&args, &scratch.0);
+        check_exit(&output, 2, &args.join(" "));
+        assert!(stderr(&output).contains(says), "{args:?}: {}", stderr(&output));
+    }
+}

@@ -180,3 +180,16 @@ pub fn verify_chain(
     let (check, result) = run_and_check(&built, edges, accuracy)?;
     Ok((check, result, built))
 }
+
+/// The waveforms of an NPN-frame run in the design's real polarity: for a PNP design
+/// (`sign` −1) every node voltage and source current is negated, as the analysis report does.
+pub fn in_real_polarity(mut result: TransientResult, sign: f64) -> TransientResult {
+    if sign < 0.0 {
+        for wave in result.node_voltages_v.iter_mut().chain(result.source_currents_a.iter_mut()) {
+            for value in wave.iter_mut() {
+                *value = -*value;
+            }
+        }
+    }
+    result
+}

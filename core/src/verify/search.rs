@@ -7,6 +7,7 @@ use serde::{Deserialize, Serialize};
 use super::build::{stage_circuit, InputPulse, SimulationCorner};
 use super::count::{run_and_check, RunAccuracy, RunError};
 use crate::stage::StageDesign;
+use crate::units::{format_quantity, Unit};
 
 /// Hard bound on the bisection steps of one search (resolution reached long before).
 const MAX_BISECTIONS: usize = 40;
@@ -183,12 +184,17 @@ pub fn measure_sensitivity(
         search_low: spec.low,
         search_high: spec.high,
         resolution: spec.resolution,
-        resolution_text: format!("{:.3} V (0.5 % of the collector supply)", spec.resolution),
+        resolution_text: format!(
+            "{} (0.5 % of the collector supply)",
+            format_quantity(spec.resolution, Unit::Volt)
+        ),
         edges_per_run: settings.edges_per_run,
         runs,
         conditions: format!(
-            "square wave at {rate_hz:.4e} Hz, {:.3e} s edges, {:.1} °C",
-            settings.edge_s, corner.temperature_c
+            "square wave at {}, {} edges, {:.1} °C",
+            format_quantity(rate_hz, Unit::Hertz),
+            format_quantity(settings.edge_s, Unit::Second),
+            corner.temperature_c
         ),
     })
 }
@@ -237,8 +243,10 @@ pub fn measure_max_rate(
         edges_per_run: settings.edges_per_run,
         runs,
         conditions: format!(
-            "{amplitude_v:.3} V square wave, {:.3e} s edges (at most a tenth of the period), {:.1} °C",
-            settings.edge_s, corner.temperature_c
+            "{} square wave, {} edges (at most a tenth of the period), {:.1} °C",
+            format_quantity(amplitude_v, Unit::Volt),
+            format_quantity(settings.edge_s, Unit::Second),
+            corner.temperature_c
         ),
     })
 }

@@ -1,0 +1,288 @@
+//! `flipwright simulate DESIGN`: the designed stage (or a ripple chain of it) simulated, its
+//! count checked after every input edge, and trigger sensitivity and maximum toggle rate
+//! measured beside the handbook estimates.
+
+use std::fmt::Write;
+use std::io::{IsTerminal, Write as _};
+use std::path::Path;
+
+use flipwright::stage::analysis::analyse;
+use flipwright::stage::StageDesign;
+use flipwright::transient::export::{parse_probe, to_csv};
+use flipwright::transient::{Probe, TransientResult};
+use flipwright::units::{format_quantity, Unit};
+use flipwright::verify::{
+    self, design_pulse, in_real_polarity, BuiltCircuit, CountCheck, Measured, RunAccuracy, SearchOutcome,
+    SearchSettings, SimulationCorner, VerifyError, VerifyOptions,
+};
+
+use crate::{load_design, usage, write, Failure, EXIT_MARGINS_FAIL};
+
+/// Design-file options of `simulate`.
+pub struct DesignRequest {
+    pub stages: usize,
+    pub edges: Option<usize>,
+    pub temperature_c: Option<f64>,
+    pub measure: bool,
+}
+
+impl DesignRequest {
+    pub fn parse(
+        stages: Option<&str>,
+        edges: Option<&str>,
+        temperature: Option<&str>,
+        quick: bool,
+    ) -> Result<DesignRequest, Failure> {
+        let stages = match stages {
+            None => 1,
+            Some(text) => text
+                .parse::<usize>()
+                .ok()
+                .filter(|n| (1..=verify::build::MAX_CHAIN_STAGES).contains(n))
+                .ok_or_else(|| {
+                    usage(format!(
+                        "--stages wants a whole number from 1 to {}, got \"{text}\"",
+                        verify::build::MAX_CHAIN_STAGES
+                    ))
+                })?,
+        };
+        let edges = match edges {
+            None => None,
+            Some(text) => Some(
+                text.parse::<usize>()
+                    .ok()
+                    .filter(|n| (1..=verify::count::MAX_EDGES).contains(n))
+                    .ok_or_else(|| {
+                        usage(format!(
+                            "--edges wants a whole number from 1 to {}, got \"{text}\"",
+                            verify::count::MAX_EDGES
+                        ))
+                    })?,
+            ),
+        };
+        let temperature_c = match temperature {
+            None => None,
+            Some(text) => Some(
+                text.trim_end_matches("°C")
+                    .trim_end_matches('C')
+                    .trim()
+                    .replace('−', "-")
+                    .parse::<f64>()
+                    .ok()
+                    .filter(|t| (-70.0..=150.0).contains(t))
+                    .ok_or_else(|| {
+                        usage(format!("--temperature wants °C from −70 to 150, got \"{text}\""))
+                    })?,
+            ),
+        };
+        Ok(DesignRequest { stages, edges, temperature_c, measure: !quick })
+    }
+}
+
+fn verify_failure(error: VerifyError) -> Failure {
+    Failure { code: EXIT_MARGINS_FAIL, message: format!("the verification failed: {error}") }
+}
+
+/// Runs the design route of `simulate`.
+pub fn simulate_design_file(
+    path: &Path,
+    request: &DesignRequest,
+    csv: &Path,
+    probes: Option<&str>,
+) -> Result<u8, Failure> {
+    let (_, design) = load_design(path)?;
+    let sign = design.transistor().polarity.sign();
+    let mut corner = SimulationCorner::nominal();
+    if let Some(t) = request.temperature_c {
+        corner.temperature_c = t;
+    }
+    let mut out = String::new();
+    let (check, result, built) = if request.stages == 1 {
+        let options = VerifyOptions {
+            nominal_edges: request.edges.unwrap_or(8),
+            corner,
+            measure: request.measure,
+            ..VerifyOptions::default()
+        };
+        // Progress on a terminal only; logs get the result alone.
+        let mut stderr = std::io::stderr();
+        let show = stderr.is_terminal();
+        let (verification, result) = verify::verify_stage(&design, &options, &mut |p| {
+            if show {
+                let _ = write!(
+                    stderr,
+                    "\r{:<22} run {:>2} of at most {:>2}",
+                    p.phase,
+                    p.done_runs + 1,
+                    p.total_runs
+                );
+                let _ = stderr.flush();
+            }
+            true
+        })
+        .map_err(verify_failure)?;
+        if show {
+            let _ = write!(stderr, "\r{:<50}\r", "");
+        }
+        let built = verify::stage_circuit(&design, &verification.pulse, &corner)
+            .map_err(|e| verify_failure(e.into()))?;
+        for measured in verification.sensitivity.iter().chain(verification.max_rate.iter()) {
+            render_measured(&mut out, measured);
+        }
+        if !request.measure {
+            let _ = writeln!(out, "Sensitivity and toggle-rate searches skipped (--quick).");
+        }
+        (verification.nominal, result, built)
+    } else {
+        // The first stage sees what one stage would: the required trigger amplitude, or the
+        // swing of an identical driving stage.
+        let report = analyse(&design).map_err(|e| verify_failure(VerifyError::Analysis(e.to_string())))?;
+        let amplitude_v = report.switching.available_trigger_amplitude_v;
+        let pulse = design_pulse(&design, amplitude_v, SearchSettings::default().edge_s);
+        let edges = request.edges.unwrap_or(2usize << request.stages);
+        let (check, result, built) =
+            verify::verify_chain(&design, request.stages, edges, &pulse, &corner, &RunAccuracy::default())
+                .map_err(verify_failure)?;
+        (check, result, built)
+    };
+    let result = in_real_polarity(result, sign);
+    let probes = choose_probes(&built, &result, probes)?;
+    let table = to_csv(&result, &probes).map_err(|e| usage(e.to_string()))?;
+    write(csv, &table)?;
+    let mut head = String::new();
+    render_run(&mut head, &design, &built, &check, corner.temperature_c);
+    let _ = writeln!(
+        head,
+        "Wrote {} ({} time points, {} probe(s)).",
+        csv.display(),
+        result.time_s.len(),
+        probes.len()
+    );
+    print!("{head}{}", if out.is_empty() { String::new() } else { format!("\n{out}") });
+    println!("\nAssumptions of the simulated circuit:");
+    for line in &built.assumptions {
+        println!("  - {line}");
+    }
+    if sign < 0.0 {
+        println!("  - simulated as the NPN mirror; the CSV holds the real (negative) PNP voltages");
+    }
+    Ok(if check.correct { 0 } else { EXIT_MARGINS_FAIL })
+}
+
+fn choose_probes(
+    built: &BuiltCircuit,
+    result: &TransientResult,
+    list: Option<&str>,
+) -> Result<Vec<Probe>, Failure> {
+    let names: Vec<String> = match list {
+        Some(list) => list.split(',').map(|n| n.trim().to_string()).filter(|n| !n.is_empty()).collect(),
+        None => std::iter::once(built.input_node.clone())
+            .chain(built.stages.iter().flat_map(|s| s.collectors.iter().chain(s.bases.iter()).cloned()))
+            .collect(),
+    };
+    let probes = names
+        .iter()
+        .map(|name| parse_probe(name, &result.node_names, &result.source_names))
+        .collect::<Result<Vec<Probe>, _>>()
+        .map_err(|e| usage(format!("--probe: {e}")))?;
+    if probes.is_empty() {
+        return Err(usage("--probe names nothing: give node or source names, such as --probe c1,c2"));
+    }
+    Ok(probes)
+}
+
+fn render_run(
+    out: &mut String,
+    design: &StageDesign,
+    built: &BuiltCircuit,
+    check: &CountCheck,
+    temperature_c: f64,
+) {
+    let pulse = &built.pulse;
+    let stats = check.statistics;
+    let what = if check.stages == 1 {
+        "one stage".to_string()
+    } else {
+        format!("a ripple chain of {} stages (divide by {})", check.stages, 1u64 << check.stages)
+    };
+    let _ = writeln!(
+        out,
+        "Simulated {what} at {temperature_c:.1} °C: {} input edges of {} at {} ({} edges).",
+        check.edges,
+        format_quantity(pulse.amplitude_v * design.transistor().polarity.sign(), Unit::Volt),
+        format_quantity(pulse.rate_hz, Unit::Hertz),
+        format_quantity(pulse.effective_edge_s(), Unit::Second),
+    );
+    let _ = writeln!(
+        out,
+        "Engine: {} accepted steps, {} rejected, {:.2} Newton iterations per step.",
+        stats.accepted_steps,
+        stats.rejected_steps,
+        stats.newton_iterations as f64 / stats.accepted_steps.max(1) as f64
+    );
+    match check.first_error {
+        None => {
+            let _ = writeln!(out, "PASS: the count was right after every one of the {} edges.", check.edges);
+        }
+        Some(k) => {
+            let got = check.observed.get(k).copied().flatten();
+            let _ = writeln!(
+                out,
+                "FAIL: after edge {} the count should be {} but was {}.",
+                k + 1,
+                check.expected.get(k).copied().unwrap_or(0),
+                got.map_or_else(|| "undecided (a stage between its states)".to_string(), |c| c.to_string())
+            );
+        }
+    }
+    let shown = check.edges.min(32);
+    let counts: Vec<String> = check
+        .observed
+        .iter()
+        .take(shown)
+        .map(|c| c.map_or_else(|| "?".to_string(), |c| c.to_string()))
+        .collect();
+    let _ = writeln!(
+        out,
+        "Count after each edge{}: {}",
+        if shown < check.edges { format!(" (first {shown})") } else { String::new() },
+        counts.join(" ")
+    );
+}
+
+fn render_measured(out: &mut String, measured: &Measured) {
+    let unit = if measured.unit == "Hz" { Unit::Hertz } else { Unit::Volt };
+    let show = |v: Option<f64>| v.map_or_else(|| "-".to_string(), |v| format_quantity(v, unit));
+    let result = match measured.outcome {
+        SearchOutcome::Bracketed { passing, failing } => format!(
+            "{} (passes at {}, fails at {})",
+            format_quantity(passing, unit),
+            format_quantity(passing, unit),
+            format_quantity(failing, unit)
+        ),
+        SearchOutcome::FailsAtBestBound => "fails even at the most favourable bound".to_string(),
+        SearchOutcome::PassesAtWorstBound => "beyond the search (passes at its far bound)".to_string(),
+    };
+    let _ = writeln!(
+        out,
+        "{}: estimate {}, measured {}",
+        capitalise(&measured.quantity),
+        show(measured.estimate),
+        result
+    );
+    let _ = writeln!(
+        out,
+        "  searched {} to {}, resolution {}, {} runs of {} consecutive edges; {}",
+        format_quantity(measured.search_low, unit),
+        format_quantity(measured.search_high, unit),
+        measured.resolution_text,
+        measured.runs,
+        measured.edges_per_run,
+        measured.conditions
+    );
+}
+
+fn capitalise(text: &str) -> String {
+    let mut chars = text.chars();
+    chars.next().map(|c| c.to_uppercase().chain(chars).collect()).unwrap_or_default()
+}
