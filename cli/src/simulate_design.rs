@@ -126,6 +126,7 @@ pub fn simulate_design_file(
         }
         let built = verify::stage_circuit(&design, &verification.pulse, &corner)
             .map_err(|e| verify_failure(e.into()))?;
+        render_timings(&mut out, &verification);
         for measured in verification.sensitivity.iter().chain(verification.max_rate.iter()) {
             render_measured(&mut out, measured);
         }
@@ -285,4 +286,41 @@ fn render_measured(out: &mut String, measured: &Measured) {
 fn capitalise(text: &str) -> String {
     let mut chars = text.chars();
     chars.next().map(|c| c.to_uppercase().chain(chars).collect()).unwrap_or_default()
+}
+
+fn render_timings(out: &mut String, verification: &verify::StageVerification) {
+    let Some(t) = verification.timings else {
+        let _ = writeln!(out, "Switching times: not measurable on this run.");
+        return;
+    };
+    let time = |v: Option<f64>| v.map_or_else(|| "-".to_string(), |v| format_quantity(v, Unit::Second));
+    let _ =
+        writeln!(out, "Switching times measured on the first two edges (estimate beside, charge control):");
+    let _ = writeln!(out, "  input edge to output half swing  {:>10}", time(t.toggle_delay_s));
+    let _ = writeln!(
+        out,
+        "  storage (edge to 10 % of rise)   {:>10}   estimate {} (storage alone)",
+        time(t.storage_s),
+        time(Some(verification.estimated_storage_s))
+    );
+    let _ = writeln!(
+        out,
+        "  collector fall 90-10 %           {:>10}   estimate {} (current rise at turn-on)",
+        time(t.collector_fall_s),
+        time(verification.estimated_current_rise_s)
+    );
+    let _ = writeln!(
+        out,
+        "  collector rise 10-90 %           {:>10}   estimate {} (current fall at turn-off; RC and C1 add to it)",
+        time(t.collector_rise_s),
+        time(Some(verification.estimated_current_fall_s))
+    );
+    if let (Some(period), Some(duty)) = (t.output_period_s, t.output_duty) {
+        let _ = writeln!(
+            out,
+            "  output period {} (two input periods expected), duty cycle {:.1} %",
+            format_quantity(period, Unit::Second),
+            100.0 * duty
+        );
+    }
 }

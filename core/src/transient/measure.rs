@@ -131,6 +131,53 @@ pub fn fall_time_90_10(
     Ok(t10 - t90)
 }
 
+/// Mean period and duty cycle of a two-state waveform after `after_s`, with hysteresis: the
+/// state goes high above `high` and low below `low`, and each change is timed at the last
+/// crossing of the middle, (low + high)/2, before it, so spikes that do not complete a change
+/// are ignored. The period is the mean spacing of successive rising changes, the duty cycle
+/// the mean share of those periods spent high (the pulse-period and duty-factor definitions
+/// of IEEE Std 181, from memory). Needs at least two rising changes.
+pub fn period_and_duty(
+    times: &[f64],
+    values: &[f64],
+    low: f64,
+    high: f64,
+    after_s: f64,
+) -> Result<(f64, f64), MeasureError> {
+    check_lengths(times, values)?;
+    let middle = 0.5 * (low + high);
+    let mut state_high = values.first().is_some_and(|&v| v > middle);
+    let mut last_middle = times.first().copied().unwrap_or(0.0);
+    let mut rising = Vec::new();
+    let mut falling = Vec::new();
+    for (t, v) in times.windows(2).zip(values.windows(2)) {
+        if (v[0] < middle) != (v[1] < middle) {
+            last_middle = t[0] + (middle - v[0]) / (v[1] - v[0]) * (t[1] - t[0]);
+        }
+        if !state_high && v[1] > high {
+            state_high = true;
+            rising.push(last_middle);
+        } else if state_high && v[1] < low {
+            state_high = false;
+            falling.push(last_middle);
+        }
+    }
+    rising.retain(|&t| t >= after_s);
+    let (Some(&first), Some(&last)) = (rising.first(), rising.last()) else {
+        return Err(MeasureError::NotFound { what: "rising change of state".to_string() });
+    };
+    if rising.len() < 2 {
+        return Err(MeasureError::NotFound { what: "second rising change (a full period)".to_string() });
+    }
+    let mut high_time = 0.0;
+    for pair in rising.windows(2) {
+        let fall = falling.iter().copied().find(|&t| t > pair[0] && t <= pair[1]).unwrap_or(pair[1]);
+        high_time += fall - pair[0];
+    }
+    let span = last - first;
+    Ok((span / (rising.len() - 1) as f64, high_time / span))
+}
+
 /// Number of changes of logic state with hysteresis: the state goes high above `high` and low
 /// below `low`, so noise between the two is not counted. The starting state is not a toggle.
 pub fn toggle_count(values: &[f64], low: f64, high: f64) -> usize {
@@ -252,6 +299,32 @@ pub fn summarise(times: &[f64], values: &[f64], flat_below: f64) -> Result<Wavef
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn period_and_duty_of_a_sampled_pulse_train() {
+        // A 30 % duty pulse train of period 10 with unit ramps: each pulse rises 0 → 1 over
+        // [10k, 10k+1], holds to 10k+3, falls by 10k+4. At threshold 0.5 the pulse is above
+        // from 10k+0.5 to 10k+3.5: 3 of every 10 (closed form).
+        let mut t = Vec::new();
+        let mut v = Vec::new();
+        for k in 0..5 {
+            let base = 10.0 * k as f64;
+            for (dt, value) in [(0.0, 0.0), (1.0, 1.0), (3.0, 1.0), (4.0, 0.0)] {
+                t.push(base + dt);
+                v.push(value);
+            }
+        }
+        let (period, duty) = period_and_duty(&t, &v, 0.1, 0.9, 0.0).unwrap_or((f64::NAN, f64::NAN));
+        assert!((period - 10.0).abs() < 1e-12 && (duty - 0.3).abs() < 1e-12, "{period} {duty}");
+        assert!(period_and_duty(&t[..4], &v[..4], 0.1, 0.9, 0.0).is_err(), "one pulse is no period");
+        // A spike from the high state to just below the middle and back is no change of state.
+        let mut spiky_t = t.clone();
+        let mut spiky_v = v.clone();
+        spiky_t.insert(2, 2.0);
+        spiky_v.insert(2, 0.3);
+        let again = period_and_duty(&spiky_t, &spiky_v, 0.1, 0.9, 0.0).unwrap_or((f64::NAN, f64::NAN));
+        assert!((again.0 - 10.0).abs() < 1e-12, "{again:?}");
+    }
 
     #[test]
     fn crossings_interpolate_linearly() {

@@ -4,17 +4,20 @@
 //!
 //! - [`build`]: design → circuit (input pulse, corner, stage and chain builders);
 //! - [`count`]: a run over K input edges and the count read after each;
-//! - [`search`]: bisection on amplitude and rate.
+//! - [`search`]: bisection on amplitude and rate;
+//! - [`timing`]: switching times measured on a run.
 
 pub mod build;
 pub mod count;
 pub mod search;
+pub mod timing;
 
 use serde::{Deserialize, Serialize};
 
 pub use build::{chain_circuit, stage_circuit, BuildError, BuiltCircuit, InputPulse, SimulationCorner};
 pub use count::{run_and_check, CountCheck, RunAccuracy, RunError};
 pub use search::{measure_max_rate, measure_sensitivity, Measured, SearchOutcome, SearchSettings};
+pub use timing::{measure_timings, MeasuredTimings};
 
 use crate::stage::analysis::analyse;
 use crate::stage::StageDesign;
@@ -58,6 +61,15 @@ pub struct StageVerification {
     pub corner: SimulationCorner,
     /// The nominal run: the stage toggles on every edge at the design rate.
     pub nominal: CountCheck,
+    /// Switching times measured on the nominal run.
+    pub timings: Option<MeasuredTimings>,
+    /// The charge-control estimates to compare them with, s: storage time; collector
+    /// *current* rise at turn-on (seen as the collector voltage's fall; None when the drive
+    /// cannot saturate) and current fall at turn-off (the start of the collector voltage's
+    /// rise, which the collector resistor and C1 then slow further).
+    pub estimated_storage_s: f64,
+    pub estimated_current_rise_s: Option<f64>,
+    pub estimated_current_fall_s: f64,
     pub sensitivity: Option<Measured>,
     pub max_rate: Option<Measured>,
     pub assumptions: Vec<String>,
@@ -132,6 +144,7 @@ pub fn verify_stage(
     }
     let built = stage_circuit(design, &pulse, &options.corner)?;
     let (nominal, waveforms) = run_and_check(&built, options.nominal_edges, &options.search.accuracy)?;
+    let timings = measure_timings(&built, &waveforms, 0);
     let (sensitivity, max_rate) = if options.measure {
         let sensitivity = measure_sensitivity(
             design,
@@ -158,6 +171,10 @@ pub fn verify_stage(
             pulse,
             corner: options.corner,
             nominal,
+            timings,
+            estimated_storage_s: switching.storage_s,
+            estimated_current_rise_s: switching.rise_s,
+            estimated_current_fall_s: switching.fall_s,
             sensitivity,
             max_rate,
             assumptions: built.assumptions,

@@ -40,6 +40,12 @@ fn demo_stage_toggles_on_every_edge() {
     let high = c1.iter().copied().fold(f64::MIN, f64::max);
     let low = c1.iter().copied().fold(f64::MAX, f64::min);
     assert!(high > 9.0 - 1.0 && low < 0.5, "c1 between {low} and {high}");
+    // A toggle stage divides by two: its output period is two input periods (common
+    // practice), here to 0.5 %.
+    let timings = flipwright::verify::measure_timings(&built, &result, 0).expect("measurable");
+    let period = timings.output_period_s.expect("a full output period");
+    assert!((period * 100e3 / 2.0 - 1.0).abs() < 5e-3, "output period {period} s");
+    assert!(timings.storage_s.expect("storage seen") > 0.0);
 }
 
 #[test]
