@@ -375,14 +375,16 @@ fn invalid_circuit_files_exit_3_and_name_the_field() {
     // A newer version, another format, and a design file are refused by name.
     let mut newer = rc_circuit();
     newer["version"] = serde_json::json!(2);
-    let design = demo_file(&scratch);
+    // A design file without component values cannot be simulated until `design` chose them.
+    let design = scratch.path("requirements-only.json");
+    std::fs::write(&design, DesignFile::demo().to_json()).expect("write design");
     for (path, expected) in [
         (write_json(&scratch, "newer.json", &newer), "version 2 is newer"),
         (
             write_json(&scratch, "other.json", &serde_json::json!({"format": "spreadsheet"})),
             "\"spreadsheet\"",
         ),
-        (design, "simulating a design file is not available yet"),
+        (design, "flipwright design"),
     ] {
         let output = run(&["simulate", path.to_str().expect("utf-8")], &scratch.0);
         check_exit(&output, 3, expected);
