@@ -191,3 +191,21 @@ fn germanium_pnp_stage_toggles_on_every_edge() {
     let (check, _) = run_and_check(&built, 8, &RunAccuracy::default()).expect("runs");
     assert!(check.correct, "toggles on every edge: {:?}", check.observed);
 }
+
+#[test]
+fn collector_steered_stage_toggles_on_every_edge() {
+    // The demo's values with one common trigger capacitor steered to the collectors
+    // (100 pF: the collector route needs more charge, as the estimate says).
+    let design = demo_design();
+    let mut values = *design.values();
+    values.trigger = Some(flipwright::stage::TriggerNetwork {
+        steering: flipwright::stage::Steering::Collector,
+        trigger_capacitor_f: 100e-12,
+        trigger_resistor_ohm: 6.2e3,
+    });
+    let collector_steered = design.with_values(values).expect("valid");
+    let built =
+        stage_circuit(&collector_steered, &demo_pulse(), &SimulationCorner::nominal()).expect("builds");
+    let (check, _) = run_and_check(&built, 8, &RunAccuracy::default()).expect("runs");
+    assert!(check.correct, "toggles on every edge: {:?}", check.observed);
+}
