@@ -9,10 +9,14 @@
 //! bit. The chain's output is the last stage's Q; it falls once per N input pulses (the
 //! carry). Everything is in the NPN frame, like the stage module.
 
+pub mod loads;
+pub mod reset;
 pub mod sequence;
+pub mod timing;
 
 use serde::{Deserialize, Serialize};
 
+use self::reset::ResetNetwork;
 pub use self::sequence::{
     CorrectionKind, CountStep, GlitchKind, GlitchWindow, OutputCycle, SequenceCheck, StageActivity, StartUp,
 };
@@ -70,6 +74,25 @@ impl std::fmt::Display for ChainError {
 }
 
 impl std::error::Error for ChainError {}
+
+/// Returns a typed error unless `value` is finite and within `[low, high]`.
+pub(crate) fn check_range(
+    field: &str,
+    value: f64,
+    low: f64,
+    high: f64,
+    what: &str,
+) -> Result<(), ChainError> {
+    if value.is_finite() && value >= low && value <= high {
+        Ok(())
+    } else {
+        Err(ChainError::InvalidInput {
+            field: field.to_string(),
+            value,
+            expected: format!("{what} between {low} and {high}"),
+        })
+    }
+}
 
 /// Number of binary stages that divide by `modulus`: ⌈log2 N⌉.
 pub fn stage_count(modulus: u32) -> Result<u32, ChainError> {
@@ -194,13 +217,18 @@ pub struct ChainPlan {
     pub stage_count: u32,
     /// Plain binary alone for a power of two; otherwise reset on count and skip feedback.
     pub methods: Vec<MethodPlan>,
-    /// From the plans alone.
+    /// From the plans alone; [`ChainPlan::recommend_with_reset`] adds the reset race.
     pub recommendation: Recommendation,
 }
 
 impl ChainPlan {
     pub fn method(&self, kind: MethodKind) -> Option<&MethodPlan> {
         self.methods.iter().find(|m| m.method.kind() == kind)
+    }
+
+    /// The recommendation once the reset network (and so its race margin) is known.
+    pub fn recommend_with_reset(&self, reset: &ResetNetwork) -> Recommendation {
+        recommend(&self.methods, self.request.natural_binary_code, Some(reset))
     }
 }
 
@@ -215,11 +243,15 @@ pub fn plan_chain(request: &ChainRequest) -> Result<ChainPlan, ChainError> {
             sequence::plan_method(request.modulus, stage_count, MethodKind::SkipFeedback),
         ]
     };
-    let recommendation = recommend(&methods, request.natural_binary_code);
+    let recommendation = recommend(&methods, request.natural_binary_code, None);
     Ok(ChainPlan { request: *request, modulus: request.modulus, stage_count, methods, recommendation })
 }
 
-fn recommend(methods: &[MethodPlan], natural_binary_code: bool) -> Recommendation {
+fn recommend(
+    methods: &[MethodPlan],
+    natural_binary_code: bool,
+    reset: Option<&ResetNetwork>,
+) -> Recommendation {
     let find = |kind: MethodKind| methods.iter().find(|m| m.method.kind() == kind);
     let (Some(reset_plan), Some(feedback_plan)) =
         (find(MethodKind::ResetOnCount), find(MethodKind::SkipFeedback))
@@ -242,9 +274,24 @@ fn recommend(methods: &[MethodPlan], natural_binary_code: bool) -> Recommendatio
         reset_plan.parts.total()
     );
     let transient = "feedback shows its transient state (2^(n−1)) for one stage delay; the reset shows N on the outputs for the whole reset pulse".to_string();
+    if let Some(network) = reset.filter(|r| !r.passes) {
+        let mut reasons = vec!["the reset network fails its checks (feedback has none of them):".to_string()];
+        reasons.extend(network.problems.iter().cloned());
+        if natural_binary_code {
+            reasons.push("natural binary outputs were asked for, which only the reset gives: fix the reset, or decode the feedback sequence instead".to_string());
+        }
+        reasons.extend([parts, duty]);
+        return Recommendation { method: MethodKind::SkipFeedback, reasons };
+    }
     if natural_binary_code {
-        let race =
-            "its race margin is not yet known: design the reset network with the stages' timing".to_string();
+        let race = match reset {
+            Some(network) => format!(
+                "the reset wins its race with {:.3e} s to spare",
+                network.race.available_hold_s - network.race.required_hold_s
+            ),
+            None => "its race margin is not yet known: design the reset network with the stages' timing"
+                .to_string(),
+        };
         return Recommendation {
             method: MethodKind::ResetOnCount,
             reasons: vec![
@@ -255,13 +302,19 @@ fn recommend(methods: &[MethodPlan], natural_binary_code: bool) -> Recommendatio
             ],
         };
     }
-    let reasons = vec![
+    let mut reasons = vec![
         "feedback has no race to win: the preset follows the completed ripple and needs no pulse stretching"
             .to_string(),
         parts,
         transient,
         duty,
     ];
+    if let Some(network) = reset {
+        reasons.push(format!(
+            "the reset would also work (race margin {:.3e} s) if natural binary outputs are wanted",
+            network.race.available_hold_s - network.race.required_hold_s
+        ));
+    }
     Recommendation { method: MethodKind::SkipFeedback, reasons }
 }
 
