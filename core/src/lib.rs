@@ -4,6 +4,7 @@
 //! clock. Quantities are `f64` in SI base units (volts, amperes, ohms, farads, seconds);
 //! temperatures are degrees Celsius in fields named `*_c`.
 
+pub mod chain;
 pub mod design_file;
 pub mod device;
 pub mod numeric;

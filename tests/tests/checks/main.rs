@@ -2,6 +2,7 @@
 //!
 //! One test binary; each module holds the checks for one area and names its sources.
 
+mod chain;
 mod charge_control;
 mod design_file;
 mod ebers_moll;
