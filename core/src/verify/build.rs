@@ -176,8 +176,8 @@ impl std::error::Error for BuildError {}
 /// Node names of one simulated stage.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct StageNodes {
-    /// Collectors of Q1 and Q2. The stage's output (its count bit) is Q1's collector: high
-    /// means Q1 is OFF, the bit is 1.
+    /// Collectors of Q1 and Q2. The stage's output Q (its count bit) is Q2's collector: high
+    /// means Q2 is OFF, the bit is 1 (the chain planner's convention, `crate::chain`).
     pub collectors: [String; 2],
     pub bases: [String; 2],
     /// Node the stage's trigger network is driven from.
@@ -188,7 +188,7 @@ pub struct StageNodes {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BuiltCircuit {
     pub circuit: Circuit,
-    /// Every stage starts with Q1 ON (bit 0).
+    /// Every stage starts with Q2 ON (Q low, bit 0).
     pub hints: OperatingPointHints,
     pub stages: Vec<StageNodes>,
     /// The input pulse source's name and node.
@@ -385,8 +385,8 @@ fn add_stage(
             }
         }
     }
-    // Q1 ON: its collector near ground, its base one junction up; Q2's collector high, its
-    // base held below its emitter.
+    // Q2 ON (bit 0): its collector near ground, its base one junction up; Q1's collector
+    // high, its base held below its emitter.
     let vcc = shared.collector_supply_v;
     let emitter_v = match values.bias {
         BiasScheme::Fixed => 0.0,
@@ -395,10 +395,10 @@ fn add_stage(
             vcc * re / (re + values.collector_resistor_ohm)
         }
     };
-    hints.push((collectors[0].clone(), emitter_v + 0.1));
-    hints.push((collectors[1].clone(), 0.9 * vcc));
-    hints.push((bases[0].clone(), emitter_v + 0.7));
-    hints.push((bases[1].clone(), emitter_v - 0.3));
+    hints.push((collectors[1].clone(), emitter_v + 0.1));
+    hints.push((collectors[0].clone(), 0.9 * vcc));
+    hints.push((bases[1].clone(), emitter_v + 0.7));
+    hints.push((bases[0].clone(), emitter_v - 0.3));
     if values.bias == BiasScheme::SelfBias {
         hints.push((emitter, emitter_v));
     }
@@ -406,8 +406,8 @@ fn add_stage(
 }
 
 /// Builds `stages` identical stages in a ripple chain (stages = 1: the stage alone), the
-/// first driven by `pulse`, each later one from the previous stage's output (Q1's collector:
-/// its falling edge, bit 1 → 0, is the carry). The design's loads are put on every stage.
+/// first driven by `pulse`, each later one from the previous stage's output Q (Q2's
+/// collector: its falling edge, bit 1 → 0, is the carry). The design's loads are put on every stage.
 pub fn chain_circuit(
     design: &StageDesign,
     stages: usize,
@@ -454,7 +454,7 @@ pub fn chain_circuit(
     let mut nodes: Vec<StageNodes> = Vec::new();
     for index in 0..stages {
         let prefix = if stages == 1 { String::new() } else { format!("s{}.", index + 1) };
-        let input = nodes.last().map(|n| n.collectors[0].clone()).unwrap_or_else(|| "in".to_string());
+        let input = nodes.last().map(|n| n.collectors[1].clone()).unwrap_or_else(|| "in".to_string());
         let stage = add_stage(&mut builder, &mut hints, design, &shared, &prefix, &input);
         nodes.push(stage);
     }

@@ -108,9 +108,10 @@ pub fn count_at(built: &BuiltCircuit, result: &TransientResult, time_s: f64) -> 
     for (bit, stage) in built.stages.iter().enumerate() {
         let c1 = value_at(&result.time_s, result.voltage(&stage.collectors[0])?, time_s)?;
         let c2 = value_at(&result.time_s, result.voltage(&stage.collectors[1])?, time_s)?;
-        if c1 - c2 > decided {
+        // Q is Q2's collector: high means bit 1.
+        if c2 - c1 > decided {
             count |= 1 << bit;
-        } else if c2 - c1 <= decided {
+        } else if c1 - c2 <= decided {
             return None;
         }
     }

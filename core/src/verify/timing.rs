@@ -10,20 +10,21 @@ use crate::transient::measure::{
 };
 use crate::transient::TransientResult;
 
-/// Times measured on the first two edges of a stage's run (edge 0 turns Q1 off, edge 1 turns
-/// it back on); `None` where the waveform does not show the event.
+/// Times measured on the first two edges of a stage's run on its output Q, Q2's collector
+/// (edge 0 turns Q2 off, edge 1 turns it back on); `None` where the waveform does not show
+/// the event.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct MeasuredTimings {
-    /// Q1's collector levels (low, high) by the histogram method, V (NPN frame).
+    /// Q's levels (low, high) by the histogram method, V (NPN frame).
     pub output_levels_v: (f64, f64),
-    /// Input edge at half amplitude to Q1's collector at half swing, rising, s.
+    /// Input edge at half amplitude to Q at half swing, rising, s.
     pub toggle_delay_s: Option<f64>,
     /// Input edge at half amplitude to the 10 % point of the ON collector's rise: the time
     /// the stored charge holds the transistor saturated, with the turn-off delay, s.
     pub storage_s: Option<f64>,
-    /// 10–90 % rise of Q1's collector as Q1 turns off, s.
+    /// 10–90 % rise of Q as Q2 turns off, s.
     pub collector_rise_s: Option<f64>,
-    /// 90–10 % fall of Q1's collector as Q1 turns on again, s.
+    /// 90–10 % fall of Q as Q2 turns on again, s.
     pub collector_fall_s: Option<f64>,
     /// Output period and duty cycle over the whole run after the first edge.
     pub output_period_s: Option<f64>,
@@ -38,9 +39,9 @@ pub fn measure_timings(
 ) -> Option<MeasuredTimings> {
     let nodes = built.stages.get(stage)?;
     let times = &result.time_s;
-    let c1 = result.voltage(&nodes.collectors[0])?;
+    let q = result.voltage(&nodes.collectors[1])?;
     let input = result.voltage(&nodes.input)?;
-    let (low, high) = state_levels(times, c1).ok()?;
+    let (low, high) = state_levels(times, q).ok()?;
     let span = high - low;
     let first_edge = built.pulse.first_edge_s() - 0.5 * built.pulse.effective_edge_s();
     let second_edge = built.pulse.edge_time_s(1) - 0.5 * built.pulse.effective_edge_s();
@@ -48,13 +49,13 @@ pub fn measure_timings(
     let (in_low, in_high) = state_levels(times, input).ok()?;
     let in_middle = 0.5 * (in_low + in_high);
     let toggle_delay_s =
-        delay(times, input, in_middle, Edge::Falling, c1, low + 0.5 * span, Edge::Rising, first_edge).ok();
+        delay(times, input, in_middle, Edge::Falling, q, low + 0.5 * span, Edge::Rising, first_edge).ok();
     let storage_s =
-        delay(times, input, in_middle, Edge::Falling, c1, low + 0.1 * span, Edge::Rising, first_edge).ok();
-    let collector_rise_s = rise_time_10_90(times, c1, low, high, first_edge).ok();
-    let collector_fall_s = fall_time_90_10(times, c1, low, high, second_edge).ok();
+        delay(times, input, in_middle, Edge::Falling, q, low + 0.1 * span, Edge::Rising, first_edge).ok();
+    let collector_rise_s = rise_time_10_90(times, q, low, high, first_edge).ok();
+    let collector_fall_s = fall_time_90_10(times, q, low, high, second_edge).ok();
     let (output_period_s, output_duty) =
-        match period_and_duty(times, c1, low + 0.1 * span, low + 0.9 * span, first_edge) {
+        match period_and_duty(times, q, low + 0.1 * span, low + 0.9 * span, first_edge) {
             Ok((period, duty)) => (Some(period), Some(duty)),
             Err(_) => (None, None),
         };

@@ -30,7 +30,7 @@ fn demo_pulse() -> InputPulse {
 fn demo_stage_toggles_on_every_edge() {
     let built = stage_circuit(demo_design(), &demo_pulse(), &SimulationCorner::nominal()).expect("builds");
     let (check, result) = run_and_check(&built, 16, &RunAccuracy::default()).expect("runs");
-    assert_eq!(check.initial, Some(0), "Q1 starts ON as hinted");
+    assert_eq!(check.initial, Some(0), "Q2 starts ON as hinted");
     assert!(check.correct, "toggles on every edge: {:?}", check.observed);
     let expected: Vec<Option<u64>> = (1..=16).map(|k| Some(k % 2)).collect();
     assert_eq!(check.observed, expected);
@@ -60,7 +60,7 @@ fn four_stage_chain_divides_by_16() {
     // The last stage's output completes exactly two cycles in 32 input edges: four
     // transitions of its collector across the middle of the supply.
     let last = built.stages.last().expect("four stages");
-    let c1 = result.voltage(&last.collectors[0]).expect("recorded");
+    let c1 = result.voltage(&last.collectors[1]).expect("recorded");
     let transitions = flipwright::transient::measure::toggle_count(
         c1,
         0.3 * built.collector_supply_v,
