@@ -414,6 +414,25 @@ pub fn chain_circuit(
     pulse: &InputPulse,
     corner: &SimulationCorner,
 ) -> Result<BuiltCircuit, BuildError> {
+    chain_circuit_with_feedback(design, stages, &[], pulse, corner)
+}
+
+/// A ripple chain with the skip-feedback connection of `crate::chain` (method "feedback that
+/// skips states"): the last stage's complement output (Q1's collector, falling as Q goes
+/// 0 → 1) drives, through one capacitor (the stage's Ct value) per receiving stage, a diode
+/// to that stage's Q2 base, returned to ground by a resistor (the stage's Rt value), so the
+/// edge pulls the base down and turns Q2 off (sets Q = 1) whatever state the stage is in or
+/// passing through. Returning the resistor to the stage's own collector, as a toggle input
+/// does, fails here: the receiving stages have just been cleared by the same ripple, and the
+/// diode's bias has not yet followed their collectors down (seen in simulation).
+/// `receiving` lists stage indices (0 = first) as the plan gives them.
+pub fn chain_circuit_with_feedback(
+    design: &StageDesign,
+    stages: usize,
+    receiving: &[u32],
+    pulse: &InputPulse,
+    corner: &SimulationCorner,
+) -> Result<BuiltCircuit, BuildError> {
     if stages == 0 || stages > MAX_CHAIN_STAGES {
         return Err(BuildError::StageCount { requested: stages });
     }
@@ -457,6 +476,26 @@ pub fn chain_circuit(
         let input = nodes.last().map(|n| n.collectors[1].clone()).unwrap_or_else(|| "in".to_string());
         let stage = add_stage(&mut builder, &mut hints, design, &shared, &prefix, &input);
         nodes.push(stage);
+    }
+    if let (Some(trigger), Some(last)) = (design.values().trigger, nodes.last()) {
+        let source = last.collectors[0].clone();
+        for &stage in receiving {
+            let Some(target) = nodes.get(stage as usize) else {
+                return Err(BuildError::StageCount { requested: stage as usize + 1 });
+            };
+            let base = target.bases[1].clone();
+            let steering = format!("f{}", stage + 1);
+            let c = corner.capacitor_factor;
+            let r = corner.resistor_factor;
+            builder.capacitor(
+                format!("CF{}", stage + 1),
+                &source,
+                &steering,
+                trigger.trigger_capacitor_f * c,
+            );
+            builder.resistor(format!("RF{}", stage + 1), &steering, "0", trigger.trigger_resistor_ohm * r);
+            builder.diode(format!("DF{}", stage + 1), &base, &steering, shared.diode);
+        }
     }
     let assumptions = vec![
         "transistor: Ebers–Moll model derived from the datasheet (see the analysis report), NPN frame".to_string(),

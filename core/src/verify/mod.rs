@@ -82,6 +82,8 @@ pub enum VerifyError {
     Run(RunError),
     /// Occurs when the analysis that provides the estimates fails.
     Analysis(String),
+    /// Occurs when a chain method has no simulated circuit yet (reset on count).
+    NotSimulated,
 }
 
 impl std::fmt::Display for VerifyError {
@@ -90,6 +92,10 @@ impl std::fmt::Display for VerifyError {
             VerifyError::Build(error) => write!(f, "{error}"),
             VerifyError::Run(error) => write!(f, "{error}"),
             VerifyError::Analysis(reason) => write!(f, "the analysis behind the estimates failed: {reason}"),
+            VerifyError::NotSimulated => write!(
+                f,
+                "the reset-on-count chain is not simulated yet: verify the skip-feedback plan, or a power of two"
+            ),
         }
     }
 }
@@ -209,4 +215,33 @@ pub fn in_real_polarity(mut result: TransientResult, sign: f64) -> TransientResu
         }
     }
     result
+}
+
+/// Verifies a planned chain for any N by simulation: plain binary or skip feedback are
+/// built (the reset method is not simulated yet), run for `edges` input edges, and the count
+/// after each compared with the plan's settled count sequence.
+pub fn verify_planned_chain(
+    design: &StageDesign,
+    plan: &crate::chain::MethodPlan,
+    stage_count: usize,
+    edges: usize,
+    pulse: &InputPulse,
+    corner: &SimulationCorner,
+    accuracy: &RunAccuracy,
+) -> Result<(CountCheck, TransientResult, BuiltCircuit), VerifyError> {
+    let receiving: Vec<u32> = match &plan.method {
+        crate::chain::Method::PlainBinary => Vec::new(),
+        crate::chain::Method::SkipFeedback { receiving_stages, .. } => receiving_stages.clone(),
+        crate::chain::Method::ResetOnCount { .. } => return Err(VerifyError::NotSimulated),
+    };
+    if edges == 0 || edges > count::MAX_EDGES {
+        return Err(VerifyError::Run(RunError::EdgeCount { requested: edges }));
+    }
+    let built = build::chain_circuit_with_feedback(design, stage_count, &receiving, pulse, corner)?;
+    let settings = count::run_settings(&built, edges, accuracy);
+    let result =
+        crate::transient::simulate(&built.circuit, &settings, &built.hints).map_err(RunError::from)?;
+    let cycle: Vec<u64> = plan.count_sequence.iter().map(|step| u64::from(step.settled_state)).collect();
+    let check = count::check_counts_against(&built, &result, edges, &cycle);
+    Ok((check, result, built))
 }

@@ -209,3 +209,41 @@ fn collector_steered_stage_toggles_on_every_edge() {
     let (check, _) = run_and_check(&built, 8, &RunAccuracy::default()).expect("runs");
     assert!(check.correct, "toggles on every edge: {:?}", check.observed);
 }
+
+/// Simulates the planner's skip-feedback chain for `modulus` over two output periods.
+fn simulate_feedback_chain(modulus: u32) -> flipwright::verify::CountCheck {
+    use flipwright::chain::{plan_chain, ChainRequest, MethodKind};
+    let plan = plan_chain(&ChainRequest { modulus, natural_binary_code: false }).expect("plans");
+    let kind = if modulus.is_power_of_two() { MethodKind::PlainBinary } else { MethodKind::SkipFeedback };
+    let method = plan.method(kind).expect("method planned");
+    let (check, _, _) = flipwright::verify::verify_planned_chain(
+        demo_design(),
+        method,
+        plan.stage_count as usize,
+        2 * modulus as usize,
+        &demo_pulse(),
+        &SimulationCorner::nominal(),
+        &RunAccuracy::default(),
+    )
+    .expect("simulates");
+    check
+}
+
+#[test]
+fn skip_feedback_decade_divides_by_ten_in_simulation() {
+    // The decade of four binaries with feedback presetting two stages (skipping six states)
+    // divides by ten (Millman & Taub, from memory; the planner's own sequence is checked
+    // exhaustively in chain.rs): the settled count returns to 0 after 10 and 20 edges.
+    let check = simulate_feedback_chain(10);
+    assert!(check.correct, "expected {:?}\nobserved {:?}", check.expected, check.observed);
+    assert_eq!(check.observed.get(9), Some(&Some(0)));
+    assert_eq!(check.observed.get(19), Some(&Some(0)));
+}
+
+#[test]
+fn skip_feedback_chains_divide_by_3_5_and_12_in_simulation() {
+    for modulus in [3, 5, 12] {
+        let check = simulate_feedback_chain(modulus);
+        assert!(check.correct, "N = {modulus}: expected {:?}\nobserved {:?}", check.expected, check.observed);
+    }
+}
