@@ -38,15 +38,18 @@ USAGE
                                       the run and each probe's min/max, toggles and edges;
                                       NAME is a node, a voltage source (its current), or
                                       voltage(NODE) / current(SOURCE)
-  flipwright simulate DESIGN [--stages N] [--edges K] [--temperature T] [--quick]
-                      [--csv OUT] [--probe NAME,...]
+  flipwright simulate DESIGN [--stages N | --divide N] [--edges K] [--temperature T]
+                      [--quick] [--csv OUT] [--probe NAME,...]
                                       verify the design in DESIGN by simulation: the stage
                                       (or a ripple chain of N stages) driven for K input
                                       edges (default 8, or two full output periods of a
                                       chain), the count checked after every edge; for one
                                       stage also the measured trigger sensitivity and
                                       maximum toggle rate beside the estimates (--quick
-                                      skips the searches). Exit 1 if any count is wrong.
+                                      skips the searches). --divide N (2 to 4096) builds
+                                      the planned chain for N (skip-state feedback when N
+                                      is not a power of two) and checks its count sequence
+                                      over two output periods. Exit 1 if any count is wrong.
   flipwright devices                  list the generic device archetypes
   flipwright series-tables            print the stored IEC 60063 E-series tables
   flipwright help                     this text

@@ -19,8 +19,11 @@ use crate::{input_error, parse_options, read, usage, write, Failure, EXIT_MARGIN
 
 /// Runs `simulate` with the arguments after the command name.
 pub fn run(args: &[String]) -> Result<u8, Failure> {
-    let options =
-        parse_options(args, &["csv", "probe", "stop", "stages", "edges", "temperature"], &["quick"])?;
+    let options = parse_options(
+        args,
+        &["csv", "probe", "stop", "stages", "divide", "edges", "temperature"],
+        &["quick"],
+    )?;
     let path = match options.positional.as_slice() {
         [file] => PathBuf::from(file),
         [] => return Err(usage("`simulate` needs a design file or a circuit file")),
@@ -40,6 +43,7 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
             }
             let design_request = DesignRequest::parse(
                 options.value("stages"),
+                options.value("divide"),
                 options.value("edges"),
                 options.value("temperature"),
                 options.has("quick"),

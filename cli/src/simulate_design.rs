@@ -6,6 +6,7 @@ use std::fmt::Write;
 use std::io::{IsTerminal, Write as _};
 use std::path::Path;
 
+use flipwright::chain::{plan_chain, ChainRequest, Method, MethodKind};
 use flipwright::stage::analysis::analyse;
 use flipwright::stage::StageDesign;
 use flipwright::transient::export::{parse_probe, to_csv};
@@ -21,6 +22,8 @@ use crate::{load_design, usage, write, Failure, EXIT_MARGINS_FAIL};
 /// Design-file options of `simulate`.
 pub struct DesignRequest {
     pub stages: usize,
+    /// `--divide N`: the planned chain for N (plain binary or skip feedback).
+    pub divide: Option<u32>,
     pub edges: Option<usize>,
     pub temperature_c: Option<f64>,
     pub measure: bool,
@@ -29,6 +32,7 @@ pub struct DesignRequest {
 impl DesignRequest {
     pub fn parse(
         stages: Option<&str>,
+        divide: Option<&str>,
         edges: Option<&str>,
         temperature: Option<&str>,
         quick: bool,
@@ -75,7 +79,18 @@ impl DesignRequest {
                     })?,
             ),
         };
-        Ok(DesignRequest { stages, edges, temperature_c, measure: !quick })
+        let divide = match divide {
+            None => None,
+            Some(text) => {
+                Some(text.parse::<u32>().ok().filter(|n| (2..=4096).contains(n)).ok_or_else(|| {
+                    usage(format!("--divide wants a division ratio from 2 to 4096, got \"{text}\""))
+                })?)
+            }
+        };
+        if divide.is_some() && stages != 1 {
+            return Err(usage("give --divide N or --stages N, not both (--divide sets the stages)"));
+        }
+        Ok(DesignRequest { stages, divide, edges, temperature_c, measure: !quick })
     }
 }
 
@@ -97,7 +112,8 @@ pub fn simulate_design_file(
         corner.temperature_c = t;
     }
     let mut out = String::new();
-    let (check, result, built) = if request.stages == 1 {
+    let mut what = String::from("one stage");
+    let (check, result, built) = if request.stages == 1 && request.divide.is_none() {
         let options = VerifyOptions {
             nominal_edges: request.edges.unwrap_or(8),
             corner,
@@ -140,18 +156,68 @@ pub fn simulate_design_file(
         let report = analyse(&design).map_err(|e| verify_failure(VerifyError::Analysis(e.to_string())))?;
         let amplitude_v = report.switching.available_trigger_amplitude_v;
         let pulse = design_pulse(&design, amplitude_v, SearchSettings::default().edge_s);
-        let edges = request.edges.unwrap_or(2usize << request.stages);
-        let (check, result, built) =
-            verify::verify_chain(&design, request.stages, edges, &pulse, &corner, &RunAccuracy::default())
-                .map_err(verify_failure)?;
-        (check, result, built)
+        let accuracy = RunAccuracy::default();
+        match request.divide {
+            None => {
+                let edges = request.edges.unwrap_or(2usize << request.stages);
+                what = format!(
+                    "a ripple chain of {} stages (divide by {})",
+                    request.stages,
+                    1u64 << request.stages
+                );
+                verify::verify_chain(&design, request.stages, edges, &pulse, &corner, &accuracy)
+                    .map_err(verify_failure)?
+            }
+            Some(modulus) => {
+                let plan = plan_chain(&ChainRequest { modulus, natural_binary_code: false })
+                    .map_err(|e| usage(format!("--divide: {e}")))?;
+                let kind = if modulus.is_power_of_two() {
+                    MethodKind::PlainBinary
+                } else {
+                    MethodKind::SkipFeedback
+                };
+                let method = plan.method(kind).ok_or_else(|| usage("--divide: no plan for that ratio"))?;
+                what = format!(
+                    "a chain of {} stages dividing by {modulus} ({})",
+                    plan.stage_count,
+                    match &method.method {
+                        Method::SkipFeedback { receiving_stages, skipped_states, .. } => format!(
+                            "the last stage presets stage(s) {} and skips {skipped_states} states",
+                            receiving_stages
+                                .iter()
+                                .map(|s| (s + 1).to_string())
+                                .collect::<Vec<_>>()
+                                .join(", ")
+                        ),
+                        _ => "plain binary".to_string(),
+                    }
+                );
+                if plan.recommendation.method == MethodKind::ResetOnCount {
+                    let _ = writeln!(
+                        out,
+                        "The planner recommends reset on reaching N, which is not simulated yet; this run checks the feedback plan."
+                    );
+                }
+                let edges = request.edges.unwrap_or(2 * modulus as usize);
+                verify::verify_planned_chain(
+                    &design,
+                    method,
+                    plan.stage_count as usize,
+                    edges,
+                    &pulse,
+                    &corner,
+                    &accuracy,
+                )
+                .map_err(verify_failure)?
+            }
+        }
     };
     let result = in_real_polarity(result, sign);
     let probes = choose_probes(&built, &result, probes)?;
     let table = to_csv(&result, &probes).map_err(|e| usage(e.to_string()))?;
     write(csv, &table)?;
     let mut head = String::new();
-    render_run(&mut head, &design, &built, &check, corner.temperature_c);
+    render_run(&mut head, &what, &design, &built, &check, corner.temperature_c);
     let _ = writeln!(
         head,
         "Wrote {} ({} time points, {} probe(s)).",
@@ -194,6 +260,7 @@ fn choose_probes(
 
 fn render_run(
     out: &mut String,
+    what: &str,
     design: &StageDesign,
     built: &BuiltCircuit,
     check: &CountCheck,
@@ -201,11 +268,6 @@ fn render_run(
 ) {
     let pulse = &built.pulse;
     let stats = check.statistics;
-    let what = if check.stages == 1 {
-        "one stage".to_string()
-    } else {
-        format!("a ripple chain of {} stages (divide by {})", check.stages, 1u64 << check.stages)
-    };
     let _ = writeln!(
         out,
         "Simulated {what} at {temperature_c:.1} °C: {} input edges of {} at {} ({} edges).",
