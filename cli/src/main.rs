@@ -1,6 +1,7 @@
 //! `flipwright`: the command-line front end — write the demo design, analyse a design file,
 //! synthesise values from requirements, print the component table, and simulate circuits.
 
+mod chain;
 mod report;
 mod simulate;
 mod simulate_design;
@@ -50,6 +51,12 @@ USAGE
                                       the planned chain for N (skip-state feedback when N
                                       is not a power of two) and checks its count sequence
                                       over two output periods. Exit 1 if any count is wrong.
+  flipwright chain N [DESIGN] [--json] [--natural-binary]
+                                      plan a divide-by-N chain (N from 2 to 65536): stages,
+                                      reset-on-count and skip-state feedback methods, count
+                                      sequence, duty cycle, start-up, glitch states, the
+                                      recommended method; with DESIGN also ripple timing,
+                                      per-stage toggle rates and the reset network's race
   flipwright devices                  list the generic device archetypes
   flipwright series-tables            print the stored IEC 60063 E-series tables
   flipwright help                     this text
@@ -257,6 +264,7 @@ fn run(args: &[String]) -> Result<u8, Failure> {
             Ok(0)
         }
         "simulate" => simulate::run(rest),
+        "chain" => chain::run(rest),
         "devices" => {
             print!("{}", report::devices());
             Ok(0)

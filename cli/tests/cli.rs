@@ -491,3 +491,26 @@ fn simulate_divide_by_ten_follows_the_feedback_decade() {
     let huge = run(&["simulate", design.to_str().expect("utf-8"), "--divide", "5000"], &scratch.0);
     check_exit(&huge, 2, "--divide beyond 4096");
 }
+
+#[test]
+fn chain_plans_a_decade_both_ways_and_recommends_one() {
+    let scratch = Scratch::new("chain-plan");
+    let design = demo_design_file(&scratch);
+    let output = run(&["chain", "10", design.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 0, "chain 10");
+    let text = stdout(&output);
+    // ⌈log2 10⌉ = 4 stages; the decade by reset is decoded at 1010 (Floyd, Digital
+    // Fundamentals, from memory) and the feedback decade jumps from 8 to 14.
+    assert!(text.contains("Divide by 10: 4 binary stages"), "{text}");
+    assert!(text.contains("reset from 10 (1010)"), "{text}");
+    assert!(text.contains("preset from 8 (1000)"), "{text}");
+    assert!(text.contains("Recommended:"), "{text}");
+    assert!(text.contains("f(max) = 1/(n·tpd)"), "{text}");
+    let json = run(&["chain", "12", "--json"], &scratch.0);
+    check_exit(&json, 0, "chain 12 --json");
+    let value: Value = serde_json::from_str(&stdout(&json)).expect("JSON");
+    assert_eq!(value["plan"]["stage_count"], 4);
+    for bad in ["1", "70000", "ten"] {
+        check_exit(&run(&["chain", bad], &scratch.0), 2, bad);
+    }
+}

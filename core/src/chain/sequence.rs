@@ -519,7 +519,7 @@ fn extra_parts(rule: &Rule) -> ExtraParts {
                 capacitors: receivers,
                 transistors: 0,
                 description: vec![format!(
-                    "{receivers} preset inputs (a capacitor, a steering diode and its bias resistor each, as one half of the stage's trigger network) fed from the last stage's complement output"
+                    "{receivers} preset inputs (a capacitor and a steering diode into the Q2 base, with a bias resistor to ground, each of the stage's Ct and Rt values) fed from the last stage's complement output"
                 )],
             }
         }
