@@ -242,9 +242,15 @@ pub fn build_page(test_hooks: bool) -> Result<PathBuf, String> {
     if glue.contains("</script") {
         return Err("the generated glue contains </script>; cannot inline it".to_string());
     }
+    // The worker's handler, also text/plain: the page puts glue and handler in one Blob.
+    let worker = www("worker.js")?;
+    if worker.contains("</script") {
+        return Err("www/worker.js contains </script>; cannot inline it".to_string());
+    }
     let page = template
         .replace("/*@STYLE@*/", &www("style.css")?)
         .replace("/*@GLUE@*/", &glue)
+        .replace("/*@WORKER@*/", &worker)
         .replace("/*@WASM@*/", &base64(&wasm_bytes))
         .replace("/*@APP@*/", &www("app.js")?);
     let out_dir = root().join("out");
