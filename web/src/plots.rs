@@ -59,24 +59,30 @@ fn pen_colour(pen: Pen) -> RGBColor {
 }
 
 /// Sizes in CSS pixels times the device-pixel ratio, so a HiDPI canvas draws at its full
-/// resolution with the same layout.
+/// resolution with the same layout. `font_scale` also corrects plotters' SVG backend, which
+/// writes every font 1.24 times smaller than asked.
 #[derive(Clone, Copy)]
 struct Metrics {
     scale: f64,
+    font_scale: f64,
 }
 
+/// plotters' SVG backend divides font sizes by this.
+const SVG_FONT_SHRINK: f64 = 1.24;
+
 impl Metrics {
-    fn new(scale: f64) -> Metrics {
-        Metrics { scale: if scale.is_finite() { scale.clamp(0.5, 4.0) } else { 1.0 } }
+    fn new(scale: f64, font_factor: f64) -> Metrics {
+        let scale = if scale.is_finite() { scale.clamp(0.5, 4.0) } else { 1.0 };
+        Metrics { scale, font_scale: scale * font_factor }
     }
     fn px(self, css: f64) -> i32 {
         (css * self.scale).round() as i32
     }
     fn font(self, css: f64) -> FontDesc<'static> {
-        FontDesc::new(FontFamily::SansSerif, css * self.scale, FontStyle::Normal)
+        FontDesc::new(FontFamily::SansSerif, css * self.font_scale, FontStyle::Normal)
     }
     fn bold(self, css: f64) -> FontDesc<'static> {
-        FontDesc::new(FontFamily::SansSerif, css * self.scale, FontStyle::Bold)
+        FontDesc::new(FontFamily::SansSerif, css * self.font_scale, FontStyle::Bold)
     }
     fn stroke(self, css: f64) -> u32 {
         (css * self.scale).round().max(1.0) as u32
@@ -112,8 +118,10 @@ fn extent<'a>(traces: impl Iterator<Item = &'a DecimatedTrace>) -> Option<(f64, 
 }
 
 /// The trace as a line through its envelope in `columns` columns: buckets are merged to one
-/// column per device pixel, and within a column the line runs from the end nearer the last
-/// column to the other, so a flat stretch stays one line and a fast edge fills its column.
+/// column per device pixel, and each column's line runs from its left edge at the end nearer
+/// the previous column to its right edge at the other end. A flat stretch stays one line, a
+/// fast edge fills its column, and an edge split between two columns stays one straight
+/// stroke instead of a jog at the column boundary.
 fn envelope(run: &DecimatedRun, trace: &DecimatedTrace, columns: usize, time_factor: f64) -> Vec<(f64, f64)> {
     let buckets = trace.min_v.len().min(trace.max_v.len());
     let columns = columns.clamp(1, buckets.max(1));
@@ -129,27 +137,28 @@ fn envelope(run: &DecimatedRun, trace: &DecimatedTrace, columns: usize, time_fac
         if !(low.is_finite() && high.is_finite()) {
             continue;
         }
-        let middle_s = run.start_s + ((column * per_column) as f64 + 0.5 * lows.len() as f64) * bucket_s;
-        let x = middle_s * time_factor;
+        let first_bucket = column * per_column;
+        let left_s = run.start_s + first_bucket as f64 * bucket_s;
+        let right_s = run.start_s + (first_bucket + lows.len()) as f64 * bucket_s;
         let rising = previous.is_none_or(|p| (p - low).abs() <= (p - high).abs());
         let (first, second) = if rising { (low, high) } else { (high, low) };
-        points.push((x, first));
-        if second != first {
-            points.push((x, second));
-        }
+        points.push((left_s * time_factor, first));
+        points.push((right_s * time_factor, second));
         previous = Some(second);
     }
     points
 }
 
-/// Tick labels with as few digits as the tick spacing needs.
-fn tick_label(value: f64, span: f64) -> String {
-    let digits = if span >= 20.0 {
+/// Tick labels with as few digits as a tick spacing of `step` needs.
+fn tick_label(value: f64, step: f64) -> String {
+    let digits = if step >= 1.0 {
         0
-    } else if span >= 2.0 {
+    } else if step >= 0.1 {
         1
-    } else {
+    } else if step >= 0.01 {
         2
+    } else {
+        3
     };
     let text = format!("{value:.digits$}");
     // "-0" and "-0.0" read as a sign error.
@@ -167,7 +176,14 @@ pub fn draw_waveforms<DB: DrawingBackend>(
     chart: &WaveformChart,
     scale: f64,
 ) -> Result<(), String> {
-    let m = Metrics::new(scale);
+    waveforms_on(root, chart, Metrics::new(scale, 1.0))
+}
+
+fn waveforms_on<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    chart: &WaveformChart,
+    m: Metrics,
+) -> Result<(), String> {
     root.fill(&WHITE).map_err(fail)?;
     let run = &chart.run;
     let (width, height) = root.dim_in_pixel();
@@ -195,8 +211,8 @@ pub fn draw_waveforms<DB: DrawingBackend>(
             .y_label_area_size(m.px(56.0))
             .build_cartesian_2d(x0..x1.max(x0 + f64::EPSILON), low..high)
             .map_err(fail)?;
-        let x_format = |v: &f64| tick_label(*v, x_span);
-        let y_format = |v: &f64| tick_label(*v, high - low);
+        let x_format = |v: &f64| tick_label(*v, x_span / 10.0);
+        let y_format = |v: &f64| tick_label(*v, (high - low) / 5.0);
         let mut mesh = plot.configure_mesh();
         mesh.x_labels(10)
             .y_labels(5)
@@ -249,7 +265,14 @@ pub fn draw_timing_diagram<DB: DrawingBackend>(
     diagram: &TimingDiagram,
     scale: f64,
 ) -> Result<(), String> {
-    let m = Metrics::new(scale);
+    timing_diagram_on(root, diagram, Metrics::new(scale, 1.0))
+}
+
+fn timing_diagram_on<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    diagram: &TimingDiagram,
+    m: Metrics,
+) -> Result<(), String> {
     root.fill(&WHITE).map_err(fail)?;
     let run = &diagram.run;
     let lanes = run.traces.len().max(1);
@@ -266,10 +289,12 @@ pub fn draw_timing_diagram<DB: DrawingBackend>(
         .y_label_area_size(m.px(128.0))
         .build_cartesian_2d(x0..x1.max(x0 + f64::EPSILON), 0.0..y_max)
         .map_err(fail)?;
-    let x_format = |v: &f64| tick_label(*v, x_span);
+    let x_format = |v: &f64| tick_label(*v, x_span / 10.0);
     plot.configure_mesh()
         .x_labels(10)
         .y_labels(0)
+        // The edge marks are the diagram's vertical grid.
+        .disable_x_mesh()
         .disable_y_mesh()
         .max_light_lines(0)
         .bold_line_style(GRID.stroke_width(m.stroke(1.0)))
@@ -281,16 +306,22 @@ pub fn draw_timing_diagram<DB: DrawingBackend>(
         .x_desc(format!("time ({unit})"))
         .draw()
         .map_err(fail)?;
-    // Active edges as thin vertical marks through every lane.
-    let edges = diagram.edge_times_s.iter().take(diagram.counts.len());
-    plot.draw_series(edges.map(|&t| {
-        PathElement::new(
-            vec![(t * factor, 0.0), (t * factor, lanes as f64)],
-            EDGE_MARK.stroke_width(m.stroke(1.0)),
-        )
-    }))
-    .map_err(fail)?;
     let (columns, _) = plot.plotting_area().dim_in_pixel();
+    let pixels_per_period = match diagram.edge_times_s.as_slice() {
+        [first, second, ..] => (second - first) * factor / x_span.max(f64::MIN_POSITIVE) * f64::from(columns),
+        _ => 0.0,
+    };
+    // Active edges as thin vertical marks through every lane, while they stay apart.
+    if pixels_per_period >= f64::from(m.px(6.0)) {
+        let edges = diagram.edge_times_s.iter().take(diagram.counts.len());
+        plot.draw_series(edges.map(|&t| {
+            PathElement::new(
+                vec![(t * factor, 0.0), (t * factor, lanes as f64)],
+                EDGE_MARK.stroke_width(m.stroke(1.0)),
+            )
+        }))
+        .map_err(fail)?;
+    }
     for (lane, trace) in run.traces.iter().enumerate() {
         let base = (lanes - 1 - lane) as f64 + 0.15;
         let (low, high) = extent(std::iter::once(trace)).unwrap_or((0.0, 1.0));
@@ -304,15 +335,11 @@ pub fn draw_timing_diagram<DB: DrawingBackend>(
         let (px, py) = plot.backend_coord(&(x0, base + 0.35));
         let name = m.font(11.5).color(&INK).pos(Pos::new(HPos::Right, VPos::Bottom));
         root.draw(&Text::new(trace.label.clone(), (px - m.px(8.0), py), name)).map_err(fail)?;
-        let levels = format!("{} … {} V", tick_label(low, 20.0 * swing), tick_label(high, 20.0 * swing));
+        let levels = format!("{} … {} V", tick_label(low, swing / 10.0), tick_label(high, swing / 10.0));
         let small = m.font(10.0).color(&MUTED).pos(Pos::new(HPos::Right, VPos::Top));
         root.draw(&Text::new(levels, (px - m.px(8.0), py + m.px(2.0)), small)).map_err(fail)?;
     }
     // Counts above the lanes, centred in the period each was read in, when they fit.
-    let pixels_per_period = match diagram.edge_times_s.as_slice() {
-        [first, second, ..] => (second - first) * factor / x_span.max(f64::MIN_POSITIVE) * f64::from(columns),
-        _ => 0.0,
-    };
     let widest = diagram.counts.iter().flatten().max().map_or(1, |c| c.to_string().len()) as f64;
     if pixels_per_period >= f64::from(m.px(7.0 * widest + 4.0)) {
         for (k, count) in diagram.counts.iter().enumerate() {
@@ -340,7 +367,7 @@ pub fn waveforms_svg(chart: &WaveformChart, width: u32, height: u32) -> Result<S
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (width, height)).into_drawing_area();
-        draw_waveforms(&root, chart, 1.0)?;
+        waveforms_on(&root, chart, Metrics::new(1.0, SVG_FONT_SHRINK))?;
     }
     Ok(svg)
 }
@@ -350,7 +377,7 @@ pub fn timing_diagram_svg(diagram: &TimingDiagram, width: u32, height: u32) -> R
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (width, height)).into_drawing_area();
-        draw_timing_diagram(&root, diagram, 1.0)?;
+        timing_diagram_on(&root, diagram, Metrics::new(1.0, SVG_FONT_SHRINK))?;
     }
     Ok(svg)
 }
@@ -419,8 +446,8 @@ mod tests {
 
     #[test]
     fn tick_labels_never_show_a_negative_zero() {
-        assert_eq!(tick_label(-0.0001, 5.0), "0.0");
-        assert_eq!(tick_label(-2.5, 5.0), "−2.5");
-        assert_eq!(tick_label(40.0, 90.0), "40");
+        assert_eq!(tick_label(-0.0001, 0.5), "0.0");
+        assert_eq!(tick_label(-2.5, 0.5), "−2.5");
+        assert_eq!(tick_label(40.0, 9.0), "40");
     }
 }
