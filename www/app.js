@@ -535,7 +535,7 @@ async function runJob(name, args, label, onProgress) {
     const outcome = await workerJob(name, args, onProgress);
     return { outcome, ms: performance.now() - started };
   } catch (error) {
-    if (error.cancelled) showStatus("Cancelled. Nothing above has changed.");
+    if (error.cancelled) showStatus("Cancelled; any results shown are from earlier runs.");
     else if (error.crashed) showStatus("The simulation engine failed: " + error.message + ". It was restarted; try again or change the design.", "error");
     else showStatus("The simulation could not run: " + error.message, "error");
     return null;
@@ -598,17 +598,25 @@ async function verifyChain() {
   renderChainRun();
 }
 
+/** The counts after each edge; a long run shows its first edges and its last eight. */
 function countsInto(el, check, limit) {
   el.textContent = "";
-  const shown = check.observed.length > limit ? check.observed.slice(0, limit) : check.observed;
-  shown.forEach((count, k) => {
+  const n = check.observed.length;
+  const tail = 8;
+  const shown = n > limit ? [...Array(limit - tail).keys(), null, ...Array.from({ length: tail }, (_, i) => n - tail + i)] : [...Array(n).keys()];
+  for (const k of shown) {
+    if (k === null) { el.append(`… (${n} edges in all) … `); continue; }
+    const count = check.observed[k];
     const span = document.createElement("span");
-    const right = count === check.expected[k];
     span.textContent = count == null ? "?" : String(count);
-    if (!right) { span.className = "wrong"; span.title = `expected ${check.expected[k]}`; }
+    if (count !== check.expected[k]) { span.className = "wrong"; span.title = `after edge ${k + 1}: expected ${check.expected[k]}`; }
     el.append(span, " ");
-  });
-  if (shown.length < check.observed.length) el.append(`… (${check.observed.length} edges in all)`);
+  }
+  // The first wrong count is always shown, even deep inside a long run.
+  const k = check.first_error;
+  if (k != null && n > limit && k >= limit - tail && k < n - tail) {
+    el.append(`first wrong count after edge ${k + 1}: ${check.observed[k] == null ? "?" : check.observed[k]} (expected ${check.expected[k]})`);
+  }
 }
 
 function checkVerdict(el, check, what) {
@@ -675,7 +683,7 @@ function renderStageRun() {
   }
   showAssumptions(view.assumptions);
   drawCharts();
-  $("stage-svg").innerHTML = printChart("waveform_chart_svg", view.chart, 680, 430);
+  $("stage-svg").innerHTML = printChart("waveform_chart_svg", view.chart, 600, 400);
   $("verify").classList.add("has-results");
   markStale();
 }
@@ -691,7 +699,7 @@ function renderChainRun() {
   $("chain-canvas").style.height = chainHeight(stages) + "px";
   showAssumptions(view.assumptions);
   drawCharts();
-  $("chain-svg").innerHTML = printChart("timing_diagram_svg", view.diagram, 680, chainHeight(stages));
+  $("chain-svg").innerHTML = printChart("timing_diagram_svg", view.diagram, 600, Math.round(0.85 * chainHeight(stages)));
   $("verify").classList.add("has-results");
   markStale();
 }
@@ -734,8 +742,10 @@ function printChart(exportName, data, width, height) {
 }
 
 function drawCharts() {
+  const started = performance.now();
   if (stageRun && !$("stage-result").hidden) drawOn($("stage-canvas"), "draw_waveform_chart", stageRun.view.chart);
   if (chainRun && !$("chain-result").hidden) drawOn($("chain-canvas"), "draw_timing_diagram", chainRun.view.diagram);
+  document.body.dataset.lastDrawMs = (performance.now() - started).toFixed(1);
 }
 
 function markStale() {
@@ -821,5 +831,10 @@ async function init() {
   if (restored && !document.querySelector(".field.invalid")) banner("Restored your last design from this browser's storage.");
 }
 
-window.flipwright = { compute, call, workerJob, get current() { return current; } };
+window.flipwright = {
+  compute, call, workerJob,
+  get current() { return current; },
+  // The design the results show, with its values (for the benchmark's native comparison).
+  get designJson() { return designForSimulation(); },
+};
 init();
