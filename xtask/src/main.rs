@@ -330,6 +330,8 @@ fn browser_tests() -> Result<(), String> {
 
 fn bench() -> Result<(), String> {
     run("cargo", &["bench", "-p", "flipwright-core"])?;
+    // The page bench compares the browser's verification with the native CLI's.
+    run("cargo", &["build", "--release", "--quiet", "-p", "flipwright-cli"])?;
     ensure_browser()?;
     let page = build_page(false)?;
     let dir = browser_test_dir()?;
@@ -338,6 +340,7 @@ fn bench() -> Result<(), String> {
         .arg("page-bench.mjs")
         .current_dir(&dir)
         .env("FLIPWRIGHT_PAGE", &page)
+        .env("FLIPWRIGHT_CLI", cli_path())
         .status()
         .map_err(|e| format!("cannot start node: {e}"))?;
     if status.success() {
