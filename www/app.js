@@ -634,7 +634,8 @@ function checkVerdict(el, check, what) {
 
 function engineLine(stats, ms, pulse, sign) {
   const perStep = stats.newton_iterations / Math.max(1, stats.accepted_steps);
-  return `Input: ${si(pulse.amplitude_v * sign, "V")} square wave at ${si(pulse.rate_hz, "Hz")}, ${si(Math.min(pulse.edge_s, 0.1 / pulse.rate_hz), "s")} edges. ` +
+  // The pulse is an NPN-frame step down by its amplitude; a PNP stage's real input steps up.
+  return `Input: square wave from 0 V to ${si(-pulse.amplitude_v * sign, "V")} at ${si(pulse.rate_hz, "Hz")}, ${si(Math.min(pulse.edge_s, 0.1 / pulse.rate_hz), "s")} edges. ` +
     `Engine: ${stats.accepted_steps} time steps (${stats.rejected_steps} rejected), ${perStep.toFixed(2)} Newton iterations per step; ${(ms / 1000).toFixed(2)} s in this browser.`;
 }
 

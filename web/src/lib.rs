@@ -478,6 +478,22 @@ mod tests {
     }
 
     #[test]
+    fn a_pnp_stage_is_charted_in_its_real_polarity() {
+        let text = demo_design().replace("\"si-npn-switch-40v\"", "\"ge-pnp-alloy-15v\"");
+        let Outcome::Ok(synthesised) = synthesise_text(&text) else { unreachable!("the PNP demo synthesises") };
+        let outcome = verify_text(&synthesised.analysis.design_json, Some(r#"{"measure": false}"#), &mut |_| true);
+        let Outcome::Ok(view) = outcome else { unreachable!("the PNP demo verifies") };
+        assert_eq!(view.polarity_sign, -1.0);
+        let input = &view.chart.run.traces[0];
+        let collector = &view.chart.run.traces[1];
+        // The NPN-frame pulse steps down from 0 V; the PNP stage's real input steps up, and its
+        // collectors sit between 0 V and the negative supply.
+        assert!(input.max_v.iter().copied().fold(f64::MIN, f64::max) > 1.0, "input steps up");
+        assert!(collector.min_v.iter().copied().fold(f64::MAX, f64::min) < -1.0, "collector goes negative");
+        assert!(view.assumptions.iter().any(|a| a.contains("NPN mirror")));
+    }
+
+    #[test]
     fn a_progress_answer_of_false_cancels() {
         let outcome = verify_text(&demo_with_values(), None, &mut |_| false);
         let Outcome::Failed { message } = outcome else { unreachable!("cancelled") };
