@@ -464,12 +464,26 @@ function onWorkerMessage(event) {
   }
   if (!job || message.id !== job.id) return;
   if (message.type === "progress") job.onProgress(message);
-  else if (message.type === "result") takeJob().resolve(message.result);
+  else if (message.type === "result") { crashesWithoutResult = 0; takeJob().resolve(message.result); }
   else if (message.type === "error") takeJob().reject(new Error(message.message));
 }
 
+let crashesWithoutResult = 0;
+let simulationUnavailable = false;
+
 function workerCrashed(message) {
   const failed = takeJob();
+  // A worker that cannot even start would fail again at once: stop after a few tries.
+  crashesWithoutResult += 1;
+  if (crashesWithoutResult > 3) {
+    if (worker) worker.terminate();
+    worker = null;
+    simulationUnavailable = true;
+    setRunning(null);
+    showStatus("The simulation engine cannot run in this browser (" + message + "); the estimates above still stand.", "error");
+    if (failed) failed.reject(Object.assign(new Error(message), { crashed: true }));
+    return;
+  }
   replaceWorker();
   banner("The simulation engine failed internally (" + message + ") and was restarted; your design is unchanged. Please report what you ran.", "error");
   if (failed) {
@@ -482,6 +496,7 @@ function workerCrashed(message) {
 /** Runs a bridge export in the worker; resolves with its Outcome. */
 function workerJob(name, args, onProgress) {
   if (job) return Promise.reject(new Error("a simulation is already running"));
+  if (simulationUnavailable) return Promise.reject(new Error("the simulation engine cannot run in this browser"));
   if (!worker) startWorker();
   return new Promise((resolve, reject) => {
     job = { id: ++jobCounter, resolve, reject, onProgress: onProgress || (() => {}) };
@@ -506,8 +521,8 @@ let elapsedTimer = null;
 
 function setRunning(text) {
   const running = text != null;
-  $("verify-run").disabled = running;
-  $("chain-run").disabled = running;
+  $("verify-run").disabled = running || simulationUnavailable;
+  $("chain-run").disabled = running || simulationUnavailable;
   $("verify-progress").hidden = !running;
   clearInterval(elapsedTimer);
   if (running) {
@@ -535,7 +550,8 @@ async function runJob(name, args, label, onProgress) {
     const outcome = await workerJob(name, args, onProgress);
     return { outcome, ms: performance.now() - started };
   } catch (error) {
-    if (error.cancelled) showStatus("Cancelled; any results shown are from earlier runs.");
+    if (simulationUnavailable) { /* workerCrashed said why */ }
+    else if (error.cancelled) showStatus("Cancelled; any results shown are from earlier runs.");
     else if (error.crashed) showStatus("The simulation engine failed: " + error.message + ". It was restarted; try again or change the design.", "error");
     else showStatus("The simulation could not run: " + error.message, "error");
     return null;
