@@ -46,7 +46,7 @@ const VALUE_FIELDS = [
 ];
 
 let engine = null;          // the bridge's exported functions
-let wasmBytes = null;       // kept to re-instantiate after a failure
+let wasmModule = null;      // compiled once: re-instantiated after a failure, posted to workers
 let current = null;         // the design file object shown in the form
 let lastView = null;        // last successful analysis view
 let archetypeList = { transistors: [], diodes: [] };
@@ -88,8 +88,8 @@ async function startEngine() {
   script.textContent = "(function () {\n" + $("glue-source").textContent + "\nwindow.wasm_bindgen = wasm_bindgen;\n})();";
   document.head.appendChild(script);
   script.remove();
-  if (!wasmBytes) wasmBytes = decodeBase64(WASM_BASE64);
-  await window.wasm_bindgen({ module_or_path: wasmBytes });
+  if (!wasmModule) wasmModule = await WebAssembly.compile(decodeBase64(WASM_BASE64));
+  await window.wasm_bindgen({ module_or_path: wasmModule });
   engine = window.wasm_bindgen;
 }
 
@@ -101,6 +101,22 @@ async function call(name, ...args) {
       banner("The engine failed internally (" + error.message + ") and was restarted; your design is unchanged. Please report what you entered.", "error");
       engine = null;
       await startEngine();
+      return null;
+    }
+    throw error;
+  }
+}
+
+/** The same for the drawing exports, which the page needs synchronously. */
+function callNow(name, ...args) {
+  if (!engine) return null;
+  try {
+    return engine[name](...args);
+  } catch (error) {
+    if (error instanceof WebAssembly.RuntimeError) {
+      banner("The engine failed internally (" + error.message + ") and was restarted; your design is unchanged. Please report what you entered.", "error");
+      engine = null;
+      startEngine();
       return null;
     }
     throw error;
@@ -319,7 +335,12 @@ function table(el, headers, rows) {
     const tr = body.insertRow();
     for (const c of r) {
       const td = tr.insertCell();
-      if (c && typeof c === "object") { td.textContent = c.text; if (c.className) td.className = c.className; if (c.html) td.innerHTML = c.html; }
+      if (c && typeof c === "object") {
+        td.textContent = c.text;
+        if (c.className) td.className = c.className;
+        if (c.html) td.innerHTML = c.html;
+        if (c.sub) { const sub = document.createElement("div"); sub.className = "sub"; sub.textContent = c.sub; td.appendChild(sub); }
+      }
       else td.textContent = c;
     }
   }
@@ -391,12 +412,372 @@ function render(view, synthesis) {
   const notes = $("notes");
   notes.textContent = "";
   for (const n of report.notes) { const li = document.createElement("li"); li.textContent = n; notes.appendChild(li); }
+  markStale();
   const d = current;
   $("print-header").innerHTML = "";
   const h = document.createElement("h1"); h.textContent = view.name;
   const p = document.createElement("p");
   p.textContent = `Printed ${new Date().toISOString().slice(0, 10)} · supplies ${d.supplies.collector_supply_v} V / ${d.supplies.bias_supply_v} V ±${d.supplies.tolerance} · ${d.conditions.t_min_c}…${d.conditions.t_max_c} °C · resistors ±${d.conditions.resistor_tolerance}, capacitors ±${d.conditions.capacitor_tolerance} · toggle rate ${d.requirements.toggle_rate_hz} Hz · transistor ${typeof d.transistor === "string" ? d.transistor : d.transistor.label}`;
   $("print-header").append(h, p);
+}
+
+// ---- simulation worker ----
+// One classic worker built from a single Blob (the glue, then www/worker.js) and given the
+// compiled module. One job at a time; cancelling terminates the worker and starts a new one,
+// as does a panic inside it.
+let workerUrl = null;
+let worker = null;
+let job = null;             // { id, resolve, reject, onProgress }
+let jobCounter = 0;
+
+function startWorker() {
+  if (!workerUrl) {
+    const source = [$("glue-source").textContent, "\n;\n", $("worker-source").textContent];
+    workerUrl = URL.createObjectURL(new Blob(source, { type: "text/javascript" }));
+  }
+  worker = new Worker(workerUrl);
+  worker.onmessage = onWorkerMessage;
+  worker.onerror = (event) => {
+    event.preventDefault();
+    workerCrashed(event.message || "the simulation worker stopped");
+  };
+  worker.postMessage({ type: "init", module: wasmModule });
+}
+
+function replaceWorker() {
+  if (worker) worker.terminate();
+  worker = null;
+  startWorker();
+}
+
+function takeJob() {
+  const taken = job;
+  job = null;
+  return taken;
+}
+
+function onWorkerMessage(event) {
+  const message = event.data;
+  if (message.type === "crashed" && (message.id === undefined || (job && message.id === job.id))) {
+    workerCrashed(message.message);
+    return;
+  }
+  if (!job || message.id !== job.id) return;
+  if (message.type === "progress") job.onProgress(message);
+  else if (message.type === "result") { crashesWithoutResult = 0; takeJob().resolve(message.result); }
+  else if (message.type === "error") takeJob().reject(new Error(message.message));
+}
+
+let crashesWithoutResult = 0;
+let simulationUnavailable = false;
+
+function workerCrashed(message) {
+  const failed = takeJob();
+  // A worker that cannot even start would fail again at once: stop after a few tries.
+  crashesWithoutResult += 1;
+  if (crashesWithoutResult > 3) {
+    if (worker) worker.terminate();
+    worker = null;
+    simulationUnavailable = true;
+    setRunning(null);
+    showStatus("The simulation engine cannot run in this browser (" + message + "); the estimates above still stand.", "error");
+    if (failed) failed.reject(Object.assign(new Error(message), { crashed: true }));
+    return;
+  }
+  replaceWorker();
+  banner("The simulation engine failed internally (" + message + ") and was restarted; your design is unchanged. Please report what you ran.", "error");
+  if (failed) {
+    const error = new Error(message);
+    error.crashed = true;
+    failed.reject(error);
+  }
+}
+
+/** Runs a bridge export in the worker; resolves with its Outcome. */
+function workerJob(name, args, onProgress) {
+  if (job) return Promise.reject(new Error("a simulation is already running"));
+  if (simulationUnavailable) return Promise.reject(new Error("the simulation engine cannot run in this browser"));
+  if (!worker) startWorker();
+  return new Promise((resolve, reject) => {
+    job = { id: ++jobCounter, resolve, reject, onProgress: onProgress || (() => {}) };
+    worker.postMessage({ type: "run", id: job.id, job: name, args: args || {} });
+  });
+}
+
+function cancelWorkerJob() {
+  const cancelled = takeJob();
+  replaceWorker();
+  if (cancelled) {
+    const error = new Error("cancelled");
+    error.cancelled = true;
+    cancelled.reject(error);
+  }
+}
+
+// ---- verification view ----
+let stageRun = null;        // { view, designJson, ms } of the last stage verification
+let chainRun = null;        // { view, designJson, ms, stages } of the last chain run
+let elapsedTimer = null;
+
+function setRunning(text) {
+  const running = text != null;
+  $("verify-run").disabled = running || simulationUnavailable;
+  $("chain-run").disabled = running || simulationUnavailable;
+  $("verify-progress").hidden = !running;
+  clearInterval(elapsedTimer);
+  if (running) {
+    $("verify-status").textContent = "";
+    $("verify-status").className = "status";
+    $("verify-phase").textContent = text;
+    $("verify-bar").removeAttribute("value");
+  }
+}
+
+function showStatus(text, kind) {
+  $("verify-status").textContent = text;
+  $("verify-status").className = "status" + (kind ? " " + kind : "");
+}
+
+/** The design the results show, with its values, or null when there is none. */
+function designForSimulation() {
+  return lastView ? lastView.design_json : null;
+}
+
+async function runJob(name, args, label, onProgress) {
+  setRunning(label);
+  const started = performance.now();
+  try {
+    const outcome = await workerJob(name, args, onProgress);
+    return { outcome, ms: performance.now() - started };
+  } catch (error) {
+    if (simulationUnavailable) { /* workerCrashed said why */ }
+    else if (error.cancelled) showStatus("Cancelled; any results shown are from earlier runs.");
+    else if (error.crashed) showStatus("The simulation engine failed: " + error.message + ". It was restarted; try again or change the design.", "error");
+    else showStatus("The simulation could not run: " + error.message, "error");
+    return null;
+  } finally {
+    setRunning(null);
+  }
+}
+
+function outcomeProblem(outcome) {
+  if (outcome.status === "invalid") return outcome.errors.map(e => `${e.path}: ${e.message}`).join("; ");
+  if (outcome.status === "failed") return outcome.message;
+  return null;
+}
+
+async function verifyStage() {
+  const design = designForSimulation();
+  if (!design) { showStatus("There is no valid design to simulate yet.", "error"); return; }
+  const options = $("verify-measure").checked ? null : JSON.stringify({ measure: false });
+  let progressCalls = 0;
+  const onProgress = (step) => {
+    progressCalls += 1;
+    const bar = $("verify-bar");
+    bar.max = step.total_runs;
+    bar.value = step.done_runs;
+    $("verify-phase").textContent = `${step.phase}: run ${step.done_runs + 1} of at most ${step.total_runs}`;
+  };
+  const done = await runJob("verify_design", { design, options }, "starting…", onProgress);
+  document.body.dataset.verifyProgressCalls = String(progressCalls);
+  if (!done) return;
+  const problem = outcomeProblem(done.outcome);
+  if (problem) { showStatus("The verification could not run: " + problem, "error"); return; }
+  stageRun = { view: done.outcome, designJson: design, ms: done.ms };
+  document.body.dataset.lastVerifyMs = done.ms.toFixed(0);
+  showStatus("");
+  renderStageRun();
+}
+
+async function verifyChain() {
+  const design = designForSimulation();
+  if (!design) { showStatus("There is no valid design to simulate yet.", "error"); return; }
+  const stages = Number($("chain-stages").value);
+  if (!Number.isInteger(stages) || stages < 1 || stages > 10) {
+    showStatus("The chain needs a whole number of stages from 1 to 10.", "error");
+    $("chain-stages").classList.add("invalid");
+    return;
+  }
+  $("chain-stages").classList.remove("invalid");
+  const edges = 2 ** stages;
+  const started = performance.now();
+  const label = () => `ripple chain of ${stages}, ${edges} edges: running for ${((performance.now() - started) / 1000).toFixed(0)} s`;
+  const run = runJob("verify_chain_design", { design, stages, edges }, label());
+  elapsedTimer = setInterval(() => { $("verify-phase").textContent = label(); }, 1000);
+  const done = await run;
+  if (!done) return;
+  const problem = outcomeProblem(done.outcome);
+  if (problem) { showStatus("The chain verification could not run: " + problem, "error"); return; }
+  chainRun = { view: done.outcome, designJson: design, ms: done.ms, stages };
+  document.body.dataset.lastChainMs = done.ms.toFixed(0);
+  showStatus("");
+  renderChainRun();
+}
+
+/** The counts after each edge; a long run shows its first edges and its last eight. */
+function countsInto(el, check, limit) {
+  el.textContent = "";
+  const n = check.observed.length;
+  const tail = 8;
+  const shown = n > limit ? [...Array(limit - tail).keys(), null, ...Array.from({ length: tail }, (_, i) => n - tail + i)] : [...Array(n).keys()];
+  for (const k of shown) {
+    if (k === null) { el.append(`… (${n} edges in all) … `); continue; }
+    const count = check.observed[k];
+    const span = document.createElement("span");
+    span.textContent = count == null ? "?" : String(count);
+    if (count !== check.expected[k]) { span.className = "wrong"; span.title = `after edge ${k + 1}: expected ${check.expected[k]}`; }
+    el.append(span, " ");
+  }
+  // The first wrong count is always shown, even deep inside a long run.
+  const k = check.first_error;
+  if (k != null && n > limit && k >= limit - tail && k < n - tail) {
+    el.append(`first wrong count after edge ${k + 1}: ${check.observed[k] == null ? "?" : check.observed[k]} (expected ${check.expected[k]})`);
+  }
+}
+
+function checkVerdict(el, check, what) {
+  const k = check.first_error;
+  el.className = "verdict " + (check.correct ? "pass" : "fail");
+  if (check.correct) {
+    el.textContent = `PASS — ${what} counted correctly after every one of the ${check.edges} input edges.`;
+  } else if (k === 0 && check.initial !== 0) {
+    el.textContent = `FAIL — ${what} did not start at count 0 (read ${check.initial == null ? "undecided" : check.initial}).`;
+  } else {
+    const got = check.observed[k];
+    el.textContent = `FAIL — after edge ${k + 1} the count should be ${check.expected[k]} but was ${got == null ? "undecided (a stage between its states)" : got}.`;
+  }
+}
+
+function engineLine(stats, ms, pulse, sign) {
+  const perStep = stats.newton_iterations / Math.max(1, stats.accepted_steps);
+  // The pulse is an NPN-frame step down by its amplitude; a PNP stage's real input steps up.
+  return `Input: square wave from 0 V to ${si(-pulse.amplitude_v * sign, "V")} at ${si(pulse.rate_hz, "Hz")}, ${si(Math.min(pulse.edge_s, 0.1 / pulse.rate_hz), "s")} edges. ` +
+    `Engine: ${stats.accepted_steps} time steps (${stats.rejected_steps} rejected), ${perStep.toFixed(2)} Newton iterations per step; ${(ms / 1000).toFixed(2)} s in this browser.`;
+}
+
+function searchResult(m) {
+  const unit = m.unit;
+  const o = m.outcome;
+  if (o.kind === "bracketed") return { measured: si(o.passing, unit), bracket: `passes at ${si(o.passing, unit)}, fails at ${si(o.failing, unit)}` };
+  if (o.kind === "fails_at_best_bound") return { measured: "—", bracket: "fails even at the most favourable bound" };
+  return { measured: "beyond the search", bracket: "passes at the far bound" };
+}
+
+function renderStageRun() {
+  if (!stageRun) return;
+  const { view, ms } = stageRun;
+  const v = view.verification;
+  $("stage-result").hidden = false;
+  checkVerdict($("stage-verdict"), v.nominal, "the stage");
+  countsInto($("stage-counts"), v.nominal, 64);
+  $("stage-engine").textContent = engineLine(v.nominal.statistics, ms, v.pulse, view.polarity_sign);
+  const searches = [v.sensitivity, v.max_rate].filter(Boolean);
+  const measured = $("stage-measured");
+  measured.hidden = searches.length === 0;
+  table(measured, ["Measured by bisection", "Estimate", "Measured", "Searched", "Runs"],
+    searches.map(m => {
+      const r = searchResult(m);
+      return [
+        { text: m.quantity.charAt(0).toUpperCase() + m.quantity.slice(1), sub: m.conditions },
+        { text: m.estimate == null ? "—" : si(m.estimate, m.unit), className: "num" },
+        { text: r.measured, className: "num strong", sub: r.bracket },
+        { text: `${si(m.search_low, m.unit)} – ${si(m.search_high, m.unit)}`, sub: "resolution " + m.resolution_text },
+        { text: `${m.runs} runs`, className: "num", sub: `of ${m.edges_per_run} edges each` },
+      ];
+    }));
+  const t = v.timings;
+  const timings = $("stage-timings");
+  timings.hidden = !t;
+  if (t) {
+    const s = (x) => x == null ? "—" : si(x, "s");
+    table(timings, ["Switching, measured on the first two edges", "Measured", "Estimate (charge control)"], [
+      ["Input edge to output half swing", { text: s(t.toggle_delay_s), className: "num" }, "—"],
+      ["Storage (input edge to 10 % of the collector rise)", { text: s(t.storage_s), className: "num" }, { text: s(v.estimated_storage_s) + " (storage alone)", className: "num" }],
+      ["Collector fall 90–10 % (turn-on)", { text: s(t.collector_fall_s), className: "num" }, { text: s(v.estimated_current_rise_s) + " (current rise)", className: "num" }],
+      ["Collector rise 10–90 % (turn-off)", { text: s(t.collector_rise_s), className: "num" }, { text: s(v.estimated_current_fall_s) + " (current fall; RC and C1 add to it)", className: "num" }],
+      ["Output period · duty cycle", { text: t.output_period_s == null ? "—" : `${s(t.output_period_s)} · ${(100 * t.output_duty).toFixed(1)} %`, className: "num" }, { text: `${si(2 / v.pulse.rate_hz, "s")} · 50 % (two input periods)`, className: "num" }],
+    ]);
+  }
+  showAssumptions(view.assumptions);
+  drawCharts();
+  $("stage-svg").innerHTML = printChart("waveform_chart_svg", view.chart, 600, 400);
+  $("verify").classList.add("has-results");
+  markStale();
+}
+
+function renderChainRun() {
+  if (!chainRun) return;
+  const { view, ms, stages } = chainRun;
+  $("chain-result").hidden = false;
+  $("chain-title").textContent = `Ripple chain of ${stages} stage${stages === 1 ? "" : "s"} (divide by ${2 ** stages})`;
+  checkVerdict($("chain-verdict"), view.check, `a ripple chain of ${stages}`);
+  countsInto($("chain-counts"), view.check, 64);
+  $("chain-engine").textContent = engineLine(view.check.statistics, ms, view.pulse, view.polarity_sign);
+  $("chain-canvas").style.height = chainHeight(stages) + "px";
+  showAssumptions(view.assumptions);
+  drawCharts();
+  $("chain-svg").innerHTML = printChart("timing_diagram_svg", view.diagram, 600, Math.round(0.85 * chainHeight(stages)));
+  $("verify").classList.add("has-results");
+  markStale();
+}
+
+function chainHeight(stages) {
+  return 70 + 46 * (stages + 1);
+}
+
+function showAssumptions(list) {
+  $("verify-assumptions-box").hidden = false;
+  const ul = $("verify-assumptions");
+  ul.textContent = "";
+  for (const a of list) { const li = document.createElement("li"); li.textContent = a; ul.appendChild(li); }
+}
+
+/** Canvases at CSS size × devicePixelRatio; plotters draws with the same factor. */
+function drawOn(canvas, exportName, data) {
+  // The content box: the border is not part of the drawing surface.
+  const width = canvas.clientWidth;
+  const height = canvas.clientHeight;
+  if (width === 0 || height === 0) return;
+  const ratio = window.devicePixelRatio || 1;
+  canvas.width = Math.round(width * ratio);
+  canvas.height = Math.round(height * ratio);
+  try {
+    callNow(exportName, canvas, data, ratio);
+  } catch (error) {
+    showStatus("Cannot draw the chart: " + error.message, "error");
+  }
+}
+
+/** The chart as SVG for the printout (vector, with selectable text). */
+function printChart(exportName, data, width, height) {
+  try {
+    return callNow(exportName, data, width, height) || "";
+  } catch (error) {
+    showStatus("Cannot draw the chart for print: " + error.message, "error");
+    return "";
+  }
+}
+
+function drawCharts() {
+  const started = performance.now();
+  if (stageRun && !$("stage-result").hidden) drawOn($("stage-canvas"), "draw_waveform_chart", stageRun.view.chart);
+  if (chainRun && !$("chain-result").hidden) drawOn($("chain-canvas"), "draw_timing_diagram", chainRun.view.diagram);
+  document.body.dataset.lastDrawMs = (performance.now() - started).toFixed(1);
+}
+
+function markStale() {
+  const design = designForSimulation();
+  const stale = [stageRun, chainRun].some(r => r && r.designJson !== design);
+  $("verify-stale").hidden = !stale;
+}
+
+function initVerification() {
+  $("verify-run").addEventListener("click", verifyStage);
+  $("chain-run").addEventListener("click", verifyChain);
+  $("verify-cancel").addEventListener("click", cancelWorkerJob);
+  let resizeTimer = null;
+  window.addEventListener("resize", () => { clearTimeout(resizeTimer); resizeTimer = setTimeout(drawCharts, 150); });
+  startWorker();
 }
 
 // ---- keeping work ----
@@ -462,9 +843,15 @@ async function init() {
   $("save-file").addEventListener("click", () => download(fileName(".json"), "application/json", JSON.stringify(current, null, 2) + "\n"));
   $("export-csv").addEventListener("click", () => { if (lastView) download(fileName("-parts.csv"), "text/csv", lastView.table_csv); });
   $("print").addEventListener("click", () => window.print());
+  initVerification();
   await compute();
   if (restored && !document.querySelector(".field.invalid")) banner("Restored your last design from this browser's storage.");
 }
 
-window.flipwright = { compute, call, get current() { return current; } };
+window.flipwright = {
+  compute, call, workerJob,
+  get current() { return current; },
+  // The design the results show, with its values (for the benchmark's native comparison).
+  get designJson() { return designForSimulation(); },
+};
 init();

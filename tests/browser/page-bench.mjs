@@ -1,6 +1,10 @@
-// Page benchmark (not a test): open-to-interactive time of the single file and the median
-// recompute time after an edit, with values chosen by synthesis and with the user's own values.
-import { existsSync, statSync } from "node:fs";
+// Page benchmark (not a test): open-to-interactive time of the single file, the median
+// recompute time after an edit (values chosen by synthesis, and the user's own values), and the
+// verification by simulation in the page's worker beside the command line's native run of the
+// same design file.
+import { spawnSync } from "node:child_process";
+import { existsSync, mkdtempSync, readFileSync, statSync, writeFileSync } from "node:fs";
+import { tmpdir } from "node:os";
 import { join, resolve } from "node:path";
 import { chromium } from "playwright-core";
 
@@ -41,8 +45,73 @@ const synthesis = await recomputeTimes(7);
 await page.uncheck("#auto-values");
 await page.waitForFunction(() => document.body.dataset.lastComputeMs !== undefined, null, { timeout: 60000 });
 const analysis = await recomputeTimes(15);
+
+// Verification: wall time of the worker job (posting the design to receiving the result) and
+// of the main thread's chart drawing; then the native CLI on the very same design file (its CSV
+// cut to one probe, so file writing does not weigh on the native figure).
+const verifyContext = await browser.newContext({ viewport: { width: 1280, height: 900 } });
+const verifyPage = await verifyContext.newPage();
+await verifyPage.goto("file://" + pagePath);
+await verifyPage.waitForSelector("body[data-ready=true]", { timeout: 60000 });
+async function browserRuns(count, start, resultSelector, attribute) {
+  const times = [];
+  const draws = [];
+  for (let i = 0; i < count; i++) {
+    await verifyPage.evaluate((a) => { delete document.body.dataset[a]; }, attribute);
+    await start();
+    await verifyPage.waitForFunction((a) => document.body.dataset[a] !== undefined, attribute, { timeout: 600000 });
+    await verifyPage.waitForSelector(resultSelector, { timeout: 60000 });
+    times.push(Number(await verifyPage.evaluate((a) => document.body.dataset[a], attribute)));
+    draws.push(Number(await verifyPage.getAttribute("body", "data-last-draw-ms")));
+  }
+  return { times, draws };
+}
+const stageRuns = await browserRuns(5, () => verifyPage.click("#verify-run"), "#stage-result:not([hidden])", "lastVerifyMs");
+const chain = async (stages) => {
+  await verifyPage.fill("#chain-stages", String(stages));
+  return browserRuns(stages <= 4 ? 5 : 1, () => verifyPage.click("#chain-run"), "#chain-result:not([hidden])", "lastChainMs");
+};
+const chain4 = await chain(4);
+const chain8 = await chain(8);
+const designText = await verifyPage.evaluate(() => window.flipwright.designJson);
+await verifyContext.close();
 await browser.close();
-console.log(`page file ${(statSync(pagePath).size / 1024).toFixed(0)} KiB`);
+
+const cli = process.env.FLIPWRIGHT_CLI || join(root, "target/release/flipwright");
+const scratch = mkdtempSync(join(tmpdir(), "flipwright-bench-"));
+const designPath = join(scratch, "design.json");
+writeFileSync(designPath, designText);
+function nativeRuns(count, extra) {
+  const times = [];
+  for (let i = 0; i < count; i++) {
+    const start = process.hrtime.bigint();
+    const run = spawnSync(cli, ["simulate", designPath, "--csv", join(scratch, "run.csv"), "--probe", "in", ...extra], { encoding: "utf8" });
+    times.push(Number(process.hrtime.bigint() - start) / 1e6);
+    if (run.status !== 0) throw new Error(`${cli} simulate failed: ${run.stderr}`);
+  }
+  return times;
+}
+const haveCli = existsSync(cli);
+const native = haveCli ? {
+  stage: nativeRuns(5, []),
+  chain4: nativeRuns(5, ["--stages", "4", "--edges", "16"]),
+  chain8: nativeRuns(1, ["--stages", "8", "--edges", "256"]),
+} : null;
+
+const pageText = readFileSync(pagePath, "utf8");
+const wasmBase64 = /const WASM_BASE64 = "([^"]*)"/.exec(pageText)?.[1] || "";
+console.log(`page file ${(statSync(pagePath).size / 1024).toFixed(0)} KiB (wasm ${(wasmBase64.length * 3 / 4 / 1024).toFixed(0)} KiB, inlined as base64)`);
 console.log(`open to interactive: median ${median(opens)} ms (n = ${opens.length}; ${opens.join(", ")})`);
 console.log(`recompute after an edit, own values (analysis with worst case): median ${median(analysis).toFixed(1)} ms (n = ${analysis.length})`);
 console.log(`recompute after an edit, values chosen (synthesis): median ${median(synthesis).toFixed(0)} ms (n = ${synthesis.length})`);
+const row = (what, browserMs, nativeMs) => {
+  const b = median(browserMs);
+  const line = `${what}: browser worker median ${b.toFixed(0)} ms (n = ${browserMs.length})`;
+  if (!nativeMs) return console.log(line + "; native: build the CLI (cargo xtask demo) to compare");
+  const n = median(nativeMs);
+  console.log(`${line}; native CLI median ${n.toFixed(0)} ms (n = ${nativeMs.length}, whole process); wasm/native ${(b / n).toFixed(2)}`);
+};
+row("verification of the stage (nominal run and both searches)", stageRuns.times, native?.stage);
+row("ripple chain of 4, 16 edges", chain4.times, native?.chain4);
+row("ripple chain of 8, 256 edges", chain8.times, native?.chain8);
+console.log(`chart drawing on the main thread after a result: median ${median(stageRuns.draws.concat(chain4.draws)).toFixed(1)} ms`);

@@ -1,7 +1,9 @@
 //! The wasm bridge: a handful of exports that take design-file JSON, call the core, and return
 //! plain transfer objects for the page to render. No engineering happens here.
 
+pub mod plots;
 mod schematic;
+pub mod traces;
 
 use serde::Serialize;
 use wasm_bindgen::prelude::*;
@@ -11,6 +13,12 @@ use flipwright::stage::analysis::{analyse, StageReport};
 use flipwright::stage::synthesis::{synthesise, SynthesisOutcome};
 use flipwright::stage::{FieldError, StageDesign};
 use flipwright::table::{component_table, to_csv, ComponentRow};
+use flipwright::verify::{
+    self, in_real_polarity, BuiltCircuit, CountCheck, InputPulse, Progress, RunAccuracy, SearchSettings,
+    SimulationCorner, StageVerification, VerifyOptions,
+};
+
+use plots::{Panel, Pen, TimingDiagram, WaveformChart};
 
 #[wasm_bindgen(start)]
 pub fn start() {
@@ -107,6 +115,188 @@ fn synthesise_text(text: &str) -> Outcome<SynthesisView> {
     })
 }
 
+/// A stage verification as the page shows it.
+#[derive(Serialize)]
+pub struct StageVerificationView {
+    pub verification: StageVerification,
+    /// +1 for NPN, −1 for PNP: the verification's pulse amplitude and levels are NPN-frame
+    /// magnitudes; the chart is already in the real polarity.
+    pub polarity_sign: f64,
+    /// The simulated circuit's assumptions, with the polarity note for a PNP stage.
+    pub assumptions: Vec<String>,
+    /// The nominal run's input, collectors and bases, decimated.
+    pub chart: WaveformChart,
+}
+
+/// A ripple-chain verification as the page shows it.
+#[derive(Serialize)]
+pub struct ChainVerificationView {
+    pub check: CountCheck,
+    pub pulse: InputPulse,
+    pub polarity_sign: f64,
+    pub assumptions: Vec<String>,
+    /// The input and every stage's output, decimated, with the count after each edge.
+    pub diagram: TimingDiagram,
+}
+
+/// Rejects a key the defaults do not have, so a misspelt option is an error, not ignored.
+fn overlay(base: &mut serde_json::Value, patch: serde_json::Value, path: &str) -> Result<(), FieldError> {
+    match (base, patch) {
+        (serde_json::Value::Object(base), serde_json::Value::Object(patch)) => {
+            for (key, value) in patch {
+                let here = format!("{path}.{key}");
+                match base.get_mut(&key) {
+                    Some(slot) => overlay(slot, value, &here)?,
+                    None => {
+                        return Err(FieldError {
+                            path: here,
+                            message: "is not a verification option".to_string(),
+                        })
+                    }
+                }
+            }
+            Ok(())
+        }
+        (base, patch) => {
+            *base = patch;
+            Ok(())
+        }
+    }
+}
+
+/// The verification options: the core's defaults with the fields `text` gives replaced
+/// (`{"measure": false}` skips the searches).
+fn verify_options(text: Option<&str>) -> Result<VerifyOptions, Vec<FieldError>> {
+    let Some(text) = text.filter(|t| !t.trim().is_empty()) else { return Ok(VerifyOptions::default()) };
+    let bad = |message: String| vec![FieldError { path: "options".to_string(), message }];
+    let patch: serde_json::Value =
+        serde_json::from_str(text).map_err(|e| bad(format!("is not JSON: {e}")))?;
+    let mut merged = serde_json::to_value(VerifyOptions::default()).map_err(|e| bad(e.to_string()))?;
+    overlay(&mut merged, patch, "options").map_err(|e| vec![e])?;
+    serde_json::from_value(merged).map_err(|e| bad(e.to_string()))
+}
+
+fn polarity_assumptions(mut assumptions: Vec<String>, sign: f64) -> Vec<String> {
+    if sign < 0.0 {
+        assumptions.push(
+            "simulated as the NPN mirror; the waveforms are shown in the real (negative) PNP polarity"
+                .to_string(),
+        );
+    }
+    assumptions
+}
+
+fn node_pair(nodes: &[String; 2], what: &str) -> [(String, String); 2] {
+    [(nodes[0].clone(), format!("Q1 {what}")), (nodes[1].clone(), format!("Q2 {what}"))]
+}
+
+/// Input, both collectors and both bases of a single stage, in three panels.
+fn stage_chart(built: &BuiltCircuit, result: &flipwright::transient::TransientResult) -> WaveformChart {
+    let mut nodes = vec![(built.input_node.clone(), "input".to_string())];
+    if let Some(stage) = built.stages.first() {
+        nodes.extend(node_pair(&stage.collectors, "collector"));
+        nodes.extend(node_pair(&stage.bases, "base"));
+    }
+    let run = traces::decimate(result, &nodes);
+    let find = |node: &str| run.traces.iter().position(|t| t.node == node);
+    let panel = |title: &str, members: &[(usize, Pen)]| {
+        let traces: Vec<(usize, Pen)> = members
+            .iter()
+            .filter_map(|&(i, pen)| nodes.get(i).and_then(|(node, _)| find(node)).map(|t| (t, pen)))
+            .collect();
+        Panel { title: title.to_string(), traces }
+    };
+    let panels = vec![
+        panel("Input", &[(0, Pen::Input)]),
+        panel("Collectors", &[(1, Pen::First), (2, Pen::Second)]),
+        panel("Bases", &[(3, Pen::First), (4, Pen::Second)]),
+    ];
+    WaveformChart { run, panels }
+}
+
+fn verify_text(
+    design_json: &str,
+    options_json: Option<&str>,
+    progress: &mut dyn FnMut(Progress) -> bool,
+) -> Outcome<StageVerificationView> {
+    let (_, design) = match DesignFile::load(design_json) {
+        Ok(pair) => pair,
+        Err(errors) => return Outcome::Invalid { errors },
+    };
+    let options = match verify_options(options_json) {
+        Ok(options) => options,
+        Err(errors) => return Outcome::Invalid { errors },
+    };
+    let (verification, result) = match verify::verify_stage(&design, &options, progress) {
+        Ok(pair) => pair,
+        Err(e) => return Outcome::Failed { message: format!("the verification failed: {e}") },
+    };
+    // Rebuilt only for its node names; the same inputs built the run's circuit.
+    let built = match verify::stage_circuit(&design, &verification.pulse, &verification.corner) {
+        Ok(built) => built,
+        Err(e) => return Outcome::Failed { message: format!("the verification failed: {e}") },
+    };
+    let sign = design.transistor().polarity.sign();
+    let result = in_real_polarity(result, sign);
+    Outcome::Ok(StageVerificationView {
+        chart: stage_chart(&built, &result),
+        assumptions: polarity_assumptions(verification.assumptions.clone(), sign),
+        polarity_sign: sign,
+        verification,
+    })
+}
+
+fn verify_chain_text(design_json: &str, stages: usize, edges: usize) -> Outcome<ChainVerificationView> {
+    let (_, design) = match DesignFile::load(design_json) {
+        Ok(pair) => pair,
+        Err(errors) => return Outcome::Invalid { errors },
+    };
+    let failed =
+        |e: verify::VerifyError| Outcome::Failed { message: format!("the chain verification failed: {e}") };
+    let pulse = match verify::service_pulse(&design, SearchSettings::default().edge_s) {
+        Ok(pulse) => pulse,
+        Err(e) => return failed(e),
+    };
+    let corner = SimulationCorner::nominal();
+    let (check, result, built) =
+        match verify::verify_chain(&design, stages, edges, &pulse, &corner, &RunAccuracy::default()) {
+            Ok(triple) => triple,
+            Err(e) => return failed(e),
+        };
+    let sign = design.transistor().polarity.sign();
+    let result = in_real_polarity(result, sign);
+    let nodes: Vec<(String, String)> = std::iter::once((built.input_node.clone(), "input".to_string()))
+        .chain(
+            built
+                .stages
+                .iter()
+                .enumerate()
+                .map(|(k, stage)| (stage.collectors[0].clone(), format!("stage {} · bit {k}", k + 1))),
+        )
+        .collect();
+    let diagram = TimingDiagram {
+        run: traces::decimate(&result, &nodes),
+        edge_times_s: (0..=check.edges).map(|k| pulse.edge_time_s(k)).collect(),
+        counts: check.observed.clone(),
+    };
+    Outcome::Ok(ChainVerificationView {
+        check,
+        pulse,
+        polarity_sign: sign,
+        assumptions: polarity_assumptions(built.assumptions, sign),
+        diagram,
+    })
+}
+
+fn from_js<T: serde::de::DeserializeOwned>(value: JsValue, what: &str) -> Result<T, JsError> {
+    serde_wasm_bindgen::from_value(value).map_err(|e| JsError::new(&format!("not a {what}: {e}")))
+}
+
+fn canvas_backend(canvas: web_sys::HtmlCanvasElement) -> Result<plotters_canvas::CanvasBackend, JsError> {
+    plotters_canvas::CanvasBackend::with_canvas_object(canvas)
+        .ok_or_else(|| JsError::new("the canvas has no 2D drawing context"))
+}
+
 /// The demo design file as JSON text (values not yet chosen).
 #[wasm_bindgen]
 pub fn demo_design() -> String {
@@ -151,6 +341,76 @@ pub fn archetypes() -> Result<JsValue, JsError> {
     to_js(&serde_json::json!({ "transistors": transistors, "diodes": diodes }))
 }
 
+/// Verifies a design (with values) by simulation: the nominal run at the design's rate, then
+/// the sensitivity and toggle-rate searches. `options_json` replaces fields of the default
+/// options (`{"measure": false}`, `{"nominal_edges": 16}`). `progress` is called with
+/// `{done_runs, total_runs, phase}` before every run; returning `false` cancels. Returns an
+/// Outcome with the verification and the nominal run's waveforms, decimated. Runs for
+/// seconds: call it from a worker.
+#[wasm_bindgen]
+pub fn verify_design(
+    design_json: &str,
+    options_json: Option<String>,
+    progress: &js_sys::Function,
+) -> Result<JsValue, JsError> {
+    let mut report = |step: Progress| -> bool {
+        let Ok(value) = to_js(&step) else { return true };
+        match progress.call1(&JsValue::NULL, &value) {
+            Ok(answer) => answer.as_bool() != Some(false),
+            // A progress function that throws has nowhere to report to: stop.
+            Err(_) => false,
+        }
+    };
+    to_js(&verify_text(design_json, options_json.as_deref(), &mut report))
+}
+
+/// Verifies a ripple chain of `stages` copies of the design's stage over `edges` input edges
+/// at the design's rate: the count after every edge and the timing diagram of every stage's
+/// output, decimated. Runs for seconds to minutes: call it from a worker.
+#[wasm_bindgen]
+pub fn verify_chain_design(design_json: &str, stages: usize, edges: usize) -> Result<JsValue, JsError> {
+    to_js(&verify_chain_text(design_json, stages, edges))
+}
+
+/// Draws a verification's waveform chart on a canvas whose size is already CSS size ×
+/// `scale` (the device-pixel ratio). Main thread only: text measurement needs the DOM.
+#[wasm_bindgen]
+pub fn draw_waveform_chart(
+    canvas: web_sys::HtmlCanvasElement,
+    chart: JsValue,
+    scale: f64,
+) -> Result<(), JsError> {
+    let chart: WaveformChart = from_js(chart, "waveform chart")?;
+    let root = plotters::prelude::IntoDrawingArea::into_drawing_area(canvas_backend(canvas)?);
+    plots::draw_waveforms(&root, &chart, scale).map_err(|e| JsError::new(&e))
+}
+
+/// The waveform chart as SVG text, `width` × `height` user units, for print.
+#[wasm_bindgen]
+pub fn waveform_chart_svg(chart: JsValue, width: u32, height: u32) -> Result<String, JsError> {
+    let chart: WaveformChart = from_js(chart, "waveform chart")?;
+    plots::waveforms_svg(&chart, width, height).map_err(|e| JsError::new(&e))
+}
+
+/// Draws a chain's timing diagram on a canvas sized CSS size × `scale`. Main thread only.
+#[wasm_bindgen]
+pub fn draw_timing_diagram(
+    canvas: web_sys::HtmlCanvasElement,
+    diagram: JsValue,
+    scale: f64,
+) -> Result<(), JsError> {
+    let diagram: TimingDiagram = from_js(diagram, "timing diagram")?;
+    let root = plotters::prelude::IntoDrawingArea::into_drawing_area(canvas_backend(canvas)?);
+    plots::draw_timing_diagram(&root, &diagram, scale).map_err(|e| JsError::new(&e))
+}
+
+/// The timing diagram as SVG text, for print.
+#[wasm_bindgen]
+pub fn timing_diagram_svg(diagram: JsValue, width: u32, height: u32) -> Result<String, JsError> {
+    let diagram: TimingDiagram = from_js(diagram, "timing diagram")?;
+    plots::timing_diagram_svg(&diagram, width, height).map_err(|e| JsError::new(&e))
+}
+
 /// The bridge's version, shown in the page footer and printout.
 #[wasm_bindgen]
 pub fn version() -> String {
@@ -191,6 +451,72 @@ mod tests {
             Some(paths) => assert!(paths.iter().any(|p| p == "supplies.collector_supply_v"), "{paths:?}"),
             None => unreachable!("expected field errors"),
         }
+    }
+
+    fn demo_with_values() -> String {
+        let Outcome::Ok(view) = synthesise_text(&demo_design()) else {
+            unreachable!("demo synthesis must succeed")
+        };
+        view.analysis.design_json
+    }
+
+    #[test]
+    fn demo_verification_passes_and_brings_five_decimated_traces() {
+        let mut calls = Vec::new();
+        let outcome = verify_text(&demo_with_values(), Some(r#"{"measure": false}"#), &mut |p| {
+            calls.push(p);
+            true
+        });
+        let Outcome::Ok(view) = outcome else { unreachable!("the demo verifies") };
+        assert!(view.verification.nominal.correct, "{:?}", view.verification.nominal.observed);
+        assert_eq!(calls.len(), 1, "one progress call before the one run: {calls:?}");
+        let run = &view.chart.run;
+        assert_eq!(run.traces.len(), 5, "input, two collectors, two bases");
+        assert!(run.buckets > 0 && run.buckets <= traces::MAX_BUCKETS);
+        assert!(run.traces.iter().all(|t| t.min_v.len() == run.buckets && t.max_v.len() == run.buckets));
+        assert_eq!(view.chart.panels.iter().map(|p| p.traces.len()).collect::<Vec<_>>(), [1, 2, 2]);
+    }
+
+    #[test]
+    fn a_pnp_stage_is_charted_in_its_real_polarity() {
+        let text = demo_design().replace("\"si-npn-switch-40v\"", "\"ge-pnp-alloy-15v\"");
+        let Outcome::Ok(synthesised) = synthesise_text(&text) else { unreachable!("the PNP demo synthesises") };
+        let outcome = verify_text(&synthesised.analysis.design_json, Some(r#"{"measure": false}"#), &mut |_| true);
+        let Outcome::Ok(view) = outcome else { unreachable!("the PNP demo verifies") };
+        assert_eq!(view.polarity_sign, -1.0);
+        let input = &view.chart.run.traces[0];
+        let collector = &view.chart.run.traces[1];
+        // The NPN-frame pulse steps down from 0 V; the PNP stage's real input steps up, and its
+        // collectors sit between 0 V and the negative supply.
+        assert!(input.max_v.iter().copied().fold(f64::MIN, f64::max) > 1.0, "input steps up");
+        assert!(collector.min_v.iter().copied().fold(f64::MAX, f64::min) < -1.0, "collector goes negative");
+        assert!(view.assumptions.iter().any(|a| a.contains("NPN mirror")));
+    }
+
+    #[test]
+    fn a_progress_answer_of_false_cancels() {
+        let outcome = verify_text(&demo_with_values(), None, &mut |_| false);
+        let Outcome::Failed { message } = outcome else { unreachable!("cancelled") };
+        assert!(message.contains("cancelled"), "{message}");
+    }
+
+    #[test]
+    fn a_misspelt_option_is_refused_by_path() {
+        let outcome =
+            verify_text(&demo_with_values(), Some(r#"{"search": {"edges_per_rum": 3}}"#), &mut |_| true);
+        let Outcome::Invalid { errors } = outcome else { unreachable!("refused") };
+        assert_eq!(errors.first().map(|e| e.path.as_str()), Some("options.search.edges_per_rum"));
+    }
+
+    #[test]
+    fn two_stage_chain_counts_to_three_and_back_with_a_lane_per_stage() {
+        let Outcome::Ok(view) = verify_chain_text(&demo_with_values(), 2, 4) else {
+            unreachable!("the chain verifies")
+        };
+        assert_eq!(view.check.observed, [Some(1), Some(2), Some(3), Some(0)]);
+        let lanes: Vec<&str> = view.diagram.run.traces.iter().map(|t| t.label.as_str()).collect();
+        assert_eq!(lanes, ["input", "stage 1 · bit 0", "stage 2 · bit 1"]);
+        assert_eq!(view.diagram.edge_times_s.len(), 5);
     }
 
     fn check_outcome(text: &str) -> Option<Vec<String>> {

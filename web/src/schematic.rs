@@ -352,7 +352,36 @@ pub fn stage_svg(design: &StageDesign) -> String {
         }
     }
     format!(
-        r#"<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 640 {height:.0}" class="schematic" role="img" aria-label="Schematic of the bistable stage"><style>line,polyline,rect,circle.body{{stroke:#222;stroke-width:1.6;fill:none}} rect{{fill:#fff}} line.plate{{stroke-width:3}} line.bar{{stroke-width:4}} .solid{{fill:#222;stroke:none}} circle.dot{{fill:#222;stroke:none}} text{{font-family:sans-serif;font-size:11px;fill:#222}} text.ref{{font-weight:bold}} text.val{{fill:#333}} text.net{{font-style:italic;fill:#0b5394}} text.rail{{font-weight:bold}} text.heading{{font-size:12px;font-weight:bold}}</style>{}</svg>"#,
+        r#"<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 640 {height:.0}" class="schematic" role="img" aria-label="Schematic of the bistable stage"><style>.schematic line,.schematic polyline,.schematic rect,.schematic circle.body{{stroke:#222;stroke-width:1.6;fill:none}} .schematic rect{{fill:#fff}} .schematic line.plate{{stroke-width:3}} .schematic line.bar{{stroke-width:4}} .schematic .solid{{fill:#222;stroke:none}} .schematic circle.dot{{fill:#222;stroke:none}} .schematic text{{font-family:sans-serif;font-size:11px;fill:#222}} .schematic text.ref{{font-weight:bold}} .schematic text.val{{fill:#333}} .schematic text.net{{font-style:italic;fill:#0b5394}} .schematic text.rail{{font-weight:bold}} .schematic text.heading{{font-size:12px;font-weight:bold}}</style>{}</svg>"#,
         s.body
     )
+}
+
+#[cfg(test)]
+mod tests {
+    use flipwright::design_file::DesignFile;
+
+    /// Regression: the schematic's unscoped `line, polyline, text` rules once restyled every
+    /// other SVG on the page (the printed charts came out black, in the schematic's font).
+    #[test]
+    fn style_rules_apply_to_the_schematic_only() {
+        let mut file = DesignFile::demo();
+        let input = file.synthesis_input().unwrap_or_else(|e| unreachable!("{e:?}"));
+        let outcome =
+            flipwright::stage::synthesis::synthesise(&input).unwrap_or_else(|e| unreachable!("{e}"));
+        file.values = Some(outcome.values);
+        let design = file
+            .stage_input(None)
+            .and_then(flipwright::stage::StageDesign::new)
+            .unwrap_or_else(|e| unreachable!("{e:?}"));
+        let svg = super::stage_svg(&design);
+        let style = svg.split("<style>").nth(1).and_then(|s| s.split("</style>").next()).unwrap_or("");
+        assert!(!style.is_empty(), "the schematic has its style element");
+        for rule in style.split('}').map(str::trim).filter(|r| !r.is_empty()) {
+            let selectors = rule.split('{').next().unwrap_or("");
+            for selector in selectors.split(',') {
+                assert!(selector.trim().starts_with(".schematic "), "unscoped selector {selector:?}");
+            }
+        }
+    }
 }

@@ -242,9 +242,15 @@ pub fn build_page(test_hooks: bool) -> Result<PathBuf, String> {
     if glue.contains("</script") {
         return Err("the generated glue contains </script>; cannot inline it".to_string());
     }
+    // The worker's handler, also text/plain: the page puts glue and handler in one Blob.
+    let worker = www("worker.js")?;
+    if worker.contains("</script") {
+        return Err("www/worker.js contains </script>; cannot inline it".to_string());
+    }
     let page = template
         .replace("/*@STYLE@*/", &www("style.css")?)
         .replace("/*@GLUE@*/", &glue)
+        .replace("/*@WORKER@*/", &worker)
         .replace("/*@WASM@*/", &base64(&wasm_bytes))
         .replace("/*@APP@*/", &www("app.js")?);
     let out_dir = root().join("out");
@@ -324,6 +330,8 @@ fn browser_tests() -> Result<(), String> {
 
 fn bench() -> Result<(), String> {
     run("cargo", &["bench", "-p", "flipwright-core"])?;
+    // The page bench compares the browser's verification with the native CLI's.
+    run("cargo", &["build", "--release", "--quiet", "-p", "flipwright-cli"])?;
     ensure_browser()?;
     let page = build_page(false)?;
     let dir = browser_test_dir()?;
@@ -332,6 +340,7 @@ fn bench() -> Result<(), String> {
         .arg("page-bench.mjs")
         .current_dir(&dir)
         .env("FLIPWRIGHT_PAGE", &page)
+        .env("FLIPWRIGHT_CLI", cli_path())
         .status()
         .map_err(|e| format!("cannot start node: {e}"))?;
     if status.success() {

@@ -189,6 +189,14 @@ pub fn verify_stage(
     ))
 }
 
+/// The pulse the first stage of a chain sees in service: the design's rate and its available
+/// trigger amplitude (the requirement, or the swing of an identical driving stage), with
+/// `edge_s` edges. Front ends pass it to [`verify_chain`].
+pub fn service_pulse(design: &StageDesign, edge_s: f64) -> Result<InputPulse, VerifyError> {
+    let report = analyse(design).map_err(|e| VerifyError::Analysis(e.to_string()))?;
+    Ok(design_pulse(design, report.switching.available_trigger_amplitude_v, edge_s))
+}
+
 /// Verifies a ripple chain of `stages` copies of the stage: `edges` input edges at the
 /// design's rate and amplitude, the count checked after each.
 pub fn verify_chain(
