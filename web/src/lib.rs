@@ -271,7 +271,7 @@ fn verify_chain_text(design_json: &str, stages: usize, edges: usize) -> Outcome<
                 .stages
                 .iter()
                 .enumerate()
-                .map(|(k, stage)| (stage.collectors[0].clone(), format!("stage {} · bit {k}", k + 1))),
+                .map(|(k, stage)| (stage.output().to_string(), format!("stage {} · bit {k}", k + 1))),
         )
         .collect();
     let diagram = TimingDiagram {
@@ -480,8 +480,11 @@ mod tests {
     #[test]
     fn a_pnp_stage_is_charted_in_its_real_polarity() {
         let text = demo_design().replace("\"si-npn-switch-40v\"", "\"ge-pnp-alloy-15v\"");
-        let Outcome::Ok(synthesised) = synthesise_text(&text) else { unreachable!("the PNP demo synthesises") };
-        let outcome = verify_text(&synthesised.analysis.design_json, Some(r#"{"measure": false}"#), &mut |_| true);
+        let Outcome::Ok(synthesised) = synthesise_text(&text) else {
+            unreachable!("the PNP demo synthesises")
+        };
+        let outcome =
+            verify_text(&synthesised.analysis.design_json, Some(r#"{"measure": false}"#), &mut |_| true);
         let Outcome::Ok(view) = outcome else { unreachable!("the PNP demo verifies") };
         assert_eq!(view.polarity_sign, -1.0);
         let input = &view.chart.run.traces[0];

@@ -184,6 +184,13 @@ pub struct StageNodes {
     pub input: String,
 }
 
+impl StageNodes {
+    /// The stage's output Q (Q2's collector): high is bit 1.
+    pub fn output(&self) -> &str {
+        &self.collectors[1]
+    }
+}
+
 /// A circuit ready to simulate, with the names a measurement needs.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BuiltCircuit {
@@ -473,7 +480,7 @@ pub fn chain_circuit_with_feedback(
     let mut nodes: Vec<StageNodes> = Vec::new();
     for index in 0..stages {
         let prefix = if stages == 1 { String::new() } else { format!("s{}.", index + 1) };
-        let input = nodes.last().map(|n| n.collectors[1].clone()).unwrap_or_else(|| "in".to_string());
+        let input = nodes.last().map(|n| n.output().to_string()).unwrap_or_else(|| "in".to_string());
         let stage = add_stage(&mut builder, &mut hints, design, &shared, &prefix, &input);
         nodes.push(stage);
     }
