@@ -5,7 +5,7 @@ use serde::{Deserialize, Serialize};
 
 use super::circuit::Circuit;
 use super::error::SimulationError;
-use super::linear::{DenseSolver, LinearSolver};
+use super::linear::{AutomaticSolver, LinearSolver};
 use super::operating_point::{
     default_tolerances, solve_operating_point, OperatingPointHints, OperatingPointMethod,
 };
@@ -145,13 +145,13 @@ impl TransientResult {
     }
 }
 
-/// Transient run with the dense solver.
+/// Transient run with the automatic choice of linear solver (dense for small systems).
 pub fn simulate(
     circuit: &Circuit,
     settings: &TransientSettings,
     hints: &OperatingPointHints,
 ) -> Result<TransientResult, SimulationError> {
-    simulate_with(circuit, settings, hints, &mut DenseSolver::default())
+    simulate_with(circuit, settings, hints, &mut AutomaticSolver::default())
 }
 
 /// Third (or second) divided difference of a charge over the last points, for the error

@@ -573,7 +573,8 @@ impl System {
         for iteration in 1..=tolerances.max_iterations {
             let rhs =
                 self.assemble(solver, &unknowns, junctions, conditions, &mut charges, &mut charge_currents);
-            let next = solver.solve(&rhs).map_err(|e| Failure::Singular { unknown: e.column })?;
+            let mut next = rhs;
+            solver.solve_in_place(&mut next).map_err(|e| Failure::Singular { unknown: e.column })?;
             // Largest update relative to its tolerance decides convergence and names the
             // culprit when the budget runs out.
             let mut worst_ratio = 0.0;
