@@ -27,6 +27,17 @@ pub trait LinearSolver {
     /// Solves the accumulated matrix against `rhs`, which is overwritten by the solution.
     /// A right-hand side of the wrong length is padded or cut to the size.
     fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn>;
+    /// The accumulated matrix times `x` into `product`, and the sum of the magnitudes of the
+    /// terms of each row, Σ|a_ij·x_j|, into `magnitude` (the scale of a residual test). Both
+    /// are resized to the size.
+    fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>);
+}
+
+fn prepare(size: usize, product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
+    product.clear();
+    product.resize(size, 0.0);
+    magnitude.clear();
+    magnitude.resize(size, 0.0);
 }
 
 /// A pivot counts as zero below this share of the largest matrix entry (the same rule as the
@@ -61,6 +72,17 @@ impl LinearSolver for DenseSolver {
     fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
         *rhs = self.matrix.solve(rhs).map_err(|e| SingularColumn { column: e.column })?;
         Ok(())
+    }
+    fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
+        let size = self.matrix.size();
+        prepare(size, product, magnitude);
+        for (row, (p, m)) in product.iter_mut().zip(magnitude.iter_mut()).enumerate() {
+            for (column, &value) in x.iter().enumerate().take(size) {
+                let term = self.matrix.get(row, column) * value;
+                *p += term;
+                *m += term.abs();
+            }
+        }
     }
 }
 
@@ -206,8 +228,38 @@ impl SparseSolver {
         self.pattern.values.len()
     }
 
+    fn add_uncached(&mut self, index: usize, row: usize, column: usize, value: f64) {
+        if row >= self.pattern.size || column >= self.pattern.size {
+            return;
+        }
+        match self.pattern.slot(row, column) {
+            Some(slot) => {
+                if let Some(v) = self.pattern.values.get_mut(slot) {
+                    *v += value;
+                }
+                let call = CallSlot { row, column, slot };
+                if let Some(entry) = self.calls.get_mut(index) {
+                    *entry = call;
+                } else if self.calls.len() == index {
+                    self.calls.push(call);
+                }
+            }
+            None => self.outside.push((row, column, value)),
+        }
+    }
+
     pub fn statistics(&self) -> SparseStatistics {
         self.statistics
+    }
+
+    /// Stored entries of the factors (L below the diagonal, U including it) in use, or
+    /// `None` before the first factorisation: the fill the ordering left.
+    pub fn factor_entries(&self) -> Option<usize> {
+        if let Some(frozen) = &self.frozen {
+            return Some(frozen.l_rows.len() + frozen.u_rows.len() + frozen.size);
+        }
+        let numeric = self.numeric.as_ref()?;
+        Some(numeric.lu.l_factor_unsorted().compute_nnz() + numeric.lu.u_factor_unsorted().compute_nnz())
     }
 
     fn analyse(&mut self) -> Result<(), SingularColumn> {
@@ -304,12 +356,12 @@ impl LinearSolver for SparseSolver {
         self.call_index = 0;
     }
 
+    #[inline]
     fn add(&mut self, row: usize, column: usize, value: f64) {
-        if row >= self.pattern.size || column >= self.pattern.size {
-            return;
-        }
         let index = self.call_index;
-        self.call_index += 1;
+        self.call_index = index + 1;
+        // A cached call names a slot of the current pattern (the cache is cleared whenever
+        // the pattern changes), so its row and column were in range when cached.
         if let Some(call) = self.calls.get(index) {
             if call.row == row && call.column == column {
                 if let Some(v) = self.pattern.values.get_mut(call.slot) {
@@ -318,20 +370,7 @@ impl LinearSolver for SparseSolver {
                 }
             }
         }
-        match self.pattern.slot(row, column) {
-            Some(slot) => {
-                if let Some(v) = self.pattern.values.get_mut(slot) {
-                    *v += value;
-                }
-                let call = CallSlot { row, column, slot };
-                if let Some(entry) = self.calls.get_mut(index) {
-                    *entry = call;
-                } else if self.calls.len() == index {
-                    self.calls.push(call);
-                }
-            }
-            None => self.outside.push((row, column, value)),
-        }
+        self.add_uncached(index, row, column, value);
     }
 
     fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
@@ -397,6 +436,31 @@ impl LinearSolver for SparseSolver {
         match rhs.iter().position(|v| !v.is_finite()) {
             Some(column) => Err(SingularColumn { column }),
             None => Ok(()),
+        }
+    }
+
+    fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
+        let pattern = &self.pattern;
+        prepare(pattern.size, product, magnitude);
+        let mut add = |row: usize, column: usize, value: f64| {
+            let term = value * x.get(column).copied().unwrap_or(0.0);
+            if let (Some(p), Some(m)) = (product.get_mut(row), magnitude.get_mut(row)) {
+                *p += term;
+                *m += term.abs();
+            }
+        };
+        for column in 0..pattern.size {
+            let start = pattern.column_starts.get(column).copied().unwrap_or(0);
+            let end = pattern.column_starts.get(column + 1).copied().unwrap_or(start);
+            for slot in start..end {
+                if let (Some(&row), Some(&value)) = (pattern.row_indices.get(slot), pattern.values.get(slot))
+                {
+                    add(row, column, value);
+                }
+            }
+        }
+        for &(row, column, value) in &self.outside {
+            add(row, column, value);
         }
     }
 }
@@ -523,26 +587,29 @@ impl FrozenFactors {
     #[allow(clippy::indexing_slicing)]
     fn refactor(&mut self, pattern: &Pattern, scale: f64) -> Result<(), usize> {
         let work = &mut self.work;
+        let (l_rows, l_values, l_starts) = (&self.l_rows, &mut self.l_values, &self.l_starts);
         for j in 0..self.size {
             let q = self.column_order[j];
-            for slot in pattern.column_starts[q]..pattern.column_starts[q + 1] {
-                work[self.entry_steps[slot]] += pattern.values[slot];
+            let entries = pattern.column_starts[q]..pattern.column_starts[q + 1];
+            for (&step, &value) in self.entry_steps[entries.clone()].iter().zip(&pattern.values[entries]) {
+                work[step] += value;
             }
-            for p in self.u_starts[j]..self.u_starts[j + 1] {
-                let k = self.u_rows[p];
+            let uses = self.u_starts[j]..self.u_starts[j + 1];
+            for (&k, u) in self.u_rows[uses.clone()].iter().zip(&mut self.u_values[uses]) {
                 let xk = work[k];
                 work[k] = 0.0;
-                self.u_values[p] = xk;
+                *u = xk;
                 if xk != 0.0 {
-                    for t in self.l_starts[k]..self.l_starts[k + 1] {
-                        work[self.l_rows[t]] -= self.l_values[t] * xk;
+                    let column = l_starts[k]..l_starts[k + 1];
+                    for (&i, &l) in l_rows[column.clone()].iter().zip(&l_values[column]) {
+                        work[i] -= l * xk;
                     }
                 }
             }
             let pivot = work[j];
             work[j] = 0.0;
-            let below = &self.l_rows[self.l_starts[j]..self.l_starts[j + 1]];
-            let largest = below.iter().fold(0.0f64, |m, &i| m.max(work[i].abs()));
+            let column = l_starts[j]..l_starts[j + 1];
+            let largest = l_rows[column.clone()].iter().fold(0.0f64, |m, &i| m.max(work[i].abs()));
             let magnitude = pivot.abs();
             let acceptable = magnitude > scale * ZERO_PIVOT_SHARE
                 && magnitude >= FROZEN_PIVOT_SHARE * largest
@@ -554,9 +621,8 @@ impl FrozenFactors {
             }
             self.u_diagonal[j] = pivot;
             let inverse = 1.0 / pivot;
-            for t in self.l_starts[j]..self.l_starts[j + 1] {
-                let i = self.l_rows[t];
-                self.l_values[t] = work[i] * inverse;
+            for (&i, l) in l_rows[column.clone()].iter().zip(&mut l_values[column]) {
+                *l = work[i] * inverse;
                 work[i] = 0.0;
             }
         }
@@ -567,14 +633,15 @@ impl FrozenFactors {
     #[allow(clippy::indexing_slicing)]
     fn solve(&mut self, rhs: &mut [f64]) {
         let work = &mut self.work;
-        for (step, &row) in self.row_order.iter().enumerate() {
-            work[step] = rhs[row];
+        for (w, &row) in work.iter_mut().zip(&self.row_order) {
+            *w = rhs[row];
         }
         for j in 0..self.size {
             let wj = work[j];
             if wj != 0.0 {
-                for t in self.l_starts[j]..self.l_starts[j + 1] {
-                    work[self.l_rows[t]] -= self.l_values[t] * wj;
+                let column = self.l_starts[j]..self.l_starts[j + 1];
+                for (&i, &l) in self.l_rows[column.clone()].iter().zip(&self.l_values[column]) {
+                    work[i] -= l * wj;
                 }
             }
         }
@@ -582,14 +649,15 @@ impl FrozenFactors {
             let zj = work[j] / self.u_diagonal[j];
             work[j] = zj;
             if zj != 0.0 {
-                for p in self.u_starts[j]..self.u_starts[j + 1] {
-                    work[self.u_rows[p]] -= self.u_values[p] * zj;
+                let column = self.u_starts[j]..self.u_starts[j + 1];
+                for (&k, &u) in self.u_rows[column.clone()].iter().zip(&self.u_values[column]) {
+                    work[k] -= u * zj;
                 }
             }
         }
-        for (step, &column) in self.column_order.iter().enumerate() {
-            rhs[column] = work[step];
-            work[step] = 0.0;
+        for (w, &column) in work.iter_mut().zip(&self.column_order) {
+            rhs[column] = *w;
+            *w = 0.0;
         }
     }
 }
@@ -637,6 +705,13 @@ impl LinearSolver for AutomaticSolver {
             self.sparse.solve_in_place(rhs)
         } else {
             self.dense.solve_in_place(rhs)
+        }
+    }
+    fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
+        if self.use_sparse {
+            self.sparse.multiply(x, product, magnitude);
+        } else {
+            self.dense.multiply(x, product, magnitude);
         }
     }
 }
