@@ -92,10 +92,11 @@ fn case<S: LinearSolver>(
     let last_toggles = output_edges(built, &result).len();
     let attempts = stats.accepted_steps + stats.rejected_steps;
     println!(
-        "  {label}: accepted {} steps, rejected {} ({:.1} %), {:.2} Newton iterations per accepted step; count right after every edge: {}; last-stage output edges {last_toggles}",
+        "  {label}: accepted {} steps, rejected {} ({:.1} %; {} of them Newton failures), {:.2} Newton iterations per accepted step; count right after every edge: {}; last-stage output edges {last_toggles}",
         stats.accepted_steps,
         stats.rejected_steps,
         100.0 * stats.rejected_steps as f64 / attempts.max(1) as f64,
+        stats.newton_failures,
         stats.newton_iterations as f64 / stats.accepted_steps.max(1) as f64,
         if check.correct { "yes".to_string() } else { format!("NO (first wrong after edge {:?})", check.first_error) },
     );
@@ -190,7 +191,12 @@ fn main() {
             _ => {
                 let mut solver = SparseSolver::default();
                 let result = run(&built, edges, &RunAccuracy::default(), &mut solver);
-                println!("{:?}", solver.statistics());
+                println!(
+                    "{:?}; pattern {} entries, factors {:?}",
+                    solver.statistics(),
+                    solver.pattern_entries(),
+                    solver.factor_entries()
+                );
                 result
             }
         };
