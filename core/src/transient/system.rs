@@ -113,6 +113,14 @@ pub(crate) struct NewtonTolerances {
     pub max_iterations: usize,
 }
 
+/// What one assembly produces besides the matrix: the right-hand side, and the charges and
+/// charge currents at the linearisation point.
+struct Linearised {
+    rhs: Vec<f64>,
+    charges: Vec<f64>,
+    charge_currents: Vec<f64>,
+}
+
 /// A converged solve.
 #[derive(Debug, Clone)]
 pub(crate) struct Solved {
@@ -402,17 +410,16 @@ impl System {
     }
 
     /// Stamps the system linearised at `junctions` (already limited) and `unknowns`;
-    /// returns the right-hand side and fills charges and charge currents.
+    /// fills the right-hand side, the charges and the charge currents of `out`.
     fn assemble<S: LinearSolver>(
         &self,
         solver: &mut S,
         unknowns: &[f64],
         junctions: &[f64],
         conditions: &Conditions,
-        charges: &mut [f64],
-        charge_currents: &mut [f64],
-        rhs: &mut Vec<f64>,
+        out: &mut Linearised,
     ) {
+        let Linearised { rhs, charges, charge_currents } = out;
         let size = self.size();
         solver.reset(size);
         rhs.clear();
@@ -581,9 +588,11 @@ impl System {
         let mut unknowns = start.to_vec();
         unknowns.resize(size, 0.0);
         junctions.resize(self.junction_count, 0.0);
-        let mut charges = vec![0.0; self.charge_count];
-        let mut charge_currents = vec![0.0; self.charge_count];
-        let mut rhs = Vec::with_capacity(size);
+        let mut out = Linearised {
+            rhs: Vec::with_capacity(size),
+            charges: vec![0.0; self.charge_count],
+            charge_currents: vec![0.0; self.charge_count],
+        };
         let mut next = Vec::with_capacity(size);
         let mut product = vec![0.0; size];
         let mut magnitude = vec![0.0; size];
@@ -591,9 +600,9 @@ impl System {
         let mut worst = (0, f64::INFINITY);
         self.junction_voltages_into(&unknowns, &mut proposed);
         let mut limited = self.limit_junctions(&proposed, junctions);
-        self.assemble(solver, &unknowns, junctions, conditions, &mut charges, &mut charge_currents, &mut rhs);
+        self.assemble(solver, &unknowns, junctions, conditions, &mut out);
         for iteration in 1..=tolerances.max_iterations {
-            next.clone_from(&rhs);
+            next.clone_from(&out.rhs);
             solver.solve_in_place(&mut next).map_err(|e| Failure::Singular { unknown: e.column })?;
             // Largest update relative to its tolerance decides convergence and names the
             // culprit when the budget runs out.
@@ -621,18 +630,10 @@ impl System {
             limited = self.limit_junctions(&proposed, junctions);
             // Linearised at the new point (at its exact junction voltages when none was
             // limited): the next iteration's system, and the charges of the solution.
-            self.assemble(
-                solver,
-                &unknowns,
-                junctions,
-                conditions,
-                &mut charges,
-                &mut charge_currents,
-                &mut rhs,
-            );
+            self.assemble(solver, &unknowns, junctions, conditions, &mut out);
             if small_update && !limited {
                 solver.multiply(&unknowns, &mut product, &mut magnitude);
-                let balanced = product.iter().zip(&magnitude).zip(&rhs).enumerate().all(
+                let balanced = product.iter().zip(&magnitude).zip(&out.rhs).enumerate().all(
                     |(index, ((&ax, &terms), &b))| {
                         let absolute =
                             if index < node_count { tolerances.current_a } else { tolerances.voltage_v };
@@ -640,6 +641,7 @@ impl System {
                     },
                 );
                 if balanced {
+                    let Linearised { charges, charge_currents, .. } = out;
                     return Ok(Solved { unknowns, charges, charge_currents, iterations: iteration });
                 }
             }
