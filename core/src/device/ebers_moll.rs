@@ -64,6 +64,12 @@ pub struct BjtOperatingPoint {
     pub dic_dvbc: f64,
     pub dib_dvbe: f64,
     pub dib_dvbc: f64,
+    /// The junction diffusion currents IF = IS·(e^(VBE/VT) − 1), IR = IS·(e^(VBC/VT) − 1) and
+    /// their derivatives: the transient engine's diffusion charges are τF·IF and τR·IR.
+    pub forward_current_a: f64,
+    pub reverse_current_a: f64,
+    pub forward_conductance_s: f64,
+    pub reverse_conductance_s: f64,
 }
 
 /// Exponential with a linear continuation beyond [`EXP_LIMIT`]; returns (value, derivative).
@@ -233,8 +239,9 @@ impl EbersMoll {
         // Leakage from collector to base: saturating in reverse bias, smooth through zero.
         let vcb = -vbc;
         let leak_arg = vcb / (2.0 * vt);
-        let leakage = self.leakage_a * leak_arg.tanh();
-        let d_leakage_dvbc = -self.leakage_a / (2.0 * vt) * (1.0 - leak_arg.tanh().powi(2));
+        let leak_tanh = leak_arg.tanh();
+        let leakage = self.leakage_a * leak_tanh;
+        let d_leakage_dvbc = -self.leakage_a / (2.0 * vt) * (1.0 - leak_tanh * leak_tanh);
         let inv_beta_r = 1.0 / self.beta_reverse;
         BjtOperatingPoint {
             collector_current_a: forward - reverse * (1.0 + inv_beta_r) + leakage,
@@ -243,6 +250,10 @@ impl EbersMoll {
             dic_dvbc: -g_reverse * (1.0 + inv_beta_r) + d_leakage_dvbc,
             dib_dvbe: g_forward / self.beta_forward,
             dib_dvbc: g_reverse * inv_beta_r - d_leakage_dvbc,
+            forward_current_a: forward,
+            reverse_current_a: reverse,
+            forward_conductance_s: g_forward,
+            reverse_conductance_s: g_reverse,
         }
     }
 }

@@ -5,7 +5,7 @@ use serde::{Deserialize, Serialize};
 
 use super::circuit::Circuit;
 use super::error::SimulationError;
-use super::linear::{DenseSolver, LinearSolver};
+use super::linear::{AutomaticSolver, LinearSolver};
 use super::operating_point::{
     default_tolerances, solve_operating_point, OperatingPointHints, OperatingPointMethod,
 };
@@ -114,7 +114,10 @@ impl TransientSettings {
 #[derive(Debug, Clone, Copy, Default, PartialEq, Serialize)]
 pub struct RunStatistics {
     pub accepted_steps: usize,
+    /// Every rejected step: for truncation error, or because Newton did not converge.
     pub rejected_steps: usize,
+    /// Those of the rejected steps whose Newton solve did not converge.
+    pub newton_failures: usize,
     pub newton_iterations: usize,
 }
 
@@ -145,26 +148,30 @@ impl TransientResult {
     }
 }
 
-/// Transient run with the dense solver.
+/// Transient run with the automatic choice of linear solver (dense for small systems).
 pub fn simulate(
     circuit: &Circuit,
     settings: &TransientSettings,
     hints: &OperatingPointHints,
 ) -> Result<TransientResult, SimulationError> {
-    simulate_with(circuit, settings, hints, &mut DenseSolver::default())
+    simulate_with(circuit, settings, hints, &mut AutomaticSolver::default())
 }
 
 /// Third (or second) divided difference of a charge over the last points, for the error
-/// estimate. `points` holds (time, charge), oldest first.
+/// estimate. `points` holds (time, charge), oldest first; at most four are used.
 fn divided_difference(points: &[(f64, f64)]) -> f64 {
-    let mut values: Vec<f64> = points.iter().map(|p| p.1).collect();
-    for level in 1..points.len() {
-        for i in 0..points.len() - level {
+    let count = points.len().min(4);
+    let mut values = [0.0; 4];
+    for (value, point) in values.iter_mut().zip(points) {
+        *value = point.1;
+    }
+    for level in 1..count {
+        for i in 0..count - level {
             let span = points[i + level].0 - points[i].0;
             values[i] = if span > 0.0 { (values[i + 1] - values[i]) / span } else { 0.0 };
         }
     }
-    values.first().copied().unwrap_or(0.0)
+    values[0]
 }
 
 /// Transient run with any [`LinearSolver`].
@@ -201,6 +208,10 @@ pub fn simulate_with<S: LinearSolver>(
     };
     let mut time = 0.0;
     let mut unknowns = op.unknowns;
+    // The accepted point before the last one, while both lie on one smooth stretch (since
+    // the last restart): the start of each Newton solve is extrapolated through the two.
+    let mut previous: Option<(f64, Vec<f64>)> = None;
+    let mut start = Vec::with_capacity(unknowns.len());
     let mut charges = op.charges;
     // At the operating point no charge changes.
     let mut charge_currents = vec![0.0; charges.len()];
@@ -241,8 +252,17 @@ pub fn simulate_with<S: LinearSolver>(
             previous_charge_currents: &charge_currents,
             pulls: &[],
         };
+        start.clone_from(&unknowns);
+        if let Some((previous_time, previous_unknowns)) = previous.as_ref().filter(|_| !restarting) {
+            let ratio = h / (time - previous_time);
+            if ratio.is_finite() {
+                for (s, &old) in start.iter_mut().zip(previous_unknowns) {
+                    *s += ratio * (*s - old);
+                }
+            }
+        }
         let mut trial_junctions = junctions.clone();
-        let solved = match system.newton(solver, &unknowns, &mut trial_junctions, &conditions, tolerances) {
+        let solved = match system.newton(solver, &start, &mut trial_junctions, &conditions, tolerances) {
             Ok(solved) => solved,
             Err(Failure::Singular { unknown }) => {
                 return Err(SimulationError::Singular {
@@ -253,6 +273,7 @@ pub fn simulate_with<S: LinearSolver>(
             Err(Failure::NotConverged { unknown, iterations, .. }) => {
                 result.statistics.newton_iterations += iterations;
                 result.statistics.rejected_steps += 1;
+                result.statistics.newton_failures += 1;
                 step = h * NEWTON_FAILURE_SHRINK;
                 if step < min_step {
                     return Err(SimulationError::NonConvergence {
@@ -273,16 +294,20 @@ pub fn simulate_with<S: LinearSolver>(
             let use_third = history.len() >= 3 && trapezoidal;
             order = if use_third { 2.0 } else { 1.0 };
             let first = if use_third { history.len() - 3 } else { history.len() - 2 };
+            let past = history.get(first..).unwrap_or(&[]);
             for slot in 0..solved.charges.len() {
-                let mut points: Vec<(f64, f64)> = history
-                    .get(first..)
-                    .unwrap_or(&[])
-                    .iter()
-                    .map(|(t, q)| (*t, q.get(slot).copied().unwrap_or(0.0)))
-                    .collect();
+                let mut points = [(0.0, 0.0); 4];
+                let mut count = 0;
+                for ((t, q), point) in past.iter().zip(points.iter_mut()) {
+                    *point = (*t, q.get(slot).copied().unwrap_or(0.0));
+                    count += 1;
+                }
                 let new_charge = solved.charges.get(slot).copied().unwrap_or(0.0);
-                points.push((new_time, new_charge));
-                let dd = divided_difference(&points);
+                if let Some(point) = points.get_mut(count) {
+                    *point = (new_time, new_charge);
+                    count += 1;
+                }
+                let dd = divided_difference(&points[..count]);
                 let error = if use_third { h.powi(3) * dd.abs() / 2.0 } else { h.powi(2) * dd.abs() };
                 let old_charge = charges.get(slot).copied().unwrap_or(0.0);
                 let allowed = settings.relative_tolerance * new_charge.abs().max(old_charge.abs())
@@ -304,9 +329,11 @@ pub fn simulate_with<S: LinearSolver>(
         }
         // Accept.
         result.statistics.accepted_steps += 1;
+        let time_before_step = time;
         time = new_time;
         junctions = trial_junctions;
-        unknowns = solved.unknowns;
+        let before = std::mem::replace(&mut unknowns, solved.unknowns);
+        previous = Some((time_before_step, before));
         charges = solved.charges;
         charge_currents = solved.charge_currents;
         result.time_s.push(time);
@@ -326,6 +353,7 @@ pub fn simulate_with<S: LinearSolver>(
             // A source corner: the charges' derivatives jump, so the old points no longer
             // describe a smooth curve. Restart with backward Euler and a small step.
             history.clear();
+            previous = None;
             history.push((time, charges.clone()));
         } else {
             history.push((time, charges.clone()));

@@ -1,8 +1,16 @@
-//! The linear solver behind one trait, so a sparse LU can replace the dense one.
+//! The linear solver behind one trait: dense LU for small systems, sparse LU (faer, with the
+//! fill-reducing ordering computed once per pattern) for large ones, and the automatic choice.
+
+use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
+use faer::perm::PermRef;
+use faer::sparse::linalg::lu::{factorize_symbolic_lu, simplicial, LuSymbolicParams};
+use faer::sparse::linalg::{LuError, SupernodalThreshold};
+use faer::sparse::{SparseColMatRef, SymbolicSparseColMatRef};
+use faer::{Conj, MatMut, Par};
 
 use crate::numeric::DenseMatrix;
 
-/// Occurs when factorisation finds no usable pivot in `column`.
+/// Occurs when factorisation finds no usable pivot in `column` (an unknown's index).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SingularColumn {
     pub column: usize,
@@ -16,9 +24,25 @@ pub trait LinearSolver {
     fn reset(&mut self, size: usize);
     /// Adds `value` to entry (row, column). Out-of-range indices are ignored.
     fn add(&mut self, row: usize, column: usize, value: f64);
-    /// Solves the accumulated matrix against `rhs`.
-    fn solve(&mut self, rhs: &[f64]) -> Result<Vec<f64>, SingularColumn>;
+    /// Solves the accumulated matrix against `rhs`, which is overwritten by the solution.
+    /// A right-hand side of the wrong length is padded or cut to the size.
+    fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn>;
+    /// The accumulated matrix times `x` into `product`, and the sum of the magnitudes of the
+    /// terms of each row, Σ|a_ij·x_j|, into `magnitude` (the scale of a residual test). Both
+    /// are resized to the size.
+    fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>);
 }
+
+fn prepare(size: usize, product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
+    product.clear();
+    product.resize(size, 0.0);
+    magnitude.clear();
+    magnitude.resize(size, 0.0);
+}
+
+/// A pivot counts as zero below this share of the largest matrix entry (the same rule as the
+/// dense elimination: only a vanished pivot is singular; ill-conditioning is Newton's to see).
+const ZERO_PIVOT_SHARE: f64 = 1e-300;
 
 /// Dense LU with partial pivoting; right for the tens of unknowns of a stage or a short chain.
 #[derive(Debug, Clone)]
@@ -45,7 +69,816 @@ impl LinearSolver for DenseSolver {
             self.matrix.add(row, column, value);
         }
     }
-    fn solve(&mut self, rhs: &[f64]) -> Result<Vec<f64>, SingularColumn> {
-        self.matrix.solve(rhs).map_err(|e| SingularColumn { column: e.column })
+    fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
+        *rhs = self.matrix.solve(rhs).map_err(|e| SingularColumn { column: e.column })?;
+        Ok(())
+    }
+    fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
+        let size = self.matrix.size();
+        prepare(size, product, magnitude);
+        for (row, (p, m)) in product.iter_mut().zip(magnitude.iter_mut()).enumerate() {
+            for (column, &value) in x.iter().enumerate().take(size) {
+                let term = self.matrix.get(row, column) * value;
+                *p += term;
+                *m += term.abs();
+            }
+        }
+    }
+}
+
+/// Where one `add` call of the assembly landed last time: the stamp order of a circuit is the
+/// same at every Newton iteration, so the k-th call nearly always hits the k-th slot again.
+#[derive(Debug, Clone, Copy)]
+struct CallSlot {
+    row: usize,
+    column: usize,
+    slot: usize,
+}
+
+/// The compressed-column pattern and values being assembled.
+#[derive(Debug, Clone, Default)]
+struct Pattern {
+    size: usize,
+    column_starts: Vec<usize>,
+    row_indices: Vec<usize>,
+    values: Vec<f64>,
+}
+
+impl Pattern {
+    fn slot(&self, row: usize, column: usize) -> Option<usize> {
+        let start = *self.column_starts.get(column)?;
+        let end = *self.column_starts.get(column + 1)?;
+        let rows = self.row_indices.get(start..end)?;
+        rows.binary_search(&row).ok().map(|offset| start + offset)
+    }
+
+    /// The union of the current pattern and `extra`, with values summed.
+    fn merged(&self, extra: &[(usize, usize, f64)]) -> Pattern {
+        let mut entries: Vec<(usize, usize, f64)> = Vec::with_capacity(self.values.len() + extra.len());
+        for column in 0..self.size {
+            let start = self.column_starts.get(column).copied().unwrap_or(0);
+            let end = self.column_starts.get(column + 1).copied().unwrap_or(start);
+            for slot in start..end {
+                if let (Some(&row), Some(&value)) = (self.row_indices.get(slot), self.values.get(slot)) {
+                    entries.push((column, row, value));
+                }
+            }
+        }
+        entries.extend(extra.iter().map(|&(row, column, value)| (column, row, value)));
+        entries.sort_by_key(|entry| (entry.0, entry.1));
+        let mut merged = Pattern {
+            size: self.size,
+            column_starts: vec![0; self.size + 1],
+            row_indices: Vec::with_capacity(entries.len()),
+            values: Vec::with_capacity(entries.len()),
+        };
+        let mut last: Option<(usize, usize)> = None;
+        for (column, row, value) in entries {
+            if last == Some((column, row)) {
+                if let Some(v) = merged.values.last_mut() {
+                    *v += value;
+                }
+                continue;
+            }
+            last = Some((column, row));
+            merged.row_indices.push(row);
+            merged.values.push(value);
+            if let Some(count) = merged.column_starts.get_mut(column + 1) {
+                *count += 1;
+            }
+        }
+        for column in 0..self.size {
+            let before = merged.column_starts.get(column).copied().unwrap_or(0);
+            if let Some(count) = merged.column_starts.get_mut(column + 1) {
+                *count += before;
+            }
+        }
+        merged
+    }
+}
+
+/// The fill-reducing column ordering of one pattern and the workspace of its factorisations.
+struct Symbolic {
+    column_order: Vec<usize>,
+    column_order_inverse: Vec<usize>,
+    workspace: MemBuffer,
+}
+
+/// The numeric factors: L, U and the row pivots chosen by partial pivoting.
+struct Numeric {
+    lu: simplicial::SimplicialLu<usize, f64>,
+    row_order: Vec<usize>,
+    row_order_inverse: Vec<usize>,
+}
+
+/// Counts of a [`SparseSolver`]'s work, for tests and benchmarks.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct SparseStatistics {
+    /// Fill-reducing orderings computed (once per new pattern).
+    pub symbolic_analyses: usize,
+    /// Factorisations with partial pivoting (faer).
+    pub pivoting_factorisations: usize,
+    /// Factorisations that reused the previous pivots and pattern.
+    pub frozen_refactorisations: usize,
+    /// Frozen refactorisations abandoned for a tiny or non-finite pivot (each followed by a
+    /// pivoting factorisation).
+    pub fallbacks: usize,
+}
+
+/// Sparse LU. The pattern is learnt from the stamps: entries outside it are collected and
+/// merged at the next solve, and only then is the column ordering (COLAMD) computed again, so
+/// a circuit pays for it once or twice per run (the operating point adds hint entries), not
+/// once per Newton iteration. The first factorisation of a pattern pivots (faer's simplicial
+/// kernel); later ones reuse its pivots and fill pattern ([`FrozenFactors`]) until a pivot
+/// becomes too small, when they pivot afresh.
+#[derive(Default)]
+pub struct SparseSolver {
+    pattern: Pattern,
+    calls: Vec<CallSlot>,
+    call_index: usize,
+    /// (row, column, value) of entries outside the pattern since the last reset.
+    outside: Vec<(usize, usize, f64)>,
+    symbolic: Option<Symbolic>,
+    numeric: Option<Numeric>,
+    frozen: Option<FrozenFactors>,
+    /// Pivot afresh at every solve (faer only), for comparison.
+    always_pivot: bool,
+    statistics: SparseStatistics,
+}
+
+impl std::fmt::Debug for SparseSolver {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("SparseSolver")
+            .field("size", &self.pattern.size)
+            .field("entries", &self.pattern.values.len())
+            .field("statistics", &self.statistics)
+            .finish()
+    }
+}
+
+impl SparseSolver {
+    /// A solver that pivots afresh at every solve (no frozen refactorisation): slower, kept
+    /// to compare against and to check the frozen kernel.
+    pub fn always_pivoting() -> SparseSolver {
+        SparseSolver { always_pivot: true, ..SparseSolver::default() }
+    }
+
+    /// Number of stored entries of the learnt pattern.
+    pub fn pattern_entries(&self) -> usize {
+        self.pattern.values.len()
+    }
+
+    fn add_uncached(&mut self, index: usize, row: usize, column: usize, value: f64) {
+        if row >= self.pattern.size || column >= self.pattern.size {
+            return;
+        }
+        match self.pattern.slot(row, column) {
+            Some(slot) => {
+                if let Some(v) = self.pattern.values.get_mut(slot) {
+                    *v += value;
+                }
+                let call = CallSlot { row, column, slot };
+                if let Some(entry) = self.calls.get_mut(index) {
+                    *entry = call;
+                } else if self.calls.len() == index {
+                    self.calls.push(call);
+                }
+            }
+            None => self.outside.push((row, column, value)),
+        }
+    }
+
+    pub fn statistics(&self) -> SparseStatistics {
+        self.statistics
+    }
+
+    /// Stored entries of the factors (L below the diagonal, U including it) in use, or
+    /// `None` before the first factorisation: the fill the ordering left.
+    pub fn factor_entries(&self) -> Option<usize> {
+        if let Some(frozen) = &self.frozen {
+            return Some(frozen.l_rows.len() + frozen.u_rows.len() + frozen.size);
+        }
+        let numeric = self.numeric.as_ref()?;
+        Some(numeric.lu.l_factor_unsorted().compute_nnz() + numeric.lu.u_factor_unsorted().compute_nnz())
+    }
+
+    fn analyse(&mut self) -> Result<(), SingularColumn> {
+        let size = self.pattern.size;
+        let matrix = SymbolicSparseColMatRef::new_checked(
+            size,
+            size,
+            &self.pattern.column_starts,
+            None,
+            &self.pattern.row_indices,
+        );
+        let params = LuSymbolicParams {
+            supernodal_flop_ratio_threshold: SupernodalThreshold::FORCE_SIMPLICIAL,
+            ..LuSymbolicParams::default()
+        };
+        // Out of memory is the only failure here; it has no column, so the first is named.
+        let symbolic = factorize_symbolic_lu(matrix, params).map_err(|_| SingularColumn { column: 0 })?;
+        let (forward, inverse) = symbolic.col_perm().arrays();
+        let requirement = StackReq::any_of(&[
+            simplicial::factorize_simplicial_numeric_lu_scratch::<usize, f64>(size, size),
+            simplicial::solve_in_place_scratch::<usize, f64>(size, 1, Par::Seq),
+        ]);
+        let workspace = MemBuffer::try_new(requirement).map_err(|_| SingularColumn { column: 0 })?;
+        self.symbolic = Some(Symbolic {
+            column_order: forward.to_vec(),
+            column_order_inverse: inverse.to_vec(),
+            workspace,
+        });
+        self.statistics.symbolic_analyses += 1;
+        Ok(())
+    }
+
+    fn factorise(&mut self) -> Result<(), SingularColumn> {
+        let size = self.pattern.size;
+        let Some(symbolic) = self.symbolic.as_mut() else { return Err(SingularColumn { column: 0 }) };
+        let numeric = self.numeric.get_or_insert_with(|| Numeric {
+            lu: simplicial::SimplicialLu::new(),
+            row_order: Vec::new(),
+            row_order_inverse: Vec::new(),
+        });
+        numeric.row_order.resize(size, 0);
+        numeric.row_order_inverse.resize(size, 0);
+        let structure = SymbolicSparseColMatRef::new_checked(
+            size,
+            size,
+            &self.pattern.column_starts,
+            None,
+            &self.pattern.row_indices,
+        );
+        let matrix = SparseColMatRef::new(structure, &self.pattern.values);
+        let column_order = PermRef::new_checked(&symbolic.column_order, &symbolic.column_order_inverse, size);
+        let name = |index: usize| SingularColumn {
+            column: symbolic.column_order.get(index).copied().unwrap_or(index),
+        };
+        simplicial::factorize_simplicial_numeric_lu(
+            &mut numeric.row_order,
+            &mut numeric.row_order_inverse,
+            &mut numeric.lu,
+            matrix,
+            column_order,
+            MemStack::new(&mut symbolic.workspace),
+        )
+        .map_err(|error| match error {
+            LuError::SymbolicSingular { index } => name(index),
+            LuError::Generic(_) => SingularColumn { column: 0 },
+        })?;
+        // Partial pivoting takes the largest candidate even when it is zero: check each pivot
+        // (the last entry of each column of U) the way the dense elimination does.
+        let scale = self.pattern.values.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
+        let u = numeric.lu.u_factor_unsorted();
+        for column in 0..size {
+            let pivot = u.val_of_col(column).last().copied().unwrap_or(0.0).abs();
+            if !(pivot > scale * ZERO_PIVOT_SHARE) || !pivot.is_finite() {
+                return Err(name(column));
+            }
+        }
+        Ok(())
+    }
+}
+
+impl LinearSolver for SparseSolver {
+    fn reset(&mut self, size: usize) {
+        if size != self.pattern.size {
+            *self = SparseSolver {
+                always_pivot: self.always_pivot,
+                statistics: self.statistics,
+                ..SparseSolver::default()
+            };
+            self.pattern.size = size;
+            self.pattern.column_starts = vec![0; size + 1];
+        }
+        self.pattern.values.iter_mut().for_each(|v| *v = 0.0);
+        self.outside.clear();
+        self.call_index = 0;
+    }
+
+    #[inline]
+    fn add(&mut self, row: usize, column: usize, value: f64) {
+        let index = self.call_index;
+        self.call_index = index + 1;
+        // A cached call names a slot of the current pattern (the cache is cleared whenever
+        // the pattern changes), so its row and column were in range when cached.
+        if let Some(call) = self.calls.get(index) {
+            if call.row == row && call.column == column {
+                if let Some(v) = self.pattern.values.get_mut(call.slot) {
+                    *v += value;
+                    return;
+                }
+            }
+        }
+        self.add_uncached(index, row, column, value);
+    }
+
+    fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
+        let size = self.pattern.size;
+        rhs.resize(size, 0.0);
+        if size == 0 {
+            return Ok(());
+        }
+        if !self.outside.is_empty() {
+            self.pattern = self.pattern.merged(&self.outside);
+            self.outside.clear();
+            // Slots moved: the call cache refills from the new pattern on the next assembly.
+            self.calls.clear();
+            self.symbolic = None;
+            self.numeric = None;
+        }
+        if self.symbolic.is_none() {
+            self.frozen = None;
+            self.analyse()?;
+        }
+        let scale = self.pattern.values.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
+        let refactored = match self.frozen.as_mut() {
+            Some(frozen) => {
+                let done = frozen.refactor(&self.pattern, scale).is_ok();
+                if done {
+                    self.statistics.frozen_refactorisations += 1;
+                } else {
+                    self.statistics.fallbacks += 1;
+                    self.frozen = None;
+                }
+                done
+            }
+            None => false,
+        };
+        if !refactored {
+            self.factorise()?;
+            self.statistics.pivoting_factorisations += 1;
+            if !self.always_pivot {
+                self.frozen = self.numeric.as_ref().and_then(|numeric| {
+                    let symbolic = self.symbolic.as_ref()?;
+                    FrozenFactors::from_pivoted(&self.pattern, symbolic, numeric)
+                });
+            }
+        }
+        if let Some(frozen) = self.frozen.as_mut() {
+            frozen.solve(rhs);
+        } else {
+            let (Some(symbolic), Some(numeric)) = (self.symbolic.as_mut(), self.numeric.as_ref()) else {
+                return Err(SingularColumn { column: 0 });
+            };
+            let row_order = PermRef::new_checked(&numeric.row_order, &numeric.row_order_inverse, size);
+            let column_order =
+                PermRef::new_checked(&symbolic.column_order, &symbolic.column_order_inverse, size);
+            numeric.lu.solve_in_place_with_conj(
+                row_order,
+                column_order,
+                Conj::No,
+                MatMut::from_column_major_slice_mut(rhs.as_mut_slice(), size, 1),
+                Par::Seq,
+                MemStack::new(&mut symbolic.workspace),
+            );
+        }
+        match rhs.iter().position(|v| !v.is_finite()) {
+            Some(column) => Err(SingularColumn { column }),
+            None => Ok(()),
+        }
+    }
+
+    fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
+        let pattern = &self.pattern;
+        prepare(pattern.size, product, magnitude);
+        let mut add = |row: usize, column: usize, value: f64| {
+            let term = value * x.get(column).copied().unwrap_or(0.0);
+            if let (Some(p), Some(m)) = (product.get_mut(row), magnitude.get_mut(row)) {
+                *p += term;
+                *m += term.abs();
+            }
+        };
+        for column in 0..pattern.size {
+            let start = pattern.column_starts.get(column).copied().unwrap_or(0);
+            let end = pattern.column_starts.get(column + 1).copied().unwrap_or(start);
+            for slot in start..end {
+                if let (Some(&row), Some(&value)) = (pattern.row_indices.get(slot), pattern.values.get(slot))
+                {
+                    add(row, column, value);
+                }
+            }
+        }
+        for &(row, column, value) in &self.outside {
+            add(row, column, value);
+        }
+    }
+}
+
+/// A frozen pivot is accepted while it is at least this share of the largest entry below it
+/// in its column. Partial pivoting keeps every multiplier at most 1; this bound keeps them at
+/// most 1000, which the growth analysis of threshold pivoting (Duff, Erisman & Reid, *Direct
+/// Methods for Sparse Matrices*, threshold partial pivoting) allows with a loss of at most
+/// three digits, while switching transistors move entries by decades between iterations.
+const FROZEN_PIVOT_SHARE: f64 = 1e-3;
+
+/// L and U with the row pivots and fill pattern of a pivoting factorisation, refactored with
+/// new values without any search (left-looking, columns in pivot order). Indices are all
+/// below `size` by construction in [`FrozenFactors::from_pivoted`], which checks them.
+#[derive(Debug, Clone)]
+struct FrozenFactors {
+    size: usize,
+    /// Pivot step → original row, and original row → pivot step.
+    row_order: Vec<usize>,
+    row_step: Vec<usize>,
+    /// Pivot step → original column.
+    column_order: Vec<usize>,
+    /// Strictly lower part of L by columns (unit diagonal implied), rows as pivot steps.
+    l_starts: Vec<usize>,
+    l_rows: Vec<usize>,
+    l_values: Vec<f64>,
+    /// Strictly upper part of U by columns, rows as ascending pivot steps, and the diagonal.
+    u_starts: Vec<usize>,
+    u_rows: Vec<usize>,
+    u_values: Vec<f64>,
+    u_diagonal: Vec<f64>,
+    /// Pivot step of the row of each stored entry of the pattern.
+    entry_steps: Vec<usize>,
+    work: Vec<f64>,
+}
+
+impl FrozenFactors {
+    /// Copies faer's factors; `None` when anything is inconsistent (then every solve pivots).
+    fn from_pivoted(pattern: &Pattern, symbolic: &Symbolic, numeric: &Numeric) -> Option<FrozenFactors> {
+        let size = pattern.size;
+        let l = numeric.lu.l_factor_unsorted();
+        let u = numeric.lu.u_factor_unsorted();
+        let row_step = numeric.row_order_inverse.clone();
+        let mut frozen = FrozenFactors {
+            size,
+            row_order: numeric.row_order.clone(),
+            column_order: symbolic.column_order.clone(),
+            l_starts: Vec::with_capacity(size + 1),
+            l_rows: Vec::new(),
+            l_values: Vec::new(),
+            u_starts: Vec::with_capacity(size + 1),
+            u_rows: Vec::new(),
+            u_values: Vec::new(),
+            u_diagonal: vec![0.0; size],
+            entry_steps: Vec::with_capacity(pattern.row_indices.len()),
+            work: vec![0.0; size],
+            row_step,
+        };
+        if frozen.row_order.len() != size
+            || frozen.row_step.len() != size
+            || frozen.column_order.len() != size
+        {
+            return None;
+        }
+        let mut column: Vec<(usize, f64)> = Vec::new();
+        for j in 0..size {
+            frozen.l_starts.push(frozen.l_rows.len());
+            for (&row, &value) in l.symbolic().row_idx_of_col_raw(j).iter().zip(l.val_of_col(j)) {
+                if row > j && row < size {
+                    frozen.l_rows.push(row);
+                    frozen.l_values.push(value);
+                } else if row != j {
+                    return None;
+                }
+            }
+            frozen.u_starts.push(frozen.u_rows.len());
+            column.clear();
+            for (&row, &value) in u.symbolic().row_idx_of_col_raw(j).iter().zip(u.val_of_col(j)) {
+                if row < j {
+                    column.push((row, value));
+                } else if row == j {
+                    *frozen.u_diagonal.get_mut(j)? = value;
+                } else {
+                    return None;
+                }
+            }
+            // Ascending steps are a topological order of the column's updates.
+            column.sort_by_key(|entry| entry.0);
+            frozen.u_rows.extend(column.iter().map(|entry| entry.0));
+            frozen.u_values.extend(column.iter().map(|entry| entry.1));
+        }
+        frozen.l_starts.push(frozen.l_rows.len());
+        frozen.u_starts.push(frozen.u_rows.len());
+        // Every entry of A must fall inside the frozen pattern of its column, or the
+        // refactorisation would leave values behind in the work vector.
+        let mut inside = vec![false; size];
+        for j in 0..size {
+            let q = *frozen.column_order.get(j)?;
+            let (l_range, u_range) =
+                (frozen.l_starts[j]..frozen.l_starts[j + 1], frozen.u_starts[j]..frozen.u_starts[j + 1]);
+            for &step in frozen.l_rows[l_range.clone()].iter().chain(&frozen.u_rows[u_range.clone()]) {
+                inside[step] = true;
+            }
+            inside[j] = true;
+            for slot in *pattern.column_starts.get(q)?..*pattern.column_starts.get(q + 1)? {
+                let step = *frozen.row_step.get(*pattern.row_indices.get(slot)?)?;
+                if !inside.get(step).copied().unwrap_or(false) {
+                    return None;
+                }
+            }
+            for &step in frozen.l_rows[l_range].iter().chain(&frozen.u_rows[u_range]) {
+                inside[step] = false;
+            }
+            inside[j] = false;
+        }
+        for &row in &pattern.row_indices {
+            frozen.entry_steps.push(*frozen.row_step.get(row)?);
+        }
+        Some(frozen)
+    }
+
+    /// New values into the frozen pattern; `Err(step)` at the first unacceptable pivot.
+    // All indices were checked against `size` when the factors were frozen.
+    #[allow(clippy::indexing_slicing)]
+    fn refactor(&mut self, pattern: &Pattern, scale: f64) -> Result<(), usize> {
+        let work = &mut self.work;
+        let (l_rows, l_values, l_starts) = (&self.l_rows, &mut self.l_values, &self.l_starts);
+        for j in 0..self.size {
+            let q = self.column_order[j];
+            let entries = pattern.column_starts[q]..pattern.column_starts[q + 1];
+            for (&step, &value) in self.entry_steps[entries.clone()].iter().zip(&pattern.values[entries]) {
+                work[step] += value;
+            }
+            let uses = self.u_starts[j]..self.u_starts[j + 1];
+            for (&k, u) in self.u_rows[uses.clone()].iter().zip(&mut self.u_values[uses]) {
+                let xk = work[k];
+                work[k] = 0.0;
+                *u = xk;
+                if xk != 0.0 {
+                    let column = l_starts[k]..l_starts[k + 1];
+                    for (&i, &l) in l_rows[column.clone()].iter().zip(&l_values[column]) {
+                        work[i] -= l * xk;
+                    }
+                }
+            }
+            let pivot = work[j];
+            work[j] = 0.0;
+            let column = l_starts[j]..l_starts[j + 1];
+            let largest = l_rows[column.clone()].iter().fold(0.0f64, |m, &i| m.max(work[i].abs()));
+            let magnitude = pivot.abs();
+            let acceptable = magnitude > scale * ZERO_PIVOT_SHARE
+                && magnitude >= FROZEN_PIVOT_SHARE * largest
+                && magnitude.is_finite()
+                && largest.is_finite();
+            if !acceptable {
+                work.iter_mut().for_each(|v| *v = 0.0);
+                return Err(j);
+            }
+            self.u_diagonal[j] = pivot;
+            let inverse = 1.0 / pivot;
+            for (&i, l) in l_rows[column.clone()].iter().zip(&mut l_values[column]) {
+                *l = work[i] * inverse;
+                work[i] = 0.0;
+            }
+        }
+        Ok(())
+    }
+
+    /// Solves in place: permute, forward with unit L, back with U, permute back.
+    #[allow(clippy::indexing_slicing)]
+    fn solve(&mut self, rhs: &mut [f64]) {
+        let work = &mut self.work;
+        for (w, &row) in work.iter_mut().zip(&self.row_order) {
+            *w = rhs[row];
+        }
+        for j in 0..self.size {
+            let wj = work[j];
+            if wj != 0.0 {
+                let column = self.l_starts[j]..self.l_starts[j + 1];
+                for (&i, &l) in self.l_rows[column.clone()].iter().zip(&self.l_values[column]) {
+                    work[i] -= l * wj;
+                }
+            }
+        }
+        for j in (0..self.size).rev() {
+            let zj = work[j] / self.u_diagonal[j];
+            work[j] = zj;
+            if zj != 0.0 {
+                let column = self.u_starts[j]..self.u_starts[j + 1];
+                for (&k, &u) in self.u_rows[column.clone()].iter().zip(&self.u_values[column]) {
+                    work[k] -= u * zj;
+                }
+            }
+        }
+        for (w, &column) in work.iter_mut().zip(&self.column_order) {
+            rhs[column] = *w;
+            *w = 0.0;
+        }
+    }
+}
+
+/// Systems with at least this many unknowns go to the sparse solver (crossover measured with
+/// `cargo bench -p flipwright-core --bench linear`).
+pub const SPARSE_FROM_UNKNOWNS: usize = 40;
+
+/// Dense below [`SPARSE_FROM_UNKNOWNS`] unknowns, sparse from there: what [`simulate`]
+/// uses.
+///
+/// [`simulate`]: super::integrator::simulate
+#[derive(Debug, Default)]
+pub struct AutomaticSolver {
+    dense: DenseSolver,
+    sparse: SparseSolver,
+    use_sparse: bool,
+}
+
+impl AutomaticSolver {
+    /// True when the last reset chose the sparse solver.
+    pub fn is_sparse(&self) -> bool {
+        self.use_sparse
+    }
+}
+
+impl LinearSolver for AutomaticSolver {
+    fn reset(&mut self, size: usize) {
+        self.use_sparse = size >= SPARSE_FROM_UNKNOWNS;
+        if self.use_sparse {
+            self.sparse.reset(size);
+        } else {
+            self.dense.reset(size);
+        }
+    }
+    fn add(&mut self, row: usize, column: usize, value: f64) {
+        if self.use_sparse {
+            self.sparse.add(row, column, value);
+        } else {
+            self.dense.add(row, column, value);
+        }
+    }
+    fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
+        if self.use_sparse {
+            self.sparse.solve_in_place(rhs)
+        } else {
+            self.dense.solve_in_place(rhs)
+        }
+    }
+    fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
+        if self.use_sparse {
+            self.sparse.multiply(x, product, magnitude);
+        } else {
+            self.dense.multiply(x, product, magnitude);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    /// An MNA-like system: nodes joined by conductances (each node also to ground, so it is
+    /// regular), a few one-way transconductances (a transistor's gm from base to collector)
+    /// and voltage sources from nodes to ground (a ±1 row and column with a zero diagonal).
+    #[derive(Debug, Clone)]
+    struct System {
+        size: usize,
+        entries: Vec<(usize, usize, f64)>,
+        rhs: Vec<f64>,
+    }
+
+    fn mna_system() -> impl Strategy<Value = System> {
+        (3usize..40, 0usize..4).prop_flat_map(|(nodes, sources)| {
+            let sources = sources.min(nodes);
+            (
+                proptest::collection::vec((0..nodes, 0..nodes, 1e-3..1e-2f64), nodes..3 * nodes),
+                proptest::collection::vec(1e-3..1e-2f64, nodes),
+                proptest::collection::vec((0..nodes, 0..nodes, -2e-3..2e-3f64), 0..nodes / 2 + 1),
+                proptest::collection::vec(-10.0..10.0f64, nodes + sources),
+            )
+                .prop_map(move |(branches, to_ground, gains, rhs)| {
+                    let mut entries = Vec::new();
+                    for (a, b, g) in branches {
+                        if a != b {
+                            entries.extend([(a, a, g), (b, b, g), (a, b, -g), (b, a, -g)]);
+                        }
+                    }
+                    for (node, g) in to_ground.into_iter().enumerate() {
+                        entries.push((node, node, g));
+                    }
+                    for (row, column, gm) in gains {
+                        entries.push((row, column, gm));
+                    }
+                    // Sources on the first nodes, one each, so no two are in parallel.
+                    for source in 0..sources {
+                        let row = nodes + source;
+                        entries.extend([(source, row, 1.0), (row, source, 1.0)]);
+                    }
+                    System { size: nodes + sources, entries, rhs }
+                })
+        })
+    }
+
+    fn solve_with<S: LinearSolver>(
+        solver: &mut S,
+        system: &System,
+        scale: f64,
+    ) -> Result<Vec<f64>, SingularColumn> {
+        solver.reset(system.size);
+        for &(row, column, value) in &system.entries {
+            solver.add(row, column, value * scale);
+        }
+        let mut x = system.rhs.clone();
+        solver.solve_in_place(&mut x)?;
+        Ok(x)
+    }
+
+    fn close(a: &[f64], b: &[f64]) -> bool {
+        let norm = b.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        a.len() == b.len() && a.iter().zip(b).all(|(x, y)| (x - y).abs() <= 1e-12 * norm)
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig { cases: 64, ..ProptestConfig::default() })]
+        /// Partial-pivoting LU is backward stable (Higham, *Accuracy and Stability of
+        /// Numerical Algorithms*, ch. 9): on these well-conditioned systems (every node has
+        /// 1–10 mS to ground, gains below that) dense and sparse agree to 1e-12 of the
+        /// largest unknown, on the pivoting first solve and on frozen refactorisations.
+        #[test]
+        fn sparse_and_dense_agree(system in mna_system()) {
+            let mut sparse = SparseSolver::default();
+            let mut pivoting = SparseSolver::always_pivoting();
+            let mut dense = DenseSolver::default();
+            for scale in [1.0, 1.7, 0.4] {
+                let reference = solve_with(&mut dense, &system, scale);
+                prop_assert!(reference.is_ok(), "{reference:?}");
+                let reference = reference.unwrap_or_default();
+                let frozen = solve_with(&mut sparse, &system, scale).unwrap_or_default();
+                let fresh = solve_with(&mut pivoting, &system, scale).unwrap_or_default();
+                prop_assert!(close(&frozen, &reference), "{frozen:?} vs {reference:?}");
+                prop_assert!(close(&fresh, &reference), "{fresh:?} vs {reference:?}");
+            }
+            let statistics = sparse.statistics();
+            prop_assert_eq!(statistics.symbolic_analyses, 1);
+            prop_assert_eq!(statistics.frozen_refactorisations + statistics.fallbacks, 2);
+        }
+    }
+
+    #[test]
+    fn singular_matrices_name_a_column() {
+        // Two voltage sources in parallel on node 0 (rows 1 and 2 equal), and a node that
+        // nothing reaches (column 1 of the second system empty).
+        let parallel = System {
+            size: 3,
+            entries: vec![(0, 0, 1e-3), (0, 1, 1.0), (1, 0, 1.0), (0, 2, 1.0), (2, 0, 1.0)],
+            rhs: vec![0.0, 1.0, 2.0],
+        };
+        let floating = System { size: 2, entries: vec![(0, 0, 1.0)], rhs: vec![1.0, 1.0] };
+        let zero_value = System { size: 2, entries: vec![(0, 0, 1.0), (1, 1, 0.0)], rhs: vec![1.0, 1.0] };
+        for system in [&parallel, &floating, &zero_value] {
+            for solver in [SparseSolver::default(), SparseSolver::always_pivoting()] {
+                let mut solver = solver;
+                let outcome = solve_with(&mut solver, system, 1.0);
+                assert!(
+                    matches!(outcome, Err(SingularColumn { column }) if column < system.size),
+                    "{outcome:?}"
+                );
+            }
+            assert!(solve_with(&mut DenseSolver::default(), system, 1.0).is_err());
+        }
+        let mut sparse = SparseSolver::default();
+        assert_eq!(solve_with(&mut sparse, &floating, 1.0), Err(SingularColumn { column: 1 }));
+    }
+
+    #[test]
+    fn a_vanishing_frozen_pivot_falls_back_to_pivoting() {
+        // First [[4, 1], [1, 4]]: the pivots are the diagonal. Then [[0, 1], [1, 0]] with the
+        // same pattern: a frozen diagonal pivot would be 0, so the solver must pivot afresh
+        // (rows swapped) and still give x = (b1, b0).
+        let first = System {
+            size: 2,
+            entries: vec![(0, 0, 4.0), (0, 1, 1.0), (1, 0, 1.0), (1, 1, 4.0)],
+            rhs: vec![5.0, 5.0],
+        };
+        let swapped = System {
+            size: 2,
+            entries: vec![(0, 0, 0.0), (0, 1, 1.0), (1, 0, 1.0), (1, 1, 0.0)],
+            rhs: vec![3.0, 7.0],
+        };
+        let mut solver = SparseSolver::default();
+        assert_eq!(solve_with(&mut solver, &first, 1.0), Ok(vec![1.0, 1.0]));
+        assert_eq!(solve_with(&mut solver, &swapped, 1.0), Ok(vec![7.0, 3.0]));
+        let statistics = solver.statistics();
+        assert_eq!((statistics.fallbacks, statistics.pivoting_factorisations), (1, 2), "{statistics:?}");
+        // A tiny (not zero) pivot, 1e-9 against 1 below it, also falls back.
+        let tiny = System {
+            size: 2,
+            entries: vec![(0, 0, 1e-9), (0, 1, 1.0), (1, 0, 1.0), (1, 1, 1e-9)],
+            rhs: vec![1.0, 1.0],
+        };
+        let mut solver = SparseSolver::default();
+        let _ = solve_with(&mut solver, &first, 1.0);
+        let x = solve_with(&mut solver, &tiny, 1.0).unwrap_or_default();
+        assert!(close(&x, &solve_with(&mut DenseSolver::default(), &tiny, 1.0).unwrap_or_default()), "{x:?}");
+        assert_eq!(solver.statistics().fallbacks, 1);
+    }
+
+    #[test]
+    fn new_entries_extend_the_pattern_once() {
+        // The operating point stamps hint conductances that the transient does not: the
+        // pattern grows once, and is analysed again only then.
+        let base = System { size: 2, entries: vec![(0, 0, 1.0), (1, 1, 1.0)], rhs: vec![1.0, 2.0] };
+        let mut extended = base.clone();
+        extended.entries.push((0, 1, 0.5));
+        let mut solver = SparseSolver::default();
+        assert_eq!(solve_with(&mut solver, &base, 1.0), Ok(vec![1.0, 2.0]));
+        assert_eq!(solve_with(&mut solver, &extended, 1.0), Ok(vec![0.0, 2.0]));
+        assert_eq!(solve_with(&mut solver, &base, 1.0), Ok(vec![1.0, 2.0]));
+        assert_eq!(solver.statistics().symbolic_analyses, 2);
+        assert_eq!(solver.pattern_entries(), 3);
     }
 }

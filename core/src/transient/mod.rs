@@ -6,7 +6,7 @@
 //! - [`waveform`]: source waveforms and their corners;
 //! - [`devices`]: junction laws (depletion charge, limiting) shared by the stamps;
 //! - [`system`]: the compiled MNA system and Newton–Raphson at one instant;
-//! - [`linear`]: the linear solver trait and the dense implementation;
+//! - [`linear`]: the linear solver trait, dense and sparse LU and the automatic choice;
 //! - [`operating_point`]: DC with hints, source stepping and gmin stepping;
 //! - [`integrator`]: trapezoidal/backward-Euler integration with truncation-error control;
 //! - [`measure`]: crossings, delays, edges, toggle counts and waveform summaries;
@@ -33,6 +33,6 @@ pub use circuit_file::{CircuitFile, Probes};
 pub use error::SimulationError;
 pub use export::{ExportError, Probe};
 pub use integrator::{simulate, simulate_with, RunStatistics, TransientResult, TransientSettings};
-pub use linear::{DenseSolver, LinearSolver};
+pub use linear::{AutomaticSolver, DenseSolver, LinearSolver, SingularColumn, SparseSolver};
 pub use operating_point::{operating_point, OperatingPoint, OperatingPointHints, OperatingPointMethod};
 pub use waveform::Waveform;

@@ -5,7 +5,7 @@ use serde::{Deserialize, Serialize};
 
 use super::circuit::Circuit;
 use super::error::SimulationError;
-use super::linear::{DenseSolver, LinearSolver};
+use super::linear::{AutomaticSolver, LinearSolver};
 use super::system::{Conditions, Failure, NewtonTolerances, Solved, System};
 
 /// Conductance that holds a hinted node near its hint during the first solve: 0.1 S beats the
@@ -62,13 +62,13 @@ impl OperatingPoint {
     }
 }
 
-/// The DC operating point of a circuit at t = 0 with the dense solver.
+/// The DC operating point of a circuit at t = 0 (automatic choice of linear solver).
 pub fn operating_point(
     circuit: &Circuit,
     hints: &OperatingPointHints,
 ) -> Result<OperatingPoint, SimulationError> {
     let system = System::compile(circuit)?;
-    let mut solver = DenseSolver::default();
+    let mut solver = AutomaticSolver::default();
     let (solved, method, _) = solve_operating_point(&system, &mut solver, hints, default_tolerances())?;
     let node_count = system.node_count();
     Ok(OperatingPoint {

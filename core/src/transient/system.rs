@@ -113,6 +113,14 @@ pub(crate) struct NewtonTolerances {
     pub max_iterations: usize,
 }
 
+/// What one assembly produces besides the matrix: the right-hand side, and the charges and
+/// charge currents at the linearisation point.
+struct Linearised {
+    rhs: Vec<f64>,
+    charges: Vec<f64>,
+    charge_currents: Vec<f64>,
+}
+
 /// A converged solve.
 #[derive(Debug, Clone)]
 pub(crate) struct Solved {
@@ -148,7 +156,7 @@ fn pin_voltage(unknowns: &[f64], pin: Pin) -> f64 {
 /// Matrix and right-hand side being assembled.
 struct Assembly<'s, S: LinearSolver> {
     solver: &'s mut S,
-    rhs: Vec<f64>,
+    rhs: &'s mut Vec<f64>,
 }
 
 impl<S: LinearSolver> Assembly<'_, S> {
@@ -350,6 +358,12 @@ impl System {
     /// Junction voltages (NPN frame for transistors) implied by the unknowns.
     pub(crate) fn junction_voltages(&self, unknowns: &[f64]) -> Vec<f64> {
         let mut junctions = vec![0.0; self.junction_count];
+        self.junction_voltages_into(unknowns, &mut junctions);
+        junctions
+    }
+
+    /// [`System::junction_voltages`] into a buffer of `junction_count` entries.
+    fn junction_voltages_into(&self, unknowns: &[f64], junctions: &mut [f64]) {
         for stamp in &self.stamps {
             match stamp {
                 Stamp::Diode { anode, cathode, junction, .. } => {
@@ -369,7 +383,6 @@ impl System {
                 _ => {}
             }
         }
-        junctions
     }
 
     /// Starting junction voltages for limiting: those of `unknowns`, but never above the
@@ -397,19 +410,21 @@ impl System {
     }
 
     /// Stamps the system linearised at `junctions` (already limited) and `unknowns`;
-    /// returns the right-hand side and fills charges and charge currents.
+    /// fills the right-hand side, the charges and the charge currents of `out`.
     fn assemble<S: LinearSolver>(
         &self,
         solver: &mut S,
         unknowns: &[f64],
         junctions: &[f64],
         conditions: &Conditions,
-        charges: &mut [f64],
-        charge_currents: &mut [f64],
-    ) -> Vec<f64> {
+        out: &mut Linearised,
+    ) {
+        let Linearised { rhs, charges, charge_currents } = out;
         let size = self.size();
         solver.reset(size);
-        let mut assembly = Assembly { solver, rhs: vec![0.0; size] };
+        rhs.clear();
+        rhs.resize(size, 0.0);
+        let mut assembly = Assembly { solver, rhs };
         let node_gmin = GMIN_S + conditions.extra_gmin_s;
         for node in 0..self.node_count() {
             assembly.matrix(Some(node), Some(node), node_gmin);
@@ -456,8 +471,8 @@ impl System {
                 }
                 Stamp::Diode { anode, cathode, law, charge, junction } => {
                     let v = junctions.get(*junction).copied().unwrap_or(0.0);
-                    let (i, g) = junction_current(v, law.saturation_current_a, law.n_vt);
-                    let (i, g) = (i + GMIN_S * v, g + GMIN_S);
+                    let (id, gd) = junction_current(v, law.saturation_current_a, law.n_vt);
+                    let (i, g) = (id + GMIN_S * v, gd + GMIN_S);
                     assembly.branch(*anode, *cathode, g, i - g * v);
                     let (qj, cj) = depletion_charge(
                         v,
@@ -465,7 +480,6 @@ impl System {
                         law.junction_potential_v,
                         law.junction_grading,
                     );
-                    let (id, gd) = junction_current(v, law.saturation_current_a, law.n_vt);
                     let q = qj + law.transit_time_s * id;
                     let c = cj + law.transit_time_s * gd;
                     charge_branch(&mut assembly, *anode, *cathode, *charge, v, q, c);
@@ -501,8 +515,8 @@ impl System {
                         assembly.rhs(row, -(current - g_be * vbe_real - g_bc * vbc_real));
                     }
                     // Charges: τF·IF + emitter depletion on B–E, τR·IR + collector depletion on B–C.
-                    let (i_forward, g_forward) = junction_current(vbe, model.saturation_current_a, law.vt);
-                    let (i_reverse, g_reverse) = junction_current(vbc, model.saturation_current_a, law.vt);
+                    let (i_forward, g_forward) = (op.forward_current_a, op.forward_conductance_s);
+                    let (i_reverse, g_reverse) = (op.reverse_current_a, op.reverse_conductance_s);
                     let (qje, cje) = depletion_charge(
                         vbe,
                         model.emitter_junction_capacitance_f,
@@ -525,7 +539,6 @@ impl System {
                 }
             }
         }
-        assembly.rhs
     }
 
     /// Limits every junction's proposed voltage against `junctions` (updated in place);
@@ -553,6 +566,15 @@ impl System {
 
     /// Newton–Raphson from `start`; `junctions` holds the limiting history and is left at the
     /// last evaluated junction voltages.
+    ///
+    /// Converged means both: the last update is within tolerance of every unknown (and no
+    /// junction was limited), and the equations hold at the new point — each row's residual
+    /// within the relative tolerance of the sum of the magnitudes of its terms plus the
+    /// absolute current (node rows) or voltage (source rows) tolerance. The update alone can
+    /// be small while a steep junction is still far from balance; the residual alone cannot
+    /// tell a flat valley from a solution. The residual comes from the assembly at the new
+    /// point, which the next iteration uses if the test fails, so it costs no extra solve, and
+    /// a good start may converge after one iteration.
     pub(crate) fn newton<S: LinearSolver>(
         &self,
         solver: &mut S,
@@ -566,14 +588,22 @@ impl System {
         let mut unknowns = start.to_vec();
         unknowns.resize(size, 0.0);
         junctions.resize(self.junction_count, 0.0);
-        let mut charges = vec![0.0; self.charge_count];
-        let mut charge_currents = vec![0.0; self.charge_count];
+        let mut out = Linearised {
+            rhs: Vec::with_capacity(size),
+            charges: vec![0.0; self.charge_count],
+            charge_currents: vec![0.0; self.charge_count],
+        };
+        let mut next = Vec::with_capacity(size);
+        let mut product = vec![0.0; size];
+        let mut magnitude = vec![0.0; size];
+        let mut proposed = vec![0.0; self.junction_count];
         let mut worst = (0, f64::INFINITY);
-        let mut limited = self.limit_junctions(&self.junction_voltages(&unknowns), junctions);
+        self.junction_voltages_into(&unknowns, &mut proposed);
+        let mut limited = self.limit_junctions(&proposed, junctions);
+        self.assemble(solver, &unknowns, junctions, conditions, &mut out);
         for iteration in 1..=tolerances.max_iterations {
-            let rhs =
-                self.assemble(solver, &unknowns, junctions, conditions, &mut charges, &mut charge_currents);
-            let next = solver.solve(&rhs).map_err(|e| Failure::Singular { unknown: e.column })?;
+            next.clone_from(&out.rhs);
+            solver.solve_in_place(&mut next).map_err(|e| Failure::Singular { unknown: e.column })?;
             // Largest update relative to its tolerance decides convergence and names the
             // culprit when the budget runs out.
             let mut worst_ratio = 0.0;
@@ -594,15 +624,26 @@ impl System {
                     iterations: iteration,
                 });
             }
-            let converged = worst_ratio <= 1.0 && !limited && iteration > 1;
-            unknowns = next;
-            limited = self.limit_junctions(&self.junction_voltages(&unknowns), junctions);
-            if converged {
-                // Charges at the solution itself (not the last linearisation point), so the
-                // stored history is consistent with the reported voltages.
-                let exact = self.junction_voltages(&unknowns);
-                self.assemble(solver, &unknowns, &exact, conditions, &mut charges, &mut charge_currents);
-                return Ok(Solved { unknowns, charges, charge_currents, iterations: iteration });
+            let small_update = worst_ratio <= 1.0 && !limited;
+            std::mem::swap(&mut unknowns, &mut next);
+            self.junction_voltages_into(&unknowns, &mut proposed);
+            limited = self.limit_junctions(&proposed, junctions);
+            // Linearised at the new point (at its exact junction voltages when none was
+            // limited): the next iteration's system, and the charges of the solution.
+            self.assemble(solver, &unknowns, junctions, conditions, &mut out);
+            if small_update && !limited {
+                solver.multiply(&unknowns, &mut product, &mut magnitude);
+                let balanced = product.iter().zip(&magnitude).zip(&out.rhs).enumerate().all(
+                    |(index, ((&ax, &terms), &b))| {
+                        let absolute =
+                            if index < node_count { tolerances.current_a } else { tolerances.voltage_v };
+                        (ax - b).abs() <= tolerances.relative * (terms + b.abs()) + absolute
+                    },
+                );
+                if balanced {
+                    let Linearised { charges, charge_currents, .. } = out;
+                    return Ok(Solved { unknowns, charges, charge_currents, iterations: iteration });
+                }
             }
         }
         Err(Failure::NotConverged {

@@ -1,0 +1,225 @@
+//! Benchmark: a ten-stage ripple chain (divide by 1024) for one full output period, and one
+//! stage for 1000 toggles, each with the dense and the sparse solver. Run with
+//! `cargo bench -p flipwright-core --bench chain`; prints medians, quartiles and ratios.
+//!
+//! The stage is the demo design with the values synthesis chose for it, kept as a file
+//! (`chain-design.json`) so the figures do not move when synthesis changes; the circuit is
+//! built by `verify::chain_circuit`. Options after `--`: `quick` (fewer repetitions),
+//! `accuracy` (also the edge-time error against a run at relative tolerance 1e-5),
+//! `sparse-only` (skip the dense runs), `crossover` (only the dense/sparse crossover table),
+//! `once dense|sparse|pivoting STAGES EDGES` (one run, for a profiler).
+
+use std::hint::black_box;
+use std::time::Instant;
+
+use flipwright::design_file::DesignFile;
+use flipwright::stage::analysis::analyse;
+use flipwright::stage::StageDesign;
+use flipwright::transient::measure::{crossings, Edge};
+use flipwright::transient::system::System;
+use flipwright::transient::{
+    simulate_with, AutomaticSolver, DenseSolver, LinearSolver, SparseSolver, TransientResult,
+};
+use flipwright::verify::count::{check_counts, run_settings};
+use flipwright::verify::{chain_circuit, design_pulse, BuiltCircuit, RunAccuracy, SimulationCorner};
+
+const DESIGN: &str = include_str!("chain-design.json");
+
+fn fail(message: String) -> ! {
+    eprintln!("chain benchmark: {message}");
+    std::process::exit(1);
+}
+
+fn design() -> StageDesign {
+    match DesignFile::load(DESIGN) {
+        Ok((_, design)) => design,
+        Err(errors) => fail(format!("chain-design.json is not valid: {errors:?}")),
+    }
+}
+
+/// The chain (or one stage) driven as in service: the design's rate, the amplitude a driving
+/// stage gives, 20 ns edges (as the verification tests use).
+fn built(design: &StageDesign, stages: usize) -> BuiltCircuit {
+    let report = analyse(design).unwrap_or_else(|e| fail(format!("analysis failed: {e}")));
+    let pulse = design_pulse(design, report.switching.available_trigger_amplitude_v, 20e-9);
+    chain_circuit(design, stages, &pulse, &SimulationCorner::nominal())
+        .unwrap_or_else(|e| fail(format!("cannot build the chain: {e}")))
+}
+
+fn run<S: LinearSolver>(
+    built: &BuiltCircuit,
+    edges: usize,
+    accuracy: &RunAccuracy,
+    solver: &mut S,
+) -> TransientResult {
+    let settings = run_settings(built, edges, accuracy);
+    simulate_with(&built.circuit, &settings, &built.hints, solver)
+        .unwrap_or_else(|e| fail(format!("the run failed: {e}")))
+}
+
+/// Times of the last stage's output (Q1's collector) crossing half the supply.
+fn output_edges(built: &BuiltCircuit, result: &TransientResult) -> Vec<f64> {
+    let Some(last) = built.stages.last() else { return Vec::new() };
+    let Some(wave) = result.voltage(&last.collectors[0]) else { return Vec::new() };
+    crossings(&result.time_s, wave, 0.5 * built.collector_supply_v, Edge::Either).unwrap_or_default()
+}
+
+struct Quartiles {
+    low: f64,
+    median: f64,
+    high: f64,
+}
+
+fn quartiles(mut samples: Vec<f64>) -> Quartiles {
+    samples.sort_by(f64::total_cmp);
+    let at =
+        |q: f64| samples.get(((samples.len() - 1) as f64 * q).round() as usize).copied().unwrap_or(f64::NAN);
+    Quartiles { low: at(0.25), median: at(0.5), high: at(0.75) }
+}
+
+/// One case with one solver: the run's counts and check, then timed repetitions.
+fn case<S: LinearSolver>(
+    label: &str,
+    built: &BuiltCircuit,
+    edges: usize,
+    repetitions: usize,
+    make: impl Fn() -> S,
+) -> f64 {
+    let accuracy = RunAccuracy::default();
+    let result = run(built, edges, &accuracy, &mut make());
+    let check = check_counts(built, &result, edges);
+    let stats = result.statistics;
+    let last_toggles = output_edges(built, &result).len();
+    let attempts = stats.accepted_steps + stats.rejected_steps;
+    println!(
+        "  {label}: accepted {} steps, rejected {} ({:.1} %; {} of them Newton failures), {:.2} Newton iterations per accepted step; count right after every edge: {}; last-stage output edges {last_toggles}",
+        stats.accepted_steps,
+        stats.rejected_steps,
+        100.0 * stats.rejected_steps as f64 / attempts.max(1) as f64,
+        stats.newton_failures,
+        stats.newton_iterations as f64 / stats.accepted_steps.max(1) as f64,
+        if check.correct { "yes".to_string() } else { format!("NO (first wrong after edge {:?})", check.first_error) },
+    );
+    let samples: Vec<f64> = (0..repetitions)
+        .map(|_| {
+            let mut solver = make();
+            let start = Instant::now();
+            let _ = black_box(run(black_box(built), edges, &accuracy, &mut solver));
+            start.elapsed().as_secs_f64()
+        })
+        .collect();
+    let q = quartiles(samples);
+    println!(
+        "  {label}: whole run median {:.1} ms (quartiles {:.1}–{:.1} ms, n = {repetitions}); {:.2} µs per accepted step",
+        q.median * 1e3,
+        q.low * 1e3,
+        q.high * 1e3,
+        q.median * 1e6 / stats.accepted_steps.max(1) as f64
+    );
+    q.median
+}
+
+/// Edge times of the last stage at the default tolerance against a run at 1e-5.
+fn accuracy(built: &BuiltCircuit, edges: usize) {
+    let loose = run(built, edges, &RunAccuracy::default(), &mut AutomaticSolver::default());
+    let tight_accuracy = RunAccuracy { relative_tolerance: 1e-5, ..RunAccuracy::default() };
+    let tight = run(built, edges, &tight_accuracy, &mut AutomaticSolver::default());
+    let (a, b) = (output_edges(built, &loose), output_edges(built, &tight));
+    if a.len() != b.len() {
+        println!("  accuracy: {} output edges at 1e-3 but {} at 1e-5", a.len(), b.len());
+        return;
+    }
+    let errors: Vec<f64> = a.iter().zip(&b).map(|(x, y)| (x - y).abs()).collect();
+    let worst = errors.iter().copied().fold(0.0, f64::max);
+    let q = quartiles(errors);
+    println!(
+        "  accuracy: {} last-stage edges; |t(1e-3) − t(1e-5)| median {:.3} ns, largest {:.3} ns ({} vs {} accepted steps)",
+        a.len(),
+        q.median * 1e9,
+        worst * 1e9,
+        loose.statistics.accepted_steps,
+        tight.statistics.accepted_steps
+    );
+}
+
+/// Whole runs of chains of growing length with both solvers, to place the automatic choice.
+fn crossover(design: &StageDesign, repetitions: usize) {
+    println!("flipwright-core chain benchmark: dense/sparse crossover (16 input edges)");
+    for stages in [1, 2, 3, 4, 6, 8] {
+        let built = built(design, stages);
+        let unknowns = System::compile(&built.circuit).map(|s| s.size()).unwrap_or(0);
+        let time = |sparse: bool| {
+            let samples: Vec<f64> = (0..repetitions)
+                .map(|_| {
+                    let start = Instant::now();
+                    if sparse {
+                        let _ =
+                            black_box(run(&built, 16, &RunAccuracy::default(), &mut SparseSolver::default()));
+                    } else {
+                        let _ =
+                            black_box(run(&built, 16, &RunAccuracy::default(), &mut DenseSolver::default()));
+                    }
+                    start.elapsed().as_secs_f64()
+                })
+                .collect();
+            quartiles(samples).median
+        };
+        let (dense, sparse) = (time(false), time(true));
+        println!(
+            "  {stages} stage(s), {unknowns} unknowns: dense {:.2} ms, sparse {:.2} ms (medians, n = {repetitions}), dense/sparse {:.2}",
+            dense * 1e3,
+            sparse * 1e3,
+            dense / sparse
+        );
+    }
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().collect();
+    let has = |flag: &str| args.iter().any(|a| a == flag);
+    let design = design();
+    let repetitions = if has("quick") { 3 } else { 5 };
+    // `once SOLVER STAGES EDGES`: a single run to profile (valgrind --tool=callgrind).
+    if let Some(at) = args.iter().position(|a| a == "once") {
+        let get = |offset: usize| args.get(at + offset).map(String::as_str).unwrap_or("");
+        let stages = get(2).parse().unwrap_or(10);
+        let edges = get(3).parse().unwrap_or(32);
+        let built = built(&design, stages);
+        let result = match get(1) {
+            "dense" => run(&built, edges, &RunAccuracy::default(), &mut DenseSolver::default()),
+            "pivoting" => run(&built, edges, &RunAccuracy::default(), &mut SparseSolver::always_pivoting()),
+            _ => {
+                let mut solver = SparseSolver::default();
+                let result = run(&built, edges, &RunAccuracy::default(), &mut solver);
+                println!(
+                    "{:?}; pattern {} entries, factors {:?}",
+                    solver.statistics(),
+                    solver.pattern_entries(),
+                    solver.factor_entries()
+                );
+                result
+            }
+        };
+        println!("{:?}", result.statistics);
+        return;
+    }
+    if has("crossover") {
+        crossover(&design, repetitions);
+        return;
+    }
+    for (title, stages, edges) in [
+        ("one stage, 1000 toggles", 1, 1000),
+        ("ten-stage chain, 1024 input edges (divide by 1024)", 10, 1024),
+    ] {
+        let built = built(&design, stages);
+        println!("flipwright-core chain benchmark: {title}");
+        let sparse = case("sparse", &built, edges, repetitions, SparseSolver::default);
+        if !has("sparse-only") {
+            let dense = case("dense ", &built, edges, repetitions, DenseSolver::default);
+            println!("  dense/sparse median ratio {:.2}", dense / sparse);
+        }
+        if has("accuracy") {
+            accuracy(&built, edges);
+        }
+    }
+}
