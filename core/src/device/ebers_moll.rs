@@ -144,7 +144,8 @@ impl EbersMoll {
         let unclamped = if a > 1.0 { (forced_gain + 1.0) / (a - 1.0) } else { f64::INFINITY };
         let beta_reverse = unclamped.clamp(BETA_R_RANGE.0, BETA_R_RANGE.1);
         let intrinsic_vce = saturation_voltage(vt, forced_gain, beta_forward, beta_reverse)?;
-        let excess_v = (sheet.vce_sat_typ_v - intrinsic_vce).max(0.0);
+        // Below a microvolt the difference is rounding, not a resistance to model.
+        let excess_v = Some(sheet.vce_sat_typ_v - intrinsic_vce).filter(|v| *v > 1e-6).unwrap_or(0.0);
         let collector_resistance_ohm = excess_v / sheet.sat_test_current_a;
         if beta_reverse != unclamped {
             assumptions.push(format!(

@@ -11,6 +11,11 @@ use super::waveform::Waveform;
 use crate::device::ebers_moll::EbersMoll;
 use crate::physics::thermal_voltage;
 
+/// Device series resistances below this are treated as none: an internal node behind a
+/// femto-ohm resistance (rounding left over from a derivation) makes the matrix singular in
+/// all but name, while a milliohm changes no voltage the engine reports.
+pub const MIN_INTERNAL_RESISTANCE_OHM: f64 = 1e-3;
+
 /// Conductance from every node to ground and across every junction: keeps the matrix regular
 /// when a node is reached only through capacitors or cut-off junctions. 1 pS shifts a 10 V,
 /// 10 kΩ node by about 1 µV.
@@ -245,7 +250,7 @@ impl System {
                 Element::Diode { name, anode, cathode, model } => {
                     let n_vt = model.emission_coefficient * thermal_voltage(circuit.temperature_c);
                     let mut inner_anode = pin(anode);
-                    if model.series_resistance_ohm > 0.0 {
+                    if model.series_resistance_ohm >= MIN_INTERNAL_RESISTANCE_OHM {
                         inner_anode = add_internal(&mut internal, format!("{name}.anode"));
                         stamps.push(Stamp::Conductance {
                             a: pin(anode),
@@ -273,7 +278,7 @@ impl System {
                 }
                 Element::Transistor { name, collector, base, emitter, model } => {
                     let mut inner_base = pin(base);
-                    if model.base_resistance_ohm > 0.0 {
+                    if model.base_resistance_ohm >= MIN_INTERNAL_RESISTANCE_OHM {
                         inner_base = add_internal(&mut internal, format!("{name}.base"));
                         stamps.push(Stamp::Conductance {
                             a: pin(base),
@@ -282,7 +287,7 @@ impl System {
                         });
                     }
                     let mut inner_collector = pin(collector);
-                    if model.collector_resistance_ohm > 0.0 {
+                    if model.collector_resistance_ohm >= MIN_INTERNAL_RESISTANCE_OHM {
                         inner_collector = add_internal(&mut internal, format!("{name}.collector"));
                         stamps.push(Stamp::Conductance {
                             a: pin(collector),

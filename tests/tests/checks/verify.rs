@@ -247,3 +247,21 @@ fn skip_feedback_chains_divide_by_3_5_and_12_in_simulation() {
         assert!(check.correct, "N = {modulus}: expected {:?}\nobserved {:?}", check.expected, check.observed);
     }
 }
+
+#[test]
+fn silicon_pnp_stage_toggles_on_every_edge() {
+    // The silicon PNP archetype's VCE(sat) matches the intrinsic Ebers–Moll value to rounding;
+    // the derivation once turned that rounding into a 1e-15 Ω collector resistance whose
+    // internal node made the operating point fail. The demo's values with that transistor.
+    let mut file = flipwright::design_file::DesignFile::demo();
+    file.transistor = flipwright::design_file::DeviceChoice::Archetype("si-pnp-switch-40v".to_string());
+    let mut input = file.synthesis_input().expect("valid requirements");
+    input.values = *demo_design().values();
+    let design = flipwright::stage::StageDesign::new(input).expect("valid");
+    let model =
+        flipwright::verify::build::transistor_model(&design, &SimulationCorner::nominal()).expect("model");
+    assert!(model.collector_resistance_ohm == 0.0 || model.collector_resistance_ohm > 1e-3);
+    let built = stage_circuit(&design, &demo_pulse(), &SimulationCorner::nominal()).expect("builds");
+    let (check, _) = run_and_check(&built, 8, &RunAccuracy::default()).expect("runs");
+    assert!(check.correct, "toggles on every edge: {:?}", check.observed);
+}
