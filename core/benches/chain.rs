@@ -15,7 +15,6 @@ use std::time::Instant;
 use flipwright::design_file::DesignFile;
 use flipwright::stage::analysis::analyse;
 use flipwright::stage::StageDesign;
-use flipwright::transient::measure::{crossings, Edge};
 use flipwright::transient::system::System;
 use flipwright::transient::{
     simulate_with, AutomaticSolver, DenseSolver, LinearSolver, SparseSolver, TransientResult,
@@ -57,11 +56,42 @@ fn run<S: LinearSolver>(
         .unwrap_or_else(|e| fail(format!("the run failed: {e}")))
 }
 
-/// Times of the last stage's output (Q1's collector) crossing half the supply.
+/// Times of the last stage's output (Q1's collector) crossing half the supply, one per change
+/// of state: the state changes with hysteresis (below 0.3, above 0.7 of the supply, as the
+/// verification tests count), so a spike from the trigger network through the middle is not
+/// an edge; each change is timed at its own last crossing of the middle.
 fn output_edges(built: &BuiltCircuit, result: &TransientResult) -> Vec<f64> {
     let Some(last) = built.stages.last() else { return Vec::new() };
     let Some(wave) = result.voltage(&last.collectors[0]) else { return Vec::new() };
-    crossings(&result.time_s, wave, 0.5 * built.collector_supply_v, Edge::Either).unwrap_or_default()
+    let supply = built.collector_supply_v;
+    let (low, middle, high) = (0.3 * supply, 0.5 * supply, 0.7 * supply);
+    let mut edges = Vec::new();
+    let mut state: Option<bool> = None;
+    let (mut last_rise, mut last_fall) = (f64::NAN, f64::NAN);
+    for (t, v) in result.time_s.windows(2).zip(wave.windows(2)) {
+        if (v[0] < middle) != (v[1] < middle) {
+            let crossing = t[0] + (middle - v[0]) / (v[1] - v[0]) * (t[1] - t[0]);
+            if v[1] > v[0] {
+                last_rise = crossing;
+            } else {
+                last_fall = crossing;
+            }
+        }
+        let next = if v[1] > high {
+            Some(true)
+        } else if v[1] < low {
+            Some(false)
+        } else {
+            state
+        };
+        if let (Some(old), Some(new)) = (state, next) {
+            if old != new {
+                edges.push(if new { last_rise } else { last_fall });
+            }
+        }
+        state = next;
+    }
+    edges
 }
 
 struct Quartiles {

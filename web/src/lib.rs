@@ -1,6 +1,8 @@
 //! The wasm bridge: a handful of exports that take design-file JSON, call the core, and return
 //! plain transfer objects for the page to render. No engineering happens here.
 
+#[cfg(feature = "bench")]
+mod bench;
 pub mod plots;
 mod schematic;
 pub mod traces;

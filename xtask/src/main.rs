@@ -1,5 +1,6 @@
 //! Project automation: `cargo xtask demo` (the main job from a fresh clone), `cargo xtask test`
-//! (every check, with its own set-up), `cargo xtask bench` (benchmarks).
+//! (every check, with its own set-up), `cargo xtask bench` (benchmarks), `cargo xtask
+//! wasm-bench` (the chain benchmark in wasm).
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, ExitCode};
@@ -13,7 +14,10 @@ cargo xtask <command>
           the IEC 60063 table cross-check against the PyPI package eseries, and the
           transient engine against scipy's stiff ODE solver (both installed into
           target/xtask-venv on first use)
-  bench   run the benchmarks (core, release build; the page in Chromium) and print medians
+  bench   run the benchmarks (core, release build; the chain in wasm under Node; the page
+          in Chromium) and print medians
+  wasm-bench  only the chain benchmark in wasm under Node (compare with
+          `cargo bench -p flipwright-core --bench chain`)
   browser-test  build the page and run only the browser tests
   page    build the offline page out/flipwright.html and open it in a browser
           (or print its path where none can be opened)
@@ -328,8 +332,59 @@ fn browser_tests() -> Result<(), String> {
     }
 }
 
+/// The wasm build with the benchmark exports (`--features bench`), bound for Node; returns
+/// the glue's path.
+fn build_wasm_bench() -> Result<PathBuf, String> {
+    ensure_wasm_target()?;
+    let target_dir = "target/wasm-bench";
+    run(
+        "cargo",
+        &[
+            "build",
+            "-p",
+            "flipwright-web",
+            "--lib",
+            "--target",
+            "wasm32-unknown-unknown",
+            "--profile",
+            "wasm",
+            "--target-dir",
+            target_dir,
+            "--features",
+            "bench",
+        ],
+    )?;
+    let wasm = root().join(target_dir).join("wasm32-unknown-unknown/wasm/flipwright_web.wasm");
+    let out_dir = root().join(target_dir).join("node-bindgen");
+    std::fs::create_dir_all(&out_dir).map_err(|e| format!("cannot create {}: {e}", out_dir.display()))?;
+    let mut bindgen = wasm_bindgen_cli_support::Bindgen::new();
+    bindgen.input_path(&wasm).nodejs(true).map_err(|e| format!("bindgen: {e}"))?.typescript(false);
+    let mut generated = bindgen.generate_output().map_err(|e| format!("bindgen: {e}"))?;
+    generated.emit(&out_dir).map_err(|e| format!("bindgen: {e}"))?;
+    Ok(out_dir.join("flipwright_web.js"))
+}
+
+/// The chain benchmark in wasm under Node (`tests/browser/wasm-bench.mjs`); the native
+/// figures come from `cargo bench -p flipwright-core --bench chain`.
+fn wasm_bench() -> Result<(), String> {
+    let glue = build_wasm_bench()?;
+    eprintln!("$ node tests/browser/wasm-bench.mjs");
+    let status = Command::new("node")
+        .arg("wasm-bench.mjs")
+        .current_dir(root().join("tests/browser"))
+        .env("FLIPWRIGHT_WASM_BENCH", &glue)
+        .status()
+        .map_err(|e| format!("cannot start node: {e}"))?;
+    if status.success() {
+        Ok(())
+    } else {
+        Err("wasm benchmark failed".to_string())
+    }
+}
+
 fn bench() -> Result<(), String> {
     run("cargo", &["bench", "-p", "flipwright-core"])?;
+    wasm_bench()?;
     // The page bench compares the browser's verification with the native CLI's.
     run("cargo", &["build", "--release", "--quiet", "-p", "flipwright-cli"])?;
     ensure_browser()?;
@@ -356,6 +411,7 @@ fn main() -> ExitCode {
         Some("demo") => demo(),
         Some("test") => test(),
         Some("bench") => bench(),
+        Some("wasm-bench") => wasm_bench(),
         Some("page") => page(),
         Some("browser-test") => browser_tests(),
         Some("help") | None => {

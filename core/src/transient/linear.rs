@@ -662,9 +662,12 @@ impl FrozenFactors {
     }
 }
 
-/// Systems with at least this many unknowns go to the sparse solver (crossover measured with
-/// `cargo bench -p flipwright-core --bench linear`).
-pub const SPARSE_FROM_UNKNOWNS: usize = 40;
+/// Systems with at least this many unknowns go to the sparse solver. Measured with
+/// `cargo bench -p flipwright-core --bench chain -- crossover` and callgrind on whole runs
+/// (16 input edges): the sparse solver already needs 0.84 of the dense instructions for one
+/// stage (12 unknowns) and 0.62 for four (30); smaller systems were not measured and stay
+/// dense.
+pub const SPARSE_FROM_UNKNOWNS: usize = 12;
 
 /// Dense below [`SPARSE_FROM_UNKNOWNS`] unknowns, sparse from there: what [`simulate`]
 /// uses.
