@@ -26,7 +26,8 @@ fn built(stages: usize) -> Result<BuiltCircuit, JsError> {
     let (_, design) = DesignFile::load(DESIGN).map_err(|e| JsError::new(&format!("design: {e:?}")))?;
     let report = analyse(&design).map_err(|e| JsError::new(&e.to_string()))?;
     let pulse = design_pulse(&design, report.switching.available_trigger_amplitude_v, 20e-9);
-    chain_circuit(&design, stages, &pulse, &SimulationCorner::nominal()).map_err(|e| JsError::new(&e.to_string()))
+    chain_circuit(&design, stages, &pulse, &SimulationCorner::nominal())
+        .map_err(|e| JsError::new(&e.to_string()))
 }
 
 /// A built chain, so that the timed call is the run alone.
