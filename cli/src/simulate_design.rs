@@ -7,14 +7,13 @@ use std::io::{IsTerminal, Write as _};
 use std::path::Path;
 
 use flipwright::chain::{plan_chain, ChainRequest, Method, MethodKind};
-use flipwright::stage::analysis::analyse;
 use flipwright::stage::StageDesign;
 use flipwright::transient::export::{parse_probe, to_csv};
 use flipwright::transient::{Probe, TransientResult};
 use flipwright::units::{format_quantity, Unit};
 use flipwright::verify::{
-    self, design_pulse, in_real_polarity, BuiltCircuit, CountCheck, Measured, RunAccuracy, SearchOutcome,
-    SearchSettings, SimulationCorner, VerifyError, VerifyOptions,
+    self, in_real_polarity, BuiltCircuit, CountCheck, Measured, RunAccuracy, SearchOutcome, SearchSettings,
+    SimulationCorner, VerifyError, VerifyOptions,
 };
 
 use crate::{load_design, usage, write, Failure, EXIT_MARGINS_FAIL};
@@ -153,9 +152,8 @@ pub fn simulate_design_file(
     } else {
         // The first stage sees what one stage would: the required trigger amplitude, or the
         // swing of an identical driving stage.
-        let report = analyse(&design).map_err(|e| verify_failure(VerifyError::Analysis(e.to_string())))?;
-        let amplitude_v = report.switching.available_trigger_amplitude_v;
-        let pulse = design_pulse(&design, amplitude_v, SearchSettings::default().edge_s);
+        let pulse =
+            verify::service_pulse(&design, SearchSettings::default().edge_s).map_err(verify_failure)?;
         let accuracy = RunAccuracy::default();
         match request.divide {
             None => {

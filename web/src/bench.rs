@@ -6,10 +6,9 @@ use serde::Serialize;
 use wasm_bindgen::prelude::*;
 
 use flipwright::design_file::DesignFile;
-use flipwright::stage::analysis::analyse;
 use flipwright::transient::{simulate_with, AutomaticSolver, DenseSolver, RunStatistics, SparseSolver};
 use flipwright::verify::count::{check_counts, run_settings};
-use flipwright::verify::{chain_circuit, design_pulse, BuiltCircuit, RunAccuracy, SimulationCorner};
+use flipwright::verify::{chain_circuit, service_pulse, BuiltCircuit, RunAccuracy, SimulationCorner};
 
 /// The same stage as the native benchmark.
 const DESIGN: &str = include_str!("../../core/benches/chain-design.json");
@@ -24,8 +23,7 @@ struct BenchRun {
 
 fn built(stages: usize) -> Result<BuiltCircuit, JsError> {
     let (_, design) = DesignFile::load(DESIGN).map_err(|e| JsError::new(&format!("design: {e:?}")))?;
-    let report = analyse(&design).map_err(|e| JsError::new(&e.to_string()))?;
-    let pulse = design_pulse(&design, report.switching.available_trigger_amplitude_v, 20e-9);
+    let pulse = service_pulse(&design, 20e-9).map_err(|e| JsError::new(&e.to_string()))?;
     chain_circuit(&design, stages, &pulse, &SimulationCorner::nominal())
         .map_err(|e| JsError::new(&e.to_string()))
 }

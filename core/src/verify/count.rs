@@ -132,9 +132,13 @@ pub fn run_settings(built: &BuiltCircuit, edges: usize, accuracy: &RunAccuracy) 
 
 /// Checks an already simulated run of a plain binary chain (count modulo 2^stages).
 pub fn check_counts(built: &BuiltCircuit, result: &TransientResult, edges: usize) -> CountCheck {
+    check_counts_against(built, result, edges, &binary_cycle(built))
+}
+
+/// Settled counts of a plain binary chain over one cycle: 1, 2, …, 2^n − 1, 0.
+fn binary_cycle(built: &BuiltCircuit) -> Vec<u64> {
     let modulus = 1u64 << built.stages.len().min(63);
-    let cycle: Vec<u64> = (1..=modulus).map(|k| k % modulus).collect();
-    check_counts_against(built, result, edges, &cycle)
+    (1..=modulus).map(|k| k % modulus).collect()
 }
 
 /// Checks a run against a settled-state cycle: `cycle[k]` is the count after edge k + 1 of
@@ -179,10 +183,20 @@ pub fn run_and_check(
     edges: usize,
     accuracy: &RunAccuracy,
 ) -> Result<(CountCheck, TransientResult), RunError> {
+    run_and_check_against(built, edges, accuracy, &binary_cycle(built))
+}
+
+/// [`run_and_check`] against a settled-state cycle (see [`check_counts_against`]).
+pub fn run_and_check_against(
+    built: &BuiltCircuit,
+    edges: usize,
+    accuracy: &RunAccuracy,
+    cycle: &[u64],
+) -> Result<(CountCheck, TransientResult), RunError> {
     if edges == 0 || edges > MAX_EDGES {
         return Err(RunError::EdgeCount { requested: edges });
     }
     let settings = run_settings(built, edges, accuracy);
     let result = simulate(&built.circuit, &settings, &built.hints)?;
-    Ok((check_counts(built, &result, edges), result))
+    Ok((check_counts_against(built, &result, edges, cycle), result))
 }

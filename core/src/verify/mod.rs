@@ -242,14 +242,8 @@ pub fn verify_planned_chain(
         crate::chain::Method::SkipFeedback { receiving_stages, .. } => receiving_stages.clone(),
         crate::chain::Method::ResetOnCount { .. } => return Err(VerifyError::NotSimulated),
     };
-    if edges == 0 || edges > count::MAX_EDGES {
-        return Err(VerifyError::Run(RunError::EdgeCount { requested: edges }));
-    }
     let built = build::chain_circuit_with_feedback(design, stage_count, &receiving, pulse, corner)?;
-    let settings = count::run_settings(&built, edges, accuracy);
-    let result =
-        crate::transient::simulate(&built.circuit, &settings, &built.hints).map_err(RunError::from)?;
     let cycle: Vec<u64> = plan.count_sequence.iter().map(|step| u64::from(step.settled_state)).collect();
-    let check = count::check_counts_against(&built, &result, edges, &cycle);
+    let (check, result) = count::run_and_check_against(&built, edges, accuracy, &cycle)?;
     Ok((check, result, built))
 }

@@ -156,7 +156,7 @@ pub fn measure_sensitivity(
     corner: &SimulationCorner,
     settings: &SearchSettings,
     estimate_v: Option<f64>,
-    mut progress: impl FnMut() -> bool,
+    progress: impl FnMut() -> bool,
 ) -> Result<Measured, RunError> {
     let supply = design.input().supplies.collector_supply_v * corner.supply_factor;
     let spec = SearchSpec {
@@ -168,12 +168,8 @@ pub fn measure_sensitivity(
         expansions: 0,
         expansion_factor: 1.0,
     };
-    let (outcome, runs) = bisect(&spec, |amplitude_v| {
-        if !progress() {
-            return Err(RunError::Cancelled);
-        }
-        let pulse = InputPulse { amplitude_v, rate_hz, edge_s: settings.edge_s, duty: 0.5 };
-        stage_toggles(design, &pulse, corner, settings)
+    let (outcome, runs) = square_wave_search(design, corner, settings, &spec, progress, |amplitude_v| {
+        InputPulse { amplitude_v, rate_hz, edge_s: settings.edge_s, duty: 0.5 }
     })?;
     Ok(Measured {
         quantity: "minimum trigger amplitude".to_string(),
@@ -209,7 +205,7 @@ pub fn measure_max_rate(
     corner: &SimulationCorner,
     settings: &SearchSettings,
     estimate_hz: Option<f64>,
-    mut progress: impl FnMut() -> bool,
+    progress: impl FnMut() -> bool,
 ) -> Result<Measured, RunError> {
     let required = design.input().requirements.toggle_rate_hz;
     let reference = estimate_hz.filter(|f| f.is_finite() && *f > 0.0).unwrap_or(required);
@@ -222,13 +218,8 @@ pub fn measure_max_rate(
         expansions: 3,
         expansion_factor: 8.0,
     };
-    let (outcome, runs) = bisect(&spec, |rate_hz| {
-        let rate_hz = rate_hz.min(1e10);
-        if !progress() {
-            return Err(RunError::Cancelled);
-        }
-        let pulse = InputPulse { amplitude_v, rate_hz, edge_s: settings.edge_s, duty: 0.5 };
-        stage_toggles(design, &pulse, corner, settings)
+    let (outcome, runs) = square_wave_search(design, corner, settings, &spec, progress, |rate_hz| {
+        InputPulse { amplitude_v, rate_hz: rate_hz.min(1e10), edge_s: settings.edge_s, duty: 0.5 }
     })?;
     Ok(Measured {
         quantity: "maximum toggle rate".to_string(),
@@ -248,6 +239,24 @@ pub fn measure_max_rate(
             format_quantity(settings.edge_s, Unit::Second),
             corner.temperature_c
         ),
+    })
+}
+
+/// Bisection whose trials are square-wave runs of the stage: `pulse_at` turns the searched
+/// value into the input pulse; `progress` is asked before every trial (false cancels).
+fn square_wave_search(
+    design: &StageDesign,
+    corner: &SimulationCorner,
+    settings: &SearchSettings,
+    spec: &SearchSpec,
+    mut progress: impl FnMut() -> bool,
+    pulse_at: impl Fn(f64) -> InputPulse,
+) -> Result<(SearchOutcome, usize), RunError> {
+    bisect(spec, |value| {
+        if !progress() {
+            return Err(RunError::Cancelled);
+        }
+        stage_toggles(design, &pulse_at(value), corner, settings)
     })
 }
 
