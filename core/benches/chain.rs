@@ -9,18 +9,20 @@
 //! `sparse-only` (skip the dense runs), `crossover` (only the dense/sparse crossover table),
 //! `once dense|sparse|pivoting STAGES EDGES` (one run, for a profiler).
 
+mod common;
+
+use common::median_and_quartiles;
 use std::hint::black_box;
 use std::time::Instant;
 
 use flipwright::design_file::DesignFile;
-use flipwright::stage::analysis::analyse;
 use flipwright::stage::StageDesign;
 use flipwright::transient::system::System;
 use flipwright::transient::{
     simulate_with, AutomaticSolver, DenseSolver, LinearSolver, SparseSolver, TransientResult,
 };
 use flipwright::verify::count::{check_counts, run_settings};
-use flipwright::verify::{chain_circuit, design_pulse, BuiltCircuit, RunAccuracy, SimulationCorner};
+use flipwright::verify::{chain_circuit, service_pulse, BuiltCircuit, RunAccuracy, SimulationCorner};
 
 const DESIGN: &str = include_str!("chain-design.json");
 
@@ -39,8 +41,7 @@ fn design() -> StageDesign {
 /// The chain (or one stage) driven as in service: the design's rate, the amplitude a driving
 /// stage gives, 20 ns edges (as the verification tests use).
 fn built(design: &StageDesign, stages: usize) -> BuiltCircuit {
-    let report = analyse(design).unwrap_or_else(|e| fail(format!("analysis failed: {e}")));
-    let pulse = design_pulse(design, report.switching.available_trigger_amplitude_v, 20e-9);
+    let pulse = service_pulse(design, 20e-9).unwrap_or_else(|e| fail(format!("analysis failed: {e}")));
     chain_circuit(design, stages, &pulse, &SimulationCorner::nominal())
         .unwrap_or_else(|e| fail(format!("cannot build the chain: {e}")))
 }
@@ -100,11 +101,9 @@ struct Quartiles {
     high: f64,
 }
 
-fn quartiles(mut samples: Vec<f64>) -> Quartiles {
-    samples.sort_by(f64::total_cmp);
-    let at =
-        |q: f64| samples.get(((samples.len() - 1) as f64 * q).round() as usize).copied().unwrap_or(f64::NAN);
-    Quartiles { low: at(0.25), median: at(0.5), high: at(0.75) }
+fn quartiles(samples: Vec<f64>) -> Quartiles {
+    let (median, low, high) = median_and_quartiles(samples);
+    Quartiles { low, median, high }
 }
 
 /// One case with one solver: the run's counts and check, then timed repetitions.

@@ -3,8 +3,9 @@
 //!
 //! A plain harness (no framework): many timed repetitions, report median and spread.
 
-use std::hint::black_box;
-use std::time::Instant;
+mod common;
+
+use common::{median_and_quartiles, timed_samples};
 
 use flipwright::design_file::DesignFile;
 use flipwright::stage::analysis::analyse;
@@ -12,25 +13,9 @@ use flipwright::stage::synthesis::synthesise;
 use flipwright::stage::worst_case;
 use flipwright::stage::StageDesign;
 
-fn median_and_quartiles(mut samples: Vec<f64>) -> (f64, f64, f64) {
-    samples.sort_by(f64::total_cmp);
-    let at =
-        |q: f64| samples.get(((samples.len() - 1) as f64 * q).round() as usize).copied().unwrap_or(f64::NAN);
-    (at(0.5), at(0.25), at(0.75))
-}
-
 fn time<T>(label: &str, repetitions: usize, mut work: impl FnMut() -> T) {
     // Warm up caches and branch predictors.
-    for _ in 0..repetitions.min(20) {
-        black_box(work());
-    }
-    let samples: Vec<f64> = (0..repetitions)
-        .map(|_| {
-            let start = Instant::now();
-            black_box(work());
-            start.elapsed().as_secs_f64()
-        })
-        .collect();
+    let samples = timed_samples(repetitions, repetitions.min(20), &mut work);
     let (median, q1, q3) = median_and_quartiles(samples);
     println!(
         "{label:<46} median {:>10.1} µs   (quartiles {:.1}–{:.1} µs, n = {repetitions})",

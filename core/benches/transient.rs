@@ -4,6 +4,9 @@
 //! A plain harness like `stage.rs`: timed repetitions, median and quartiles, plus the run's
 //! own counts (steps, Newton iterations per step) and the toggles it measured.
 
+mod common;
+
+use common::median_and_quartiles;
 use std::hint::black_box;
 use std::time::Instant;
 
@@ -139,21 +142,19 @@ fn main() {
         stats.newton_iterations as f64 / stats.accepted_steps.max(1) as f64
     );
     let repetitions = 7;
-    let mut samples: Vec<f64> = (0..repetitions)
+    let samples: Vec<f64> = (0..repetitions)
         .map(|_| {
             let start = Instant::now();
             let _ = black_box(simulate(black_box(&circuit), &settings, &hints));
             start.elapsed().as_secs_f64()
         })
         .collect();
-    samples.sort_by(f64::total_cmp);
-    let at =
-        |q: f64| samples.get(((samples.len() - 1) as f64 * q).round() as usize).copied().unwrap_or(f64::NAN);
+    let (median, q1, q3) = median_and_quartiles(samples);
     println!(
         "whole run median {:.2} ms (quartiles {:.2}–{:.2} ms, n = {repetitions}); {:.2} µs per accepted step",
-        at(0.5) * 1e3,
-        at(0.25) * 1e3,
-        at(0.75) * 1e3,
-        at(0.5) * 1e6 / stats.accepted_steps.max(1) as f64
+        median * 1e3,
+        q1 * 1e3,
+        q3 * 1e3,
+        median * 1e6 / stats.accepted_steps.max(1) as f64
     );
 }

@@ -3,8 +3,9 @@
 //! divide-by-16 chain over two output periods. Run with
 //! `cargo bench -p flipwright-core --bench verify`; prints medians and the engine's counts.
 
-use std::hint::black_box;
-use std::time::Instant;
+mod common;
+
+use common::{median_and_quartiles, timed_samples};
 
 use flipwright::design_file::DesignFile;
 use flipwright::stage::synthesis::synthesise;
@@ -14,22 +15,8 @@ use flipwright::verify::{
     VerifyOptions,
 };
 
-fn median_and_quartiles(mut samples: Vec<f64>) -> (f64, f64, f64) {
-    samples.sort_by(f64::total_cmp);
-    let at =
-        |q: f64| samples.get(((samples.len() - 1) as f64 * q).round() as usize).copied().unwrap_or(f64::NAN);
-    (at(0.5), at(0.25), at(0.75))
-}
-
 fn time<T>(label: &str, repetitions: usize, mut work: impl FnMut() -> T) {
-    black_box(work());
-    let samples: Vec<f64> = (0..repetitions)
-        .map(|_| {
-            let start = Instant::now();
-            black_box(work());
-            start.elapsed().as_secs_f64()
-        })
-        .collect();
+    let samples = timed_samples(repetitions, 1, &mut work);
     let (median, q1, q3) = median_and_quartiles(samples);
     println!(
         "{label:<52} median {:>9.2} ms   (quartiles {:.2}–{:.2} ms, n = {repetitions})",
