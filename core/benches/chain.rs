@@ -7,7 +7,8 @@
 //! built by `verify::chain_circuit`. Options after `--`: `quick` (fewer repetitions),
 //! `accuracy` (also the edge-time error against a run at relative tolerance 1e-5),
 //! `sparse-only` (skip the dense runs), `crossover` (only the dense/sparse crossover table),
-//! `once dense|sparse|pivoting STAGES EDGES` (one run, for a profiler).
+//! `once dense|sparse|pivoting STAGES EDGES` (one run, for a profiler, with its steps by decade of
+//! size), `accuracy-only STAGES EDGES` (only the edge-time error, every stage's edges).
 
 mod common;
 
@@ -62,7 +63,12 @@ fn run<S: LinearSolver>(
 /// verification tests count), so a spike from the trigger network through the middle is not
 /// an edge; each change is timed at its own last crossing of the middle.
 fn output_edges(built: &BuiltCircuit, result: &TransientResult) -> Vec<f64> {
-    let Some(last) = built.stages.last() else { return Vec::new() };
+    built.stages.len().checked_sub(1).map_or_else(Vec::new, |last| stage_edges(built, result, last))
+}
+
+/// [`output_edges`] of any stage.
+fn stage_edges(built: &BuiltCircuit, result: &TransientResult, stage: usize) -> Vec<f64> {
+    let Some(last) = built.stages.get(stage) else { return Vec::new() };
     let Some(wave) = result.voltage(&last.collectors[0]) else { return Vec::new() };
     let supply = built.collector_supply_v;
     let (low, middle, high) = (0.3 * supply, 0.5 * supply, 0.7 * supply);
@@ -153,7 +159,10 @@ fn accuracy(built: &BuiltCircuit, edges: usize) {
     let loose = run(built, edges, &RunAccuracy::default(), &mut AutomaticSolver::default());
     let tight_accuracy = RunAccuracy { relative_tolerance: 1e-5, ..RunAccuracy::default() };
     let tight = run(built, edges, &tight_accuracy, &mut AutomaticSolver::default());
-    let (a, b) = (output_edges(built, &loose), output_edges(built, &tight));
+    let every_stage = |result: &TransientResult| -> Vec<f64> {
+        (0..built.stages.len()).flat_map(|stage| stage_edges(built, result, stage)).collect()
+    };
+    let (a, b) = (every_stage(&loose), every_stage(&tight));
     if a.len() != b.len() {
         println!("  accuracy: {} output edges at 1e-3 but {} at 1e-5", a.len(), b.len());
         return;
@@ -162,7 +171,7 @@ fn accuracy(built: &BuiltCircuit, edges: usize) {
     let worst = errors.iter().copied().fold(0.0, f64::max);
     let q = quartiles(errors);
     println!(
-        "  accuracy: {} last-stage edges; |t(1e-3) − t(1e-5)| median {:.3} ns, largest {:.3} ns ({} vs {} accepted steps)",
+        "  accuracy: {} output edges of all stages; |t(1e-3) − t(1e-5)| median {:.3} ns, largest {:.3} ns ({} vs {} accepted steps)",
         a.len(),
         q.median * 1e9,
         worst * 1e9,
@@ -203,6 +212,20 @@ fn crossover(design: &StageDesign, repetitions: usize) {
     }
 }
 
+/// Accepted steps by decade of step size, to see where a run spends them.
+fn print_step_histogram(result: &TransientResult) {
+    let mut decades = std::collections::BTreeMap::new();
+    for pair in result.time_s.windows(2) {
+        let step = pair[1] - pair[0];
+        if step > 0.0 {
+            *decades.entry(step.log10().floor() as i32).or_insert(0usize) += 1;
+        }
+    }
+    for (decade, count) in decades {
+        println!("  steps of 1e{decade}…1e{} s: {count}", decade + 1);
+    }
+}
+
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     let has = |flag: &str| args.iter().any(|a| a == flag);
@@ -230,6 +253,14 @@ fn main() {
             }
         };
         println!("{:?}", result.statistics);
+        print_step_histogram(&result);
+        return;
+    }
+    // `accuracy-only STAGES EDGES`: the edge-time error of one chain alone.
+    if let Some(at) = args.iter().position(|a| a == "accuracy-only") {
+        let get = |offset: usize| args.get(at + offset).map(String::as_str).unwrap_or("");
+        let built = built(&design, get(1).parse().unwrap_or(10));
+        accuracy(&built, get(2).parse().unwrap_or(128));
         return;
     }
     if has("crossover") {
