@@ -277,7 +277,28 @@ fn run(args: &[String]) -> Result<u8, Failure> {
     }
 }
 
+/// Lets the process end quietly when its reader goes away (`flipwright parts | head`), as
+/// Unix tools do, instead of `print!` panicking on the broken pipe: Rust starts programs
+/// with SIGPIPE ignored, so this puts back the default action.
+#[cfg(unix)]
+fn end_quietly_on_broken_pipe() {
+    extern "C" {
+        fn signal(signal: i32, handler: usize) -> usize;
+    }
+    const SIGPIPE: i32 = 13;
+    const DEFAULT_ACTION: usize = 0;
+    // SAFETY: restores the default disposition of one signal before any thread starts;
+    // no handler code of ours runs.
+    unsafe {
+        signal(SIGPIPE, DEFAULT_ACTION);
+    }
+}
+
+#[cfg(not(unix))]
+fn end_quietly_on_broken_pipe() {}
+
 fn main() -> ExitCode {
+    end_quietly_on_broken_pipe();
     let args: Vec<String> = std::env::args().skip(1).collect();
     match run(&args) {
         Ok(code) => ExitCode::from(code),

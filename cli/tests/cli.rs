@@ -514,3 +514,28 @@ fn chain_plans_a_decade_both_ways_and_recommends_one() {
         check_exit(&run(&["chain", bad], &scratch.0), 2, bad);
     }
 }
+
+/// Regression: a reader that stops early (`flipwright chain 4095 --json | head`) used to make
+/// the command panic on the broken pipe; it must end without a panic message. The plan's JSON
+/// is megabytes, far beyond a pipe's buffer, so the write after the close is certain. Common
+/// practice for Unix command-line tools.
+#[cfg(unix)]
+#[test]
+fn a_closed_output_pipe_ends_the_command_without_a_panic() {
+    use std::io::{BufRead, BufReader};
+    use std::process::Stdio;
+    let mut child = Command::new(BIN)
+        .args(["chain", "4095", "--json"])
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("binary starts");
+    let mut first_line = String::new();
+    let mut reader = BufReader::new(child.stdout.take().expect("piped stdout"));
+    reader.read_line(&mut first_line).expect("one line");
+    assert!(first_line.starts_with('{'), "unexpected first line {first_line:?}");
+    drop(reader);
+    let output = child.wait_with_output().expect("binary ends");
+    let message = stderr(&output);
+    assert!(!message.contains("panicked"), "panic on a closed pipe: {message}");
+}
