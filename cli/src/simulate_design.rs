@@ -344,9 +344,10 @@ fn render_planned(out: &mut String, verification: &verify::PlannedChainVerificat
         );
         let _ = writeln!(
             out,
-            "  closed form: reset pulse {} (bus above {}), race {} ({} held of {} needed)",
+            "  closed form: reset pulse {} with the bus above the knee {} (full drive for {}), race {} ({} held of {} needed)",
+            format_quantity(reset.conduction_pulse_s, Unit::Second),
+            format_quantity(reset.levels.knee_v, Unit::Volt),
             format_quantity(reset.pulse_width_s, Unit::Second),
-            format_quantity(reset.bus_drive_v, Unit::Volt),
             if reset.race.won { "won" } else { "LOST" },
             format_quantity(reset.race.available_hold_s, Unit::Second),
             format_quantity(reset.race.required_hold_s, Unit::Second)

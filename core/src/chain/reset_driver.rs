@@ -110,6 +110,10 @@ pub struct DrivenResetNetwork {
     /// Time the bus drives every stage with at least its reset current, s (from the drive
     /// becoming sufficient to its end: gate removal plus the hold).
     pub pulse_width_s: f64,
+    /// Time the bus stays above the knee (the reset diodes conduct into the bases), s: from
+    /// H passing the conduction level, through the gate's removal, to the release. This is the
+    /// pulse the simulation measures (on the bus, at `levels.knee_v`).
+    pub conduction_pulse_s: f64,
     /// Emitter current of the driver at assertion, and its base current at hFE(min), A.
     pub driver_current_a: f64,
     pub driver_base_current_a: f64,
@@ -308,6 +312,7 @@ const HOLD_SEARCH_ITERATIONS: usize = 80;
 struct Extra {
     bus_drive_v: f64,
     pulse_width_s: f64,
+    conduction_pulse_s: f64,
     driver_current_a: f64,
     driver_base_current_a: f64,
 }
@@ -391,6 +396,7 @@ fn timeline(
         Extra {
             bus_drive_v,
             pulse_width_s: available_hold_s,
+            conduction_pulse_s: to_drive + gate_removal_s + release_after_removal_s,
             driver_current_a,
             driver_base_current_a: driver_current_a / (beta + 1.0),
         },
@@ -479,6 +485,7 @@ pub fn evaluate_reset_driver(
         race,
         bus_drive_v: extra.bus_drive_v,
         pulse_width_s: extra.pulse_width_s,
+        conduction_pulse_s: extra.conduction_pulse_s,
         driver_current_a: extra.driver_current_a,
         driver_base_current_a: extra.driver_base_current_a,
         parts,

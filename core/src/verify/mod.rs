@@ -240,6 +240,9 @@ pub fn in_real_polarity(mut result: TransientResult, sign: f64) -> TransientResu
 /// Spread of stage times the reset of a planned chain is designed with (the same as
 /// `flipwright chain` states; our choice).
 pub const CHAIN_TIMING_SPREAD: f64 = 0.3;
+/// Bus dips shorter than this share of the input period belong to one reset pulse (our
+/// choice: a reset lasts a small fraction of a period, resets are N periods apart).
+pub const RESET_PULSE_MERGE_SHARE: f64 = 0.1;
 /// Most corners one planned-chain verification runs (each run takes seconds).
 pub const MAX_CORNERS: usize = 8;
 
@@ -306,11 +309,14 @@ pub struct PlannedChainOptions {
 }
 
 /// The reset pulses seen on the reset bus of one run: the spans where it stays at or above
-/// the level at which every stage gets its reset current.
+/// the knee (the level at which the reset diodes conduct into the bases, the planner's
+/// `levels.knee_v`), to compare with the planner's `conduction_pulse_s`.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct MeasuredResetPulses {
     pub level_v: f64,
-    /// Width of each pulse in order, s (a pulse still high at the end of the run is left out).
+    /// Width of each pulse in order, from the first rise above the level to the last fall
+    /// (dips shorter than `RESET_PULSE_MERGE_SHARE` of a period merged), s; a pulse still high
+    /// at the end of the run is left out.
     pub widths_s: Vec<f64>,
 }
 
@@ -342,9 +348,11 @@ pub struct PlannedChainVerification {
     pub all_correct: bool,
 }
 
-/// Widths of the spans where `values` stays at or above `level_v`, linear between samples.
-pub fn pulse_widths_above(times: &[f64], values: &[f64], level_v: f64) -> Vec<f64> {
-    let mut widths = Vec::new();
+/// Widths of the spans where `values` stays at or above `level_v`, linear between samples;
+/// spans closer together than `merge_gap_s` count as one (a reset bus dips briefly while the
+/// stages it drives change state, which is one reset pulse, not two).
+pub fn pulse_widths_above(times: &[f64], values: &[f64], level_v: f64, merge_gap_s: f64) -> Vec<f64> {
+    let mut spans: Vec<(f64, f64)> = Vec::new();
     let mut rise: Option<f64> = None;
     let cross = |i: usize| {
         let (t0, t1, v0, v1) = (times[i - 1], times[i], values[i - 1], values[i]);
@@ -361,11 +369,15 @@ pub fn pulse_widths_above(times: &[f64], values: &[f64], level_v: f64) -> Vec<f6
             rise = Some(cross(i));
         } else if before && !after {
             if let Some(start) = rise.take() {
-                widths.push(cross(i) - start);
+                let end = cross(i);
+                match spans.last_mut() {
+                    Some(last) if start - last.1 < merge_gap_s => last.1 = end,
+                    _ => spans.push((start, end)),
+                }
             }
         }
     }
-    widths
+    spans.into_iter().map(|(start, end)| end - start).collect()
 }
 
 /// Verifies a planned chain for any N by simulation at every corner of `options`: plain
@@ -389,8 +401,19 @@ pub fn verify_planned_chain_at_corners(
             if let Some(values) = options.reset_values {
                 let report = analyse(design).map_err(|e| VerifyError::Analysis(e.to_string()))?;
                 let timing = StageTiming::from_switching(&report.switching, CHAIN_TIMING_SPREAD);
-                network = evaluate_reset_driver(plan, &ResetStage::from_design(design), &timing, &values)
-                    .map_err(|e| VerifyError::Reset(e.to_string()))?;
+                // Values the closed form cannot even time are still simulated (that is how a
+                // mis-sized network is shown to fail), with the reason among the problems.
+                network = match evaluate_reset_driver(plan, &ResetStage::from_design(design), &timing, &values) {
+                    Ok(evaluated) => evaluated,
+                    Err(error) => {
+                        let mut given = network;
+                        given.values = values;
+                        given.passes = false;
+                        given.parts.clear();
+                        given.problems = vec![format!("the given values: {error}")];
+                        given
+                    }
+                };
             }
             Some(network)
         }
@@ -425,8 +448,13 @@ pub fn verify_planned_chain_at_corners(
         let (check, result) = count::run_and_check_against(&built, options.edges, &options.accuracy, &cycle)?;
         let reset_pulses = match (&built.reset, &reset) {
             (Some(nodes), Some(network)) => result.voltage(&nodes.bus).map(|bus| MeasuredResetPulses {
-                level_v: network.bus_drive_v,
-                widths_s: pulse_widths_above(&result.time_s, bus, network.bus_drive_v),
+                level_v: network.levels.knee_v,
+                widths_s: pulse_widths_above(
+                    &result.time_s,
+                    bus,
+                    network.levels.knee_v,
+                    RESET_PULSE_MERGE_SHARE * options.pulse.period_s(),
+                ),
             }),
             _ => None,
         };
