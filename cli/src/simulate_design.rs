@@ -116,9 +116,15 @@ impl DesignRequest {
     }
 
     /// Adds `--method` and `--corners`, which only a planned chain (`--divide N`) takes.
-    pub fn with_chain_choices(mut self, method: Option<&str>, corners: Option<&str>) -> Result<Self, Failure> {
+    pub fn with_chain_choices(
+        mut self,
+        method: Option<&str>,
+        corners: Option<&str>,
+    ) -> Result<Self, Failure> {
         if self.divide.is_none() && (method.is_some() || corners.is_some()) {
-            return Err(usage("--method and --corners choose how a planned chain runs: give --divide N with them"));
+            return Err(usage(
+                "--method and --corners choose how a planned chain runs: give --divide N with them",
+            ));
         }
         self.method = match method {
             None => None,
@@ -256,7 +262,9 @@ pub fn simulate_design_file(
                     );
                 }
                 let corners = match request.corners {
-                    CornerChoice::Nominal => vec![verify::NamedCorner { name: "nominal".to_string(), corner }],
+                    CornerChoice::Nominal => {
+                        vec![verify::NamedCorner { name: "nominal".to_string(), corner }]
+                    }
                     CornerChoice::Worst => verify::chain_corners(&design).into_iter().skip(1).collect(),
                     CornerChoice::All => verify::chain_corners(&design),
                 };

@@ -100,7 +100,10 @@ pub fn chain_stage_loads_with_decode(
                     loads[1] = combine_loads(loads[1], load);
                     sources.push("Q feeds a diode of the decoding gate (Rp to VCC − VF)".to_string());
                 }
-                sources.push("a reset diode (and series resistor) into Q2's base, reverse-biased at rest (no DC load)".to_string());
+                sources.push(
+                    "a reset diode (and series resistor) into Q2's base, reverse-biased at rest (no DC load)"
+                        .to_string(),
+                );
             }
             if let Method::SkipFeedback { source_stage, receiving_stages, .. } = &plan.method {
                 if stage == *source_stage {

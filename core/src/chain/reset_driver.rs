@@ -297,8 +297,14 @@ pub fn design_reset_driver(
     let exact_c = if race_small.available_hold_s >= target_s {
         HOLD_CAPACITOR_MIN_F
     } else {
-        bisect(shortfall, HOLD_CAPACITOR_MIN_F.log10(), HOLD_CAPACITOR_MAX_F.log10(), 1e-4, HOLD_SEARCH_ITERATIONS)
-            .map_or(HOLD_CAPACITOR_MAX_F, |log_c| 10f64.powf(log_c))
+        bisect(
+            shortfall,
+            HOLD_CAPACITOR_MIN_F.log10(),
+            HOLD_CAPACITOR_MAX_F.log10(),
+            1e-4,
+            HOLD_SEARCH_ITERATIONS,
+        )
+        .map_or(HOLD_CAPACITOR_MAX_F, |log_c| 10f64.powf(log_c))
     };
     values.hold_capacitor_f = stage.capacitor_series.next_up(exact_c).unwrap_or(exact_c);
     evaluate_reset_driver(plan, stage, timing, &values)
@@ -452,7 +458,9 @@ pub fn evaluate_reset_driver(
         ));
     }
     if !(timeline.rest_reverse_margin_v > 0.0) {
-        problems.push("at rest the reset bus would conduct into the OFF bases: lower Rx relative to Rr".to_string());
+        problems.push(
+            "at rest the reset bus would conduct into the OFF bases: lower Rx relative to Rr".to_string(),
+        );
     }
     if !(timeline.drive_ratio >= 1.0) {
         problems.push(format!(
@@ -530,7 +538,12 @@ fn reset_parts(
     };
     let per_stage = extra.driver_current_a / f64::from(stage_count.max(1));
     let mut parts = vec![
-        resistor("R901".to_string(), "gate pull-up Rp", values.pull_up_ohm, vcc - levels.on_collector_v - forward),
+        resistor(
+            "R901".to_string(),
+            "gate pull-up Rp",
+            values.pull_up_ohm,
+            vcc - levels.on_collector_v - forward,
+        ),
         resistor("R902".to_string(), "driver base divider, upper (Rr)", values.divider_upper_ohm, span),
         resistor("R903".to_string(), "driver base divider, lower (Rx)", values.divider_lower_ohm, span),
         resistor("R904".to_string(), "reset bus to the base return (Re)", values.emitter_resistor_ohm, span),
@@ -562,7 +575,12 @@ fn reset_parts(
             values.series_resistor_ohm,
             per_stage * values.series_resistor_ohm,
         ));
-        parts.push(diode(format!("D9{:02}", 10 + number), format!("reset diode into stage {number}'s Q2 base"), span, per_stage));
+        parts.push(diode(
+            format!("D9{:02}", 10 + number),
+            format!("reset diode into stage {number}'s Q2 base"),
+            span,
+            per_stage,
+        ));
         if decoded.contains(&stage) {
             parts.push(diode(
                 format!("D9{:02}", 50 + number),

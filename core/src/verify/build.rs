@@ -456,7 +456,12 @@ pub fn chain_circuit_with_feedback(
             };
             let base = target.bases[1].clone();
             let steering = format!("f{}", stage + 1);
-            builder.capacitor(format!("CF{}", stage + 1), &source, &steering, trigger.trigger_capacitor_f * c);
+            builder.capacitor(
+                format!("CF{}", stage + 1),
+                &source,
+                &steering,
+                trigger.trigger_capacitor_f * c,
+            );
             builder.resistor(format!("RF{}", stage + 1), &steering, "0", trigger.trigger_resistor_ohm * r);
             builder.diode(format!("DF{}", stage + 1), &base, &steering, shared.diode);
         }
@@ -549,10 +554,10 @@ fn build_chain(
     pulse: &InputPulse,
     corner: &SimulationCorner,
     extras: impl FnOnce(
-            &mut Builder,
-            &mut Vec<(String, f64)>,
-            &[StageNodes],
-            &Shared,
+        &mut Builder,
+        &mut Vec<(String, f64)>,
+        &[StageNodes],
+        &Shared,
     ) -> Result<Option<ResetNodes>, BuildError>,
 ) -> Result<BuiltCircuit, BuildError> {
     if stages == 0 || stages > MAX_CHAIN_STAGES {

@@ -24,7 +24,9 @@ pub use search::{measure_max_rate, measure_sensitivity, Measured, SearchOutcome,
 pub use timing::{measure_timings, MeasuredTimings};
 
 use crate::chain::reset::ResetStage;
-use crate::chain::reset_driver::{design_reset_driver, evaluate_reset_driver, DriverValues, DrivenResetNetwork};
+use crate::chain::reset_driver::{
+    design_reset_driver, evaluate_reset_driver, DrivenResetNetwork, DriverValues,
+};
 use crate::chain::timing::StageTiming;
 use crate::chain::{Method, MethodKind, MethodPlan};
 use crate::stage::analysis::analyse;
@@ -94,7 +96,9 @@ pub enum VerifyError {
     /// stage (the reason says what to change).
     Reset(String),
     /// Occurs when more corners are asked for than a verification may run.
-    TooManyCorners { requested: usize },
+    TooManyCorners {
+        requested: usize,
+    },
 }
 
 impl std::fmt::Display for VerifyError {
@@ -104,10 +108,9 @@ impl std::fmt::Display for VerifyError {
             VerifyError::Run(error) => write!(f, "{error}"),
             VerifyError::Analysis(reason) => write!(f, "the analysis behind the estimates failed: {reason}"),
             VerifyError::Reset(reason) => write!(f, "the reset network cannot be designed: {reason}"),
-            VerifyError::TooManyCorners { requested } => write!(
-                f,
-                "corners: {requested} asked for, at most {MAX_CORNERS}: give fewer corners"
-            ),
+            VerifyError::TooManyCorners { requested } => {
+                write!(f, "corners: {requested} asked for, at most {MAX_CORNERS}: give fewer corners")
+            }
         }
     }
 }
@@ -248,10 +251,14 @@ pub const MAX_CORNERS: usize = 8;
 
 /// The driven reset network the planner designs for a reset-on-count plan of this stage
 /// (timing from the stage's switching estimate with [`CHAIN_TIMING_SPREAD`]).
-pub fn planned_reset_driver(design: &StageDesign, plan: &MethodPlan) -> Result<DrivenResetNetwork, VerifyError> {
+pub fn planned_reset_driver(
+    design: &StageDesign,
+    plan: &MethodPlan,
+) -> Result<DrivenResetNetwork, VerifyError> {
     let report = analyse(design).map_err(|e| VerifyError::Analysis(e.to_string()))?;
     let timing = StageTiming::from_switching(&report.switching, CHAIN_TIMING_SPREAD);
-    design_reset_driver(plan, &ResetStage::from_design(design), &timing).map_err(|e| VerifyError::Reset(e.to_string()))
+    design_reset_driver(plan, &ResetStage::from_design(design), &timing)
+        .map_err(|e| VerifyError::Reset(e.to_string()))
 }
 
 /// A simulation corner with the name it is reported under.
@@ -403,17 +410,18 @@ pub fn verify_planned_chain_at_corners(
                 let timing = StageTiming::from_switching(&report.switching, CHAIN_TIMING_SPREAD);
                 // Values the closed form cannot even time are still simulated (that is how a
                 // mis-sized network is shown to fail), with the reason among the problems.
-                network = match evaluate_reset_driver(plan, &ResetStage::from_design(design), &timing, &values) {
-                    Ok(evaluated) => evaluated,
-                    Err(error) => {
-                        let mut given = network;
-                        given.values = values;
-                        given.passes = false;
-                        given.parts.clear();
-                        given.problems = vec![format!("the given values: {error}")];
-                        given
-                    }
-                };
+                network =
+                    match evaluate_reset_driver(plan, &ResetStage::from_design(design), &timing, &values) {
+                        Ok(evaluated) => evaluated,
+                        Err(error) => {
+                            let mut given = network;
+                            given.values = values;
+                            given.passes = false;
+                            given.parts.clear();
+                            given.problems = vec![format!("the given values: {error}")];
+                            given
+                        }
+                    };
             }
             Some(network)
         }

@@ -325,7 +325,8 @@ fn reset_chains_divide_by_3_5_and_12_in_simulation() {
     for modulus in [3u32, 5, 12] {
         let (verification, _) = simulate_reset_chain(modulus, nominal_only(), None);
         let check = &verification.corners[0].check;
-        let expected: Vec<Option<u64>> = (1..=2 * u64::from(modulus)).map(|k| Some(k % u64::from(modulus))).collect();
+        let expected: Vec<Option<u64>> =
+            (1..=2 * u64::from(modulus)).map(|k| Some(k % u64::from(modulus))).collect();
         assert_eq!(check.observed, expected, "N = {modulus}");
         assert!(check.correct);
     }
@@ -355,7 +356,8 @@ fn reset_pulse_width_matches_the_closed_form_at_nominal() {
     // against 136 ns (our measurement, recorded in the issue notes).
     let (verification, _) = simulate_reset_chain(10, nominal_only(), None);
     let reset = verification.reset.as_ref().expect("reset network");
-    let measured = verification.corners[0].reset_pulses.as_ref().and_then(|p| p.shortest_s()).expect("pulses seen");
+    let measured =
+        verification.corners[0].reset_pulses.as_ref().and_then(|p| p.shortest_s()).expect("pulses seen");
     let estimate = reset.pulse_width_s;
     assert!((measured / estimate - 1.0).abs() < 0.3, "measured {measured:e} s, estimate {estimate:e} s");
 }
@@ -388,8 +390,14 @@ fn planned_chain_verification_refuses_bad_requests_with_typed_errors() {
         reset_values: None,
     };
     let run = |options: &PlannedChainOptions, stages: usize, go_on: bool| {
-        flipwright::verify::verify_planned_chain_at_corners(demo_design(), method, stages, options, &mut |_| go_on)
-            .err()
+        flipwright::verify::verify_planned_chain_at_corners(
+            demo_design(),
+            method,
+            stages,
+            options,
+            &mut |_| go_on,
+        )
+        .err()
     };
     assert_eq!(run(&options(Vec::new()), 4, true), Some(VerifyError::TooManyCorners { requested: 0 }));
     let nine = vec![nominal_only()[0].clone(); 9];
@@ -399,10 +407,16 @@ fn planned_chain_verification_refuses_bad_requests_with_typed_errors() {
         Some(VerifyError::Run(flipwright::verify::RunError::Cancelled))
     );
     // A decoded stage beyond the chain's stages is a build error, not a panic.
-    assert!(matches!(run(&options(nominal_only()), 2, true), Some(VerifyError::Build(BuildError::StageCount { .. }))));
+    assert!(matches!(
+        run(&options(nominal_only()), 2, true),
+        Some(VerifyError::Build(BuildError::StageCount { .. }))
+    ));
     let hot = vec![flipwright::verify::NamedCorner {
         name: "too hot".to_string(),
         corner: SimulationCorner { temperature_c: 400.0, ..SimulationCorner::nominal() },
     }];
-    assert!(matches!(run(&options(hot), 4, true), Some(VerifyError::Build(BuildError::InvalidCorner { .. }))));
+    assert!(matches!(
+        run(&options(hot), 4, true),
+        Some(VerifyError::Build(BuildError::InvalidCorner { .. }))
+    ));
 }
