@@ -208,12 +208,12 @@ fn render(view: &ChainView) -> String {
                 for problem in &reset.problems {
                     let _ = writeln!(out, "    problem: {problem}");
                 }
-                for part in &reset.parts {
-                    let value = part.value.map_or_else(String::new, |value| {
-                        let unit = if part.kind == "capacitor" { Unit::Farad } else { Unit::Ohm };
-                        format!(" {}", format_quantity(value, unit))
-                    });
-                    let _ = writeln!(out, "    {:<5} {}{value}", part.designator, part.function);
+                for row in flipwright::table::reset_network_table(reset) {
+                    let _ = writeln!(
+                        out,
+                        "    {:<5} {:<52} {:>8}  stress {:<18} buy {}",
+                        row.designator, row.function, row.value_text, row.stress_text, row.rating_text
+                    );
                 }
                 if let Some(passive) = view.passive_reset.as_ref().filter(|p| !p.passes) {
                     let _ = writeln!(

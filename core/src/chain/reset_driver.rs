@@ -112,7 +112,10 @@ pub struct DrivenResetNetwork {
     pub pulse_width_s: f64,
     /// Time the bus stays above the knee (the reset diodes conduct into the bases), s: from
     /// H passing the conduction level, through the gate's removal, to the release. This is the
-    /// pulse the simulation measures (on the bus, at `levels.knee_v`).
+    /// pulse the simulation measures (on the bus, at `levels.knee_v`). Known to be far too
+    /// long: on the demo decade it gives about 0.86 µs where the simulated bus stays above the
+    /// knee for about 0.15 µs (the linear hold model misses how fast the driver lets go once
+    /// the stages' bases stop taking current); `pulse_width_s` is the figure that agrees.
     pub conduction_pulse_s: f64,
     /// Emitter current of the driver at assertion, and its base current at hFE(min), A.
     pub driver_current_a: f64,
