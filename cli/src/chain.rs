@@ -1,13 +1,14 @@
 //! `flipwright chain N [DESIGN]`: the plan of a divide-by-N chain — stages, methods, count
 //! sequence, duty cycle, glitch windows — and, with a design, its timing, per-stage toggle
-//! rates and the reset network with its race.
+//! rates and the reset network (with its driver transistor) with its race and parts.
 
 use std::fmt::Write;
 
 use serde::Serialize;
 
 use flipwright::chain::reset::{design_reset_for_stage, ResetNetwork};
-use flipwright::chain::timing::{chain_timing, ChainTiming, StageTiming};
+use flipwright::chain::reset_driver::{design_reset_driver_for_stage, DrivenResetNetwork};
+use flipwright::chain::timing::{chain_timing_with_reset_cycle, ChainTiming, StageTiming};
 use flipwright::chain::{plan_chain, ChainPlan, ChainRequest, MethodKind, MethodPlan, Recommendation};
 use flipwright::stage::analysis::analyse;
 use flipwright::units::{format_quantity, Unit};
@@ -23,7 +24,10 @@ const ROWS_SHOWN: usize = 40;
 struct ChainView {
     plan: ChainPlan,
     timing: Vec<(MethodKind, ChainTiming)>,
-    reset: Option<ResetNetwork>,
+    /// The reset with its driver transistor: the one built and simulated.
+    reset: Option<DrivenResetNetwork>,
+    /// The passive diode gate alone, for comparison (why the driver is there).
+    passive_reset: Option<ResetNetwork>,
     recommendation: Recommendation,
     stage_max_toggle_rate_hz: Option<f64>,
 }
@@ -45,6 +49,7 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
         plan,
         timing: Vec::new(),
         reset: None,
+        passive_reset: None,
         stage_max_toggle_rate_hz: None,
     };
     if let Some(path) = design_path {
@@ -54,9 +59,10 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
         let rate = design.input().requirements.toggle_rate_hz;
         view.stage_max_toggle_rate_hz = Some(report.worst_max_toggle_rate_hz);
         if view.plan.method(MethodKind::ResetOnCount).is_some() {
-            match design_reset_for_stage(&view.plan, &design, &timing) {
+            view.passive_reset = design_reset_for_stage(&view.plan, &design, &timing).ok();
+            match design_reset_driver_for_stage(&view.plan, &design, &timing) {
                 Ok(network) => {
-                    view.recommendation = view.plan.recommend_with_reset(&network);
+                    view.recommendation = view.plan.recommend_with_driven_reset(&network);
                     view.reset = Some(network);
                 }
                 Err(e) => view.recommendation.reasons.push(format!("the reset cannot be built: {e}")),
@@ -64,8 +70,12 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
         }
         for method in &view.plan.methods {
             let kind = method.method.kind();
-            let reset = if kind == MethodKind::ResetOnCount { view.reset.as_ref() } else { None };
-            if let Ok(t) = chain_timing(method, &timing, rate, reset) {
+            let reset_cycle = if kind == MethodKind::ResetOnCount {
+                view.reset.as_ref().map(|r| r.timeline.reset_cycle_s)
+            } else {
+                None
+            };
+            if let Ok(t) = chain_timing_with_reset_cycle(method, &timing, rate, reset_cycle) {
                 view.timing.push((kind, t));
             }
         }
@@ -177,16 +187,40 @@ fn render(view: &ChainView) -> String {
                 let v = &reset.values;
                 let _ = writeln!(
                     out,
-                    "  reset network: pull-up {}, divider {} / {}, hold capacitor {}; race {} ({})",
+                    "  reset network (driver transistor): pull-up {}, driver base divider {} / {}, hold capacitor {}, emitter resistor {}, series resistors {}; reset pulse {} (closed form); race {} ({})",
                     format_quantity(v.pull_up_ohm, Unit::Ohm),
                     format_quantity(v.divider_upper_ohm, Unit::Ohm),
                     format_quantity(v.divider_lower_ohm, Unit::Ohm),
                     format_quantity(v.hold_capacitor_f, Unit::Farad),
+                    format_quantity(v.emitter_resistor_ohm, Unit::Ohm),
+                    format_quantity(v.series_resistor_ohm, Unit::Ohm),
+                    format_quantity(reset.pulse_width_s, Unit::Second),
                     if reset.race.won { "won" } else { "LOST" },
                     reset.race.condition
                 );
+                let _ = writeln!(
+                    out,
+                    "    gate load: a decoded ON collector sinks {} at rest ({:.0} % of its collector current); driver {} at assertion",
+                    format_quantity(reset.gate_sink_current_a, Unit::Ampere),
+                    100.0 * reset.gate_sink_share,
+                    format_quantity(reset.driver_current_a, Unit::Ampere)
+                );
                 for problem in &reset.problems {
                     let _ = writeln!(out, "    problem: {problem}");
+                }
+                for row in flipwright::table::reset_network_table(reset) {
+                    let _ = writeln!(
+                        out,
+                        "    {:<5} {:<52} {:>8}  stress {:<18} buy {}",
+                        row.designator, row.function, row.value_text, row.stress_text, row.rating_text
+                    );
+                }
+                if let Some(passive) = view.passive_reset.as_ref().filter(|p| !p.passes) {
+                    let _ = writeln!(
+                        out,
+                        "  (the passive gate alone would fail: {})",
+                        passive.problems.first().map_or("", String::as_str)
+                    );
                 }
             }
         }
@@ -200,7 +234,7 @@ fn render(view: &ChainView) -> String {
     }
     let _ = writeln!(
         out,
-        "Verify by simulation: flipwright simulate DESIGN --divide {} (binary or feedback plan).",
+        "Verify by simulation: flipwright simulate DESIGN --divide {} [--method feedback|reset] [--corners all].",
         plan.modulus
     );
     out

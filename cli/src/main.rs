@@ -40,6 +40,7 @@ USAGE
                                       NAME is a node, a voltage source (its current), or
                                       voltage(NODE) / current(SOURCE)
   flipwright simulate DESIGN [--stages N | --divide N] [--edges K] [--temperature T]
+                      [--method binary|feedback|reset] [--corners nominal|worst|all]
                       [--quick] [--csv OUT] [--probe NAME,...]
                                       verify the design in DESIGN by simulation: the stage
                                       (or a ripple chain of N stages) driven for K input
@@ -49,8 +50,12 @@ USAGE
                                       maximum toggle rate beside the estimates (--quick
                                       skips the searches). --divide N (2 to 4096) builds
                                       the planned chain for N (skip-state feedback when N
-                                      is not a power of two) and checks its count sequence
-                                      over two output periods. Exit 1 if any count is wrong.
+                                      is not a power of two; --method reset for reset on
+                                      reaching N with its driven reset network) and checks
+                                      its count sequence over two output periods at each
+                                      corner asked for (worst: slow and fast from the
+                                      design's tolerances), with the reset pulse measured.
+                                      Exit 1 if any count is wrong.
   flipwright chain N [DESIGN] [--json] [--natural-binary]
                                       plan a divide-by-N chain (N from 2 to 65536): stages,
                                       reset-on-count and skip-state feedback methods, count

@@ -21,7 +21,7 @@ use crate::{input_error, parse_options, read, usage, write, Failure, EXIT_MARGIN
 pub fn run(args: &[String]) -> Result<u8, Failure> {
     let options = parse_options(
         args,
-        &["csv", "probe", "stop", "stages", "divide", "edges", "temperature"],
+        &["csv", "probe", "stop", "stages", "divide", "edges", "temperature", "method", "corners"],
         &["quick"],
     )?;
     let path = match options.positional.as_slice() {
@@ -47,7 +47,8 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
                 options.value("edges"),
                 options.value("temperature"),
                 options.has("quick"),
-            )?;
+            )?
+            .with_chain_choices(options.value("method"), options.value("corners"))?;
             simulate_design_file(&path, &design_request, &request.csv, request.probes.as_deref())
         }
         other => Err(input_error(format!(

@@ -1,6 +1,7 @@
-//! `flipwright simulate DESIGN`: the designed stage (or a ripple chain of it) simulated, its
-//! count checked after every input edge, and trigger sensitivity and maximum toggle rate
-//! measured beside the handbook estimates.
+//! `flipwright simulate DESIGN`: the designed stage (or a ripple chain of it, or a planned
+//! divide-by-N chain by any method, at chosen corners) simulated, its count checked after
+//! every input edge, and trigger sensitivity and maximum toggle rate measured beside the
+//! handbook estimates.
 
 use std::fmt::Write;
 use std::io::{IsTerminal, Write as _};
@@ -21,11 +22,25 @@ use crate::{load_design, usage, write, Failure, EXIT_MARGINS_FAIL};
 /// Design-file options of `simulate`.
 pub struct DesignRequest {
     pub stages: usize,
-    /// `--divide N`: the planned chain for N (plain binary or skip feedback).
+    /// `--divide N`: the planned chain for N (plain binary, skip feedback or reset on count).
     pub divide: Option<u32>,
     pub edges: Option<usize>,
     pub temperature_c: Option<f64>,
     pub measure: bool,
+    /// `--method binary|feedback|reset`: which planned method; none is the recommendation.
+    pub method: Option<MethodKind>,
+    pub corners: CornerChoice,
+}
+
+/// `--corners`: which simulation corners a planned chain runs at.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CornerChoice {
+    /// 25 °C, nominal values (or `--temperature`).
+    Nominal,
+    /// The two worst corners (slow and fast, from the design's tolerances).
+    Worst,
+    /// Nominal, then the two worst.
+    All,
 }
 
 impl DesignRequest {
@@ -89,7 +104,51 @@ impl DesignRequest {
         if divide.is_some() && stages != 1 {
             return Err(usage("give --divide N or --stages N, not both (--divide sets the stages)"));
         }
-        Ok(DesignRequest { stages, divide, edges, temperature_c, measure: !quick })
+        Ok(DesignRequest {
+            stages,
+            divide,
+            edges,
+            temperature_c,
+            measure: !quick,
+            method: None,
+            corners: CornerChoice::Nominal,
+        })
+    }
+
+    /// Adds `--method` and `--corners`, which only a planned chain (`--divide N`) takes.
+    pub fn with_chain_choices(
+        mut self,
+        method: Option<&str>,
+        corners: Option<&str>,
+    ) -> Result<Self, Failure> {
+        if self.divide.is_none() && (method.is_some() || corners.is_some()) {
+            return Err(usage(
+                "--method and --corners choose how a planned chain runs: give --divide N with them",
+            ));
+        }
+        self.method = match method {
+            None => None,
+            Some("binary") => Some(MethodKind::PlainBinary),
+            Some("feedback") => Some(MethodKind::SkipFeedback),
+            Some("reset") => Some(MethodKind::ResetOnCount),
+            Some(other) => {
+                return Err(usage(format!("--method wants binary, feedback or reset, got \"{other}\"")))
+            }
+        };
+        self.corners = match corners {
+            None | Some("nominal") => CornerChoice::Nominal,
+            Some("worst") => CornerChoice::Worst,
+            Some("all") => CornerChoice::All,
+            Some(other) => {
+                return Err(usage(format!("--corners wants nominal, worst or all, got \"{other}\"")))
+            }
+        };
+        if self.corners != CornerChoice::Nominal && self.temperature_c.is_some() {
+            return Err(usage(
+                "--temperature sets the nominal run only; the worst corners take their temperatures from the design's conditions: drop one of them",
+            ));
+        }
+        Ok(self)
     }
 }
 
@@ -169,44 +228,81 @@ pub fn simulate_design_file(
             Some(modulus) => {
                 let plan = plan_chain(&ChainRequest { modulus, natural_binary_code: false })
                     .map_err(|e| usage(format!("--divide: {e}")))?;
-                let kind = if modulus.is_power_of_two() {
-                    MethodKind::PlainBinary
-                } else {
-                    MethodKind::SkipFeedback
+                let kind = match request.method {
+                    Some(kind) => kind,
+                    None if modulus.is_power_of_two() => MethodKind::PlainBinary,
+                    None => MethodKind::SkipFeedback,
                 };
-                let method = plan.method(kind).ok_or_else(|| usage("--divide: no plan for that ratio"))?;
+                let Some(method) = plan.method(kind) else {
+                    return Err(usage(if modulus.is_power_of_two() {
+                        format!("--method: {modulus} is a power of two, planned as plain binary only; give --method binary or leave it out")
+                    } else {
+                        format!("--method: {modulus} is not a power of two; give --method feedback or --method reset")
+                    }));
+                };
                 what = format!(
                     "a chain of {} stages dividing by {modulus} ({})",
                     plan.stage_count,
                     match &method.method {
                         Method::SkipFeedback { receiving_stages, skipped_states, .. } => format!(
                             "the last stage presets stage(s) {} and skips {skipped_states} states",
-                            receiving_stages
-                                .iter()
-                                .map(|s| (s + 1).to_string())
-                                .collect::<Vec<_>>()
-                                .join(", ")
+                            stage_list(receiving_stages)
                         ),
-                        _ => "plain binary".to_string(),
+                        Method::ResetOnCount { decoded_stages } => format!(
+                            "reset on reaching {modulus}, decoded from stage(s) {}, through a driver transistor",
+                            stage_list(decoded_stages)
+                        ),
+                        Method::PlainBinary => "plain binary".to_string(),
                     }
                 );
-                if plan.recommendation.method == MethodKind::ResetOnCount {
+                if request.method.is_none() && !modulus.is_power_of_two() {
                     let _ = writeln!(
                         out,
-                        "The planner recommends reset on reaching N, which is not simulated yet; this run checks the feedback plan."
+                        "Method: feedback that skips states (the default); --method reset simulates reset on reaching N."
                     );
                 }
-                let edges = request.edges.unwrap_or(2 * modulus as usize);
-                verify::verify_planned_chain(
+                let corners = match request.corners {
+                    CornerChoice::Nominal => {
+                        vec![verify::NamedCorner { name: "nominal".to_string(), corner }]
+                    }
+                    CornerChoice::Worst => verify::chain_corners(&design).into_iter().skip(1).collect(),
+                    CornerChoice::All => verify::chain_corners(&design),
+                };
+                let options = verify::PlannedChainOptions {
+                    edges: request.edges.unwrap_or(2 * modulus as usize),
+                    pulse,
+                    corners,
+                    accuracy,
+                    reset_values: None,
+                };
+                let mut stderr = std::io::stderr();
+                let show = stderr.is_terminal();
+                let (verification, result, built) = verify::verify_planned_chain_at_corners(
                     &design,
                     method,
                     plan.stage_count as usize,
-                    edges,
-                    &pulse,
-                    &corner,
-                    &accuracy,
+                    &options,
+                    &mut |p| {
+                        if show {
+                            let _ = write!(stderr, "\rcorner {} of {}", p.done_runs + 1, p.total_runs);
+                            let _ = stderr.flush();
+                        }
+                        true
+                    },
                 )
-                .map_err(verify_failure)?
+                .map_err(verify_failure)?;
+                if show {
+                    let _ = write!(stderr, "\r{:<30}\r", "");
+                }
+                render_planned(&mut out, &verification);
+                let check = verification
+                    .corners
+                    .first()
+                    .map(|c| c.check.clone())
+                    .ok_or_else(|| usage("--corners: no corner was run"))?;
+                let mut check = check;
+                check.correct = verification.all_correct;
+                (check, result, built)
             }
         }
     };
@@ -234,6 +330,68 @@ pub fn simulate_design_file(
     Ok(if check.correct { 0 } else { EXIT_MARGINS_FAIL })
 }
 
+fn stage_list(stages: &[u32]) -> String {
+    stages.iter().map(|s| (s + 1).to_string()).collect::<Vec<_>>().join(", ")
+}
+
+/// The per-corner count checks and, for a reset plan, the reset network and its pulses.
+fn render_planned(out: &mut String, verification: &verify::PlannedChainVerification) {
+    if let Some(reset) = &verification.reset {
+        let v = &reset.values;
+        let _ = writeln!(
+            out,
+            "Reset network (planner): pull-up {}, driver base divider {} / {}, hold capacitor {}, emitter resistor {}, series resistors {}; driver current {}, gate sink {:.0} % of a stage's collector current.",
+            format_quantity(v.pull_up_ohm, Unit::Ohm),
+            format_quantity(v.divider_upper_ohm, Unit::Ohm),
+            format_quantity(v.divider_lower_ohm, Unit::Ohm),
+            format_quantity(v.hold_capacitor_f, Unit::Farad),
+            format_quantity(v.emitter_resistor_ohm, Unit::Ohm),
+            format_quantity(v.series_resistor_ohm, Unit::Ohm),
+            format_quantity(reset.driver_current_a, Unit::Ampere),
+            100.0 * reset.gate_sink_share
+        );
+        let _ = writeln!(
+            out,
+            "  closed form: reset pulse {} with the bus above the knee {} (full drive for {}), race {} ({} held of {} needed)",
+            format_quantity(reset.conduction_pulse_s, Unit::Second),
+            format_quantity(reset.levels.knee_v, Unit::Volt),
+            format_quantity(reset.pulse_width_s, Unit::Second),
+            if reset.race.won { "won" } else { "LOST" },
+            format_quantity(reset.race.available_hold_s, Unit::Second),
+            format_quantity(reset.race.required_hold_s, Unit::Second)
+        );
+        for problem in &reset.problems {
+            let _ = writeln!(out, "  problem: {problem}");
+        }
+    }
+    for corner in &verification.corners {
+        let c = &corner.corner;
+        let pulses = corner.reset_pulses.as_ref().map_or_else(String::new, |p| {
+            format!(
+                "; {} reset pulse(s), shortest {}",
+                p.widths_s.len(),
+                p.shortest_s().map_or_else(|| "-".to_string(), |w| format_quantity(w, Unit::Second))
+            )
+        });
+        let _ = writeln!(
+            out,
+            "Corner {:<8} ({:.0} °C, supply ×{:.2}, resistors ×{:.2}, capacitors ×{:.2}, hFE {:+.0}): {} after {} edges{}",
+            corner.name,
+            c.temperature_c,
+            c.supply_factor,
+            c.resistor_factor,
+            c.capacitor_factor,
+            c.hfe_spread,
+            match corner.check.first_error {
+                None => "PASS".to_string(),
+                Some(k) => format!("FAIL at edge {}", k + 1),
+            },
+            corner.check.edges,
+            pulses
+        );
+    }
+}
+
 fn choose_probes(
     built: &BuiltCircuit,
     result: &TransientResult,
@@ -243,6 +401,7 @@ fn choose_probes(
         Some(list) => list.split(',').map(|n| n.trim().to_string()).filter(|n| !n.is_empty()).collect(),
         None => std::iter::once(built.input_node.clone())
             .chain(built.stages.iter().flat_map(|s| s.collectors.iter().chain(s.bases.iter()).cloned()))
+            .chain(built.reset.iter().flat_map(|r| [r.hold.clone(), r.bus.clone()]))
             .collect(),
     };
     let probes = names

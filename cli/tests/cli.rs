@@ -493,6 +493,35 @@ fn simulate_divide_by_ten_follows_the_feedback_decade() {
 }
 
 #[test]
+fn simulate_divide_by_five_by_reset_at_every_corner() {
+    let scratch = Scratch::new("simulate-reset");
+    let design = demo_design_file(&scratch);
+    let path = design.to_str().expect("utf-8");
+    let output =
+        run(&["simulate", path, "--divide", "5", "--method", "reset", "--corners", "all"], &scratch.0);
+    check_exit(&output, 0, "divide by five by reset");
+    let text = stdout(&output);
+    // A counter cleared on reaching 5 counts 0 … 4 (common practice).
+    assert!(text.contains("Count after each edge: 1 2 3 4 0 1 2 3 4 0"), "{text}");
+    for corner in ["Corner nominal", "Corner slow", "Corner fast"] {
+        assert!(text.contains(corner), "{corner}: {text}");
+    }
+    assert!(text.contains("reset pulse(s)"), "{text}");
+    for (args, says) in [
+        (vec!["--divide", "5", "--method", "skip"], "--method wants binary, feedback or reset"),
+        (vec!["--divide", "8", "--method", "reset"], "--method: 8 is a power of two"),
+        (vec!["--divide", "5", "--corners", "every"], "--corners wants nominal, worst or all"),
+        (vec!["--method", "reset"], "give --divide N with them"),
+    ] {
+        let mut full = vec!["simulate", path];
+        full.extend(args.iter().copied());
+        let output = run(&full, &scratch.0);
+        check_exit(&output, 2, &full.join(" "));
+        assert!(stderr(&output).contains(says), "{full:?}: {}", stderr(&output));
+    }
+}
+
+#[test]
 fn chain_plans_a_decade_both_ways_and_recommends_one() {
     let scratch = Scratch::new("chain-plan");
     let design = demo_design_file(&scratch);

@@ -403,3 +403,71 @@ pub fn to_csv(rows: &[ComponentRow]) -> String {
     }
     out
 }
+
+/// The rows of a driven reset network's parts (`chain::reset_driver`), with the same rating
+/// rules as the stage's parts: resistors at least twice their worst dissipation, the hold
+/// capacitor at least 1.5 times the supply, diodes and the driver with the voltage and
+/// current they must stand (common practice).
+pub fn reset_network_table(network: &crate::chain::reset_driver::DrivenResetNetwork) -> Vec<ComponentRow> {
+    network
+        .parts
+        .iter()
+        .map(|part| {
+            let (value_text, code, stress_text, rating_text, meets) = match (part.kind.as_str(), part.value) {
+                ("resistor", Some(value)) => {
+                    let rating = power_rating_w(part.dissipation_w);
+                    (
+                        format_quantity(value, Unit::Ohm),
+                        format_code(value, Unit::Ohm, 3).unwrap_or_default(),
+                        format_quantity(part.dissipation_w, Unit::Watt),
+                        rating.map_or_else(
+                            || "above 10 W: redesign".to_string(),
+                            |r| format_quantity(r, Unit::Watt),
+                        ),
+                        rating.is_some(),
+                    )
+                }
+                ("capacitor", Some(value)) => {
+                    let rating = voltage_rating_v(part.voltage_v);
+                    (
+                        format_quantity(value, Unit::Farad),
+                        format_code(value, Unit::Farad, 3).unwrap_or_default(),
+                        format_quantity(part.voltage_v, Unit::Volt),
+                        rating.map_or_else(
+                            || "above 1 kV: redesign".to_string(),
+                            |r| format_quantity(r, Unit::Volt),
+                        ),
+                        rating.is_some(),
+                    )
+                }
+                _ => (
+                    String::new(),
+                    String::new(),
+                    format!(
+                        "{} , {}",
+                        format_quantity(part.voltage_v, Unit::Volt),
+                        format_quantity(part.current_a, Unit::Ampere)
+                    ),
+                    format!(
+                        "rated for at least {} and {}",
+                        format_quantity(part.voltage_v, Unit::Volt),
+                        format_quantity(part.current_a, Unit::Ampere)
+                    ),
+                    true,
+                ),
+            };
+            ComponentRow {
+                designator: part.designator.clone(),
+                part: part.kind.clone(),
+                function: part.function.clone(),
+                value: part.value,
+                value_text,
+                code,
+                tolerance_text: String::new(),
+                stress_text,
+                rating_text,
+                meets,
+            }
+        })
+        .collect()
+}

@@ -56,16 +56,24 @@ pub fn chain_stage_loads(
     design: &StageDesign,
     reset: Option<&ResetNetwork>,
 ) -> Result<Vec<StageLoads>, ChainError> {
+    chain_stage_loads_with_decode(plan, design, reset.map(|r| r.decode_load))
+}
+
+/// [`chain_stage_loads`] with the decoding gate's load given directly (`decode_load` of either
+/// reset network, passive or driven).
+pub fn chain_stage_loads_with_decode(
+    plan: &MethodPlan,
+    design: &StageDesign,
+    decode_load: Option<Load>,
+) -> Result<Vec<StageLoads>, ChainError> {
     let trigger = design.values().trigger.ok_or(ChainError::MissingTriggerNetwork)?;
     let trigger_input_f = match trigger.steering {
         Steering::Base => 2.0 * trigger.trigger_capacitor_f,
         Steering::Collector => trigger.trigger_capacitor_f,
     };
-    let decode_load = match (&plan.method, reset) {
+    let decode_load = match (&plan.method, decode_load) {
         (Method::ResetOnCount { .. }, None) => return Err(ChainError::MissingResetNetwork),
-        (Method::ResetOnCount { decoded_stages }, Some(network)) => {
-            Some((decoded_stages, network.decode_load))
-        }
+        (Method::ResetOnCount { decoded_stages }, Some(load)) => Some((decoded_stages, load)),
         _ => None,
     };
     let stage_count = u32::try_from(plan.stages.len()).unwrap_or(u32::MAX);
@@ -92,7 +100,10 @@ pub fn chain_stage_loads(
                     loads[1] = combine_loads(loads[1], load);
                     sources.push("Q feeds a diode of the decoding gate (Rp to VCC − VF)".to_string());
                 }
-                sources.push("a reset diode into Q2's base, reverse-biased at rest (no DC load)".to_string());
+                sources.push(
+                    "a reset diode (and series resistor) into Q2's base, reverse-biased at rest (no DC load)"
+                        .to_string(),
+                );
             }
             if let Method::SkipFeedback { source_stage, receiving_stages, .. } = &plan.method {
                 if stage == *source_stage {

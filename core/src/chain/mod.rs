@@ -11,12 +11,14 @@
 
 pub mod loads;
 pub mod reset;
+pub mod reset_driver;
 pub mod sequence;
 pub mod timing;
 
 use serde::{Deserialize, Serialize};
 
 use self::reset::ResetNetwork;
+use self::reset_driver::DrivenResetNetwork;
 pub use self::sequence::{
     CorrectionKind, CountStep, GlitchKind, GlitchWindow, OutputCycle, SequenceCheck, StageActivity, StartUp,
 };
@@ -228,7 +230,24 @@ impl ChainPlan {
 
     /// The recommendation once the reset network (and so its race margin) is known.
     pub fn recommend_with_reset(&self, reset: &ResetNetwork) -> Recommendation {
-        recommend(&self.methods, self.request.natural_binary_code, Some(reset))
+        let verdict = ResetVerdict {
+            passes: reset.passes,
+            problems: reset.problems.clone(),
+            race_margin_s: reset.race.available_hold_s - reset.race.required_hold_s,
+            driven: false,
+        };
+        recommend(&self.methods, self.request.natural_binary_code, Some(&verdict))
+    }
+
+    /// The recommendation once the driven reset network (with its driver transistor) is known.
+    pub fn recommend_with_driven_reset(&self, reset: &DrivenResetNetwork) -> Recommendation {
+        let verdict = ResetVerdict {
+            passes: reset.passes,
+            problems: reset.problems.clone(),
+            race_margin_s: reset.race.available_hold_s - reset.race.required_hold_s,
+            driven: true,
+        };
+        recommend(&self.methods, self.request.natural_binary_code, Some(&verdict))
     }
 }
 
@@ -247,10 +266,18 @@ pub fn plan_chain(request: &ChainRequest) -> Result<ChainPlan, ChainError> {
     Ok(ChainPlan { request: *request, modulus: request.modulus, stage_count, methods, recommendation })
 }
 
+/// What the recommendation needs to know of a designed reset (passive or driven).
+struct ResetVerdict {
+    passes: bool,
+    problems: Vec<String>,
+    race_margin_s: f64,
+    driven: bool,
+}
+
 fn recommend(
     methods: &[MethodPlan],
     natural_binary_code: bool,
-    reset: Option<&ResetNetwork>,
+    reset: Option<&ResetVerdict>,
 ) -> Recommendation {
     let find = |kind: MethodKind| methods.iter().find(|m| m.method.kind() == kind);
     let (Some(reset_plan), Some(feedback_plan)) =
@@ -275,7 +302,8 @@ fn recommend(
     );
     let transient = "feedback shows its transient state (2^(n−1)) for one stage delay; the reset shows N on the outputs for the whole reset pulse".to_string();
     if let Some(network) = reset.filter(|r| !r.passes) {
-        let mut reasons = vec!["the reset network fails its checks (feedback has none of them):".to_string()];
+        let what = if network.driven { "the driven reset network" } else { "the passive reset network" };
+        let mut reasons = vec![format!("{what} fails its checks (feedback has none of them):")];
         reasons.extend(network.problems.iter().cloned());
         if natural_binary_code {
             reasons.push("natural binary outputs were asked for, which only the reset gives: fix the reset, or decode the feedback sequence instead".to_string());
@@ -286,8 +314,9 @@ fn recommend(
     if natural_binary_code {
         let race = match reset {
             Some(network) => format!(
-                "the reset wins its race with {:.3e} s to spare",
-                network.race.available_hold_s - network.race.required_hold_s
+                "the {} reset wins its race with {:.3e} s to spare",
+                if network.driven { "driven" } else { "passive" },
+                network.race_margin_s
             ),
             None => "its race margin is not yet known: design the reset network with the stages' timing"
                 .to_string(),
@@ -311,8 +340,9 @@ fn recommend(
     ];
     if let Some(network) = reset {
         reasons.push(format!(
-            "the reset would also work (race margin {:.3e} s) if natural binary outputs are wanted",
-            network.race.available_hold_s - network.race.required_hold_s
+            "the {} reset would also work (race margin {:.3e} s) if natural binary outputs are wanted",
+            if network.driven { "driven" } else { "passive" },
+            network.race_margin_s
         ));
     }
     Recommendation { method: MethodKind::SkipFeedback, reasons }

@@ -500,14 +500,14 @@ fn extra_parts(rule: &Rule) -> ExtraParts {
             let decoded = rule.decode_mask.count_ones();
             ExtraParts {
                 diodes: decoded + 1 + n,
-                resistors: 3,
+                resistors: 4 + n,
                 capacitors: 1,
-                transistors: 0,
+                transistors: 1,
                 description: vec![
                     format!("{decoded} decoding diodes and the gate's pull-up resistor"),
                     "a hold diode and hold capacitor that stretch the reset".to_string(),
-                    "a reset divider (two resistors) biasing the reset diodes off between resets".to_string(),
-                    format!("{n} reset diodes, one into each stage's Q2 base"),
+                    "a reset driver transistor (emitter follower) with its base divider (two resistors) and emitter resistor".to_string(),
+                    format!("{n} reset diodes with series resistors, one into each stage's Q2 base"),
                 ],
             }
         }

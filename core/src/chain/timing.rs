@@ -130,6 +130,17 @@ pub fn chain_timing(
     input_rate_hz: f64,
     reset: Option<&ResetNetwork>,
 ) -> Result<ChainTiming, ChainError> {
+    chain_timing_with_reset_cycle(plan, timing, input_rate_hz, reset.map(|r| r.timeline.reset_cycle_s))
+}
+
+/// [`chain_timing`] with the reset cycle given directly (from either reset network, passive
+/// or driven: `timeline.reset_cycle_s`).
+pub fn chain_timing_with_reset_cycle(
+    plan: &MethodPlan,
+    timing: &StageTiming,
+    input_rate_hz: f64,
+    reset_cycle_s: Option<f64>,
+) -> Result<ChainTiming, ChainError> {
     timing.validate()?;
     check_range("input_rate_hz", input_rate_hz, 1e-6, 1e12, "a rate in hertz")?;
     let stage_count = u32::try_from(plan.stages.len()).unwrap_or(u32::MAX);
@@ -147,8 +158,8 @@ pub fn chain_timing(
         let ripple_part = f64::from(row.ripple_stage_delays) * tpd;
         let time = match correction.kind {
             CorrectionKind::Preset => Some(tpd),
-            CorrectionKind::Reset => match reset {
-                Some(network) => Some(network.timeline.reset_cycle_s),
+            CorrectionKind::Reset => match reset_cycle_s {
+                Some(cycle_s) => Some(cycle_s),
                 None => {
                     notes.push("the reset is not timed: design the reset network for its cycle".to_string());
                     None

@@ -5,6 +5,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use crate::chain::reset_driver::DriverValues;
 use crate::device::ebers_moll::EbersMoll;
 use crate::device::Polarity;
 use crate::stage::{BiasScheme, Load, StageDesign, Steering};
@@ -204,6 +205,8 @@ pub struct BuiltCircuit {
     pub pulse: InputPulse,
     /// Collector supply at this corner, V (for thresholds).
     pub collector_supply_v: f64,
+    /// The reset network's nodes, in a reset-on-count chain.
+    pub reset: Option<ResetNodes>,
     /// Plain sentences stating what the circuit assumes beyond the design.
     pub assumptions: Vec<String>,
 }
@@ -440,6 +443,123 @@ pub fn chain_circuit_with_feedback(
     pulse: &InputPulse,
     corner: &SimulationCorner,
 ) -> Result<BuiltCircuit, BuildError> {
+    build_chain(design, stages, pulse, corner, |builder, _, nodes, shared| {
+        let (Some(trigger), Some(last)) = (design.values().trigger, nodes.last()) else {
+            return Ok(None);
+        };
+        let source = last.collectors[0].clone();
+        let c = shared.corner.capacitor_factor;
+        let r = shared.corner.resistor_factor;
+        for &stage in receiving {
+            let Some(target) = nodes.get(stage as usize) else {
+                return Err(BuildError::StageCount { requested: stage as usize + 1 });
+            };
+            let base = target.bases[1].clone();
+            let steering = format!("f{}", stage + 1);
+            builder.capacitor(
+                format!("CF{}", stage + 1),
+                &source,
+                &steering,
+                trigger.trigger_capacitor_f * c,
+            );
+            builder.resistor(format!("RF{}", stage + 1), &steering, "0", trigger.trigger_resistor_ohm * r);
+            builder.diode(format!("DF{}", stage + 1), &base, &steering, shared.diode);
+        }
+        Ok(None)
+    })
+}
+
+/// Node names of the driven reset network in a built chain.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ResetNodes {
+    /// The decoding gate G, the hold node H, the driver's base B and the reset bus X.
+    pub gate: String,
+    pub hold: String,
+    pub driver_base: String,
+    pub bus: String,
+}
+
+/// A ripple chain with the driven reset of `crate::chain::reset_driver` (method "reset on
+/// reaching N"): decoding diodes from the gate node to the Q (Q2's collector) of every stage in
+/// `decoded`, the gate's pull-up to the supply, the hold diode and capacitor, the driver's base
+/// divider to the base return, the driver (the stages' transistor model, collector on the
+/// supply, emitter on the reset bus) with its emitter resistor, and one series resistor and
+/// reset diode from the bus into every stage's Q2 base. The corner's resistor and capacitor
+/// factors apply to the reset parts too.
+pub fn chain_circuit_with_reset(
+    design: &StageDesign,
+    stages: usize,
+    decoded: &[u32],
+    values: &DriverValues,
+    pulse: &InputPulse,
+    corner: &SimulationCorner,
+) -> Result<BuiltCircuit, BuildError> {
+    if decoded.is_empty() {
+        return Err(BuildError::StageCount { requested: 0 });
+    }
+    build_chain(design, stages, pulse, corner, |builder, hints, nodes, shared| {
+        let r = shared.corner.resistor_factor;
+        let c = shared.corner.capacitor_factor;
+        let ret = match design.values().bias {
+            BiasScheme::Fixed => "vbb",
+            BiasScheme::SelfBias => "0",
+        };
+        let (gate, hold, base, bus) = ("rg", "rh", "rb", "rx");
+        for &stage in decoded {
+            let Some(target) = nodes.get(stage as usize) else {
+                return Err(BuildError::StageCount { requested: stage as usize + 1 });
+            };
+            builder.diode(format!("DG{}", stage + 1), gate, target.output(), shared.diode);
+        }
+        builder.resistor("RP".to_string(), "vcc", gate, values.pull_up_ohm * r);
+        builder.diode("DH".to_string(), gate, hold, shared.diode);
+        builder.capacitor("CH".to_string(), hold, "0", values.hold_capacitor_f * c);
+        builder.resistor("RR".to_string(), hold, base, values.divider_upper_ohm * r);
+        builder.resistor("RX".to_string(), base, ret, values.divider_lower_ohm * r);
+        builder.elements.push(Element::Transistor {
+            name: "QR".to_string(),
+            collector: "vcc".to_string(),
+            base: base.to_string(),
+            emitter: bus.to_string(),
+            model: shared.transistor,
+        });
+        builder.resistor("RE".to_string(), bus, ret, values.emitter_resistor_ohm * r);
+        for (index, target) in nodes.iter().enumerate() {
+            let n = index + 1;
+            let series = format!("rs{n}");
+            builder.resistor(format!("RS{n}"), bus, &series, values.series_resistor_ohm * r);
+            builder.diode(format!("DR{n}"), &series, &target.bases[1], shared.diode);
+        }
+        // At rest a decoded Q is low: the gate a diode above it, the hold node near it.
+        let low = hints.iter().find(|(node, _)| nodes.first().is_some_and(|f| *node == f.collectors[1]));
+        let low_v = low.map_or(0.1, |(_, v)| *v);
+        hints.push((gate.to_string(), low_v + 0.6));
+        hints.push((hold.to_string(), low_v));
+        Ok(Some(ResetNodes {
+            gate: gate.to_string(),
+            hold: hold.to_string(),
+            driver_base: base.to_string(),
+            bus: bus.to_string(),
+        }))
+    })
+}
+
+/// The one chain construction every chain builder shares: supplies, input, `stages` stages
+/// each triggered by the previous Q, then the method's extra parts (`extras` gets the builder,
+/// the hints, the stages' nodes and the shared devices, and returns the reset network's nodes
+/// if it added one).
+fn build_chain(
+    design: &StageDesign,
+    stages: usize,
+    pulse: &InputPulse,
+    corner: &SimulationCorner,
+    extras: impl FnOnce(
+        &mut Builder,
+        &mut Vec<(String, f64)>,
+        &[StageNodes],
+        &Shared,
+    ) -> Result<Option<ResetNodes>, BuildError>,
+) -> Result<BuiltCircuit, BuildError> {
     if stages == 0 || stages > MAX_CHAIN_STAGES {
         return Err(BuildError::StageCount { requested: stages });
     }
@@ -484,27 +604,8 @@ pub fn chain_circuit_with_feedback(
         let stage = add_stage(&mut builder, &mut hints, design, &shared, &prefix, &input);
         nodes.push(stage);
     }
-    if let (Some(trigger), Some(last)) = (design.values().trigger, nodes.last()) {
-        let source = last.collectors[0].clone();
-        for &stage in receiving {
-            let Some(target) = nodes.get(stage as usize) else {
-                return Err(BuildError::StageCount { requested: stage as usize + 1 });
-            };
-            let base = target.bases[1].clone();
-            let steering = format!("f{}", stage + 1);
-            let c = corner.capacitor_factor;
-            let r = corner.resistor_factor;
-            builder.capacitor(
-                format!("CF{}", stage + 1),
-                &source,
-                &steering,
-                trigger.trigger_capacitor_f * c,
-            );
-            builder.resistor(format!("RF{}", stage + 1), &steering, "0", trigger.trigger_resistor_ohm * r);
-            builder.diode(format!("DF{}", stage + 1), &base, &steering, shared.diode);
-        }
-    }
-    let assumptions = vec![
+    let reset = extras(&mut builder, &mut hints, &nodes, &shared)?;
+    let mut assumptions = vec![
         "transistor: Ebers–Moll model derived from the datasheet (see the analysis report), NPN frame".to_string(),
         format!(
             "steering diode: datasheet law, zero-bias capacitance as its junction capacitance, transit time trr/ln 2 = {:.3e} s",
@@ -514,6 +615,12 @@ pub fn chain_circuit_with_feedback(
             .to_string(),
         "ideal supplies: no source resistance or supply ringing".to_string(),
     ];
+    if reset.is_some() {
+        assumptions.push(
+            "reset network: its diodes are the steering diode, its driver the stages' transistor, at the same corner"
+                .to_string(),
+        );
+    }
     Ok(BuiltCircuit {
         circuit: Circuit { elements: builder.elements, temperature_c: corner.temperature_c },
         hints: OperatingPointHints { node_voltages_v: hints },
@@ -522,6 +629,7 @@ pub fn chain_circuit_with_feedback(
         input_node: "in".to_string(),
         pulse: *pulse,
         collector_supply_v: shared.collector_supply_v,
+        reset,
         assumptions,
     })
 }

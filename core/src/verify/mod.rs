@@ -1,6 +1,7 @@
-//! Verification by simulation: the designed stage (or a ripple chain of it) built as a
-//! transient circuit, run, and checked count by count; trigger sensitivity and maximum toggle
-//! rate measured by bisection and reported beside the handbook estimates.
+//! Verification by simulation: the designed stage (or a ripple chain of it, or a planned
+//! divide-by-N chain with its feedback or driven reset) built as a transient circuit, run, and
+//! checked count by count, at one corner or a list of them; trigger sensitivity and maximum
+//! toggle rate measured by bisection and reported beside the handbook estimates.
 //!
 //! - [`build`]: design → circuit (input pulse, corner, stage and chain builders);
 //! - [`count`]: a run over K input edges and the count read after each;
@@ -14,11 +15,20 @@ pub mod timing;
 
 use serde::{Deserialize, Serialize};
 
-pub use build::{chain_circuit, stage_circuit, BuildError, BuiltCircuit, InputPulse, SimulationCorner};
+pub use build::{
+    chain_circuit, chain_circuit_with_reset, stage_circuit, BuildError, BuiltCircuit, InputPulse, ResetNodes,
+    SimulationCorner,
+};
 pub use count::{run_and_check, CountCheck, RunAccuracy, RunError};
 pub use search::{measure_max_rate, measure_sensitivity, Measured, SearchOutcome, SearchSettings};
 pub use timing::{measure_timings, MeasuredTimings};
 
+use crate::chain::reset::ResetStage;
+use crate::chain::reset_driver::{
+    design_reset_driver, evaluate_reset_driver, DrivenResetNetwork, DriverValues,
+};
+use crate::chain::timing::StageTiming;
+use crate::chain::{Method, MethodKind, MethodPlan};
 use crate::stage::analysis::analyse;
 use crate::stage::StageDesign;
 use crate::transient::TransientResult;
@@ -82,8 +92,13 @@ pub enum VerifyError {
     Run(RunError),
     /// Occurs when the analysis that provides the estimates fails.
     Analysis(String),
-    /// Occurs when a chain method has no simulated circuit yet (reset on count).
-    NotSimulated,
+    /// Occurs when the reset network of a reset-on-count plan cannot be designed for this
+    /// stage (the reason says what to change).
+    Reset(String),
+    /// Occurs when more corners are asked for than a verification may run.
+    TooManyCorners {
+        requested: usize,
+    },
 }
 
 impl std::fmt::Display for VerifyError {
@@ -92,10 +107,10 @@ impl std::fmt::Display for VerifyError {
             VerifyError::Build(error) => write!(f, "{error}"),
             VerifyError::Run(error) => write!(f, "{error}"),
             VerifyError::Analysis(reason) => write!(f, "the analysis behind the estimates failed: {reason}"),
-            VerifyError::NotSimulated => write!(
-                f,
-                "the reset-on-count chain is not simulated yet: verify the skip-feedback plan, or a power of two"
-            ),
+            VerifyError::Reset(reason) => write!(f, "the reset network cannot be designed: {reason}"),
+            VerifyError::TooManyCorners { requested } => {
+                write!(f, "corners: {requested} asked for, at most {MAX_CORNERS}: give fewer corners")
+            }
         }
     }
 }
@@ -225,25 +240,268 @@ pub fn in_real_polarity(mut result: TransientResult, sign: f64) -> TransientResu
     result
 }
 
-/// Verifies a planned chain for any N by simulation: plain binary or skip feedback are
-/// built (the reset method is not simulated yet), run for `edges` input edges, and the count
-/// after each compared with the plan's settled count sequence.
+/// Spread of stage times the reset of a planned chain is designed with (the same as
+/// `flipwright chain` states; our choice).
+pub const CHAIN_TIMING_SPREAD: f64 = 0.3;
+/// Bus dips shorter than this share of the input period belong to one reset pulse (our
+/// choice: a reset lasts a small fraction of a period, resets are N periods apart).
+pub const RESET_PULSE_MERGE_SHARE: f64 = 0.1;
+/// Most corners one planned-chain verification runs (each run takes seconds).
+pub const MAX_CORNERS: usize = 8;
+
+/// The driven reset network the planner designs for a reset-on-count plan of this stage
+/// (timing from the stage's switching estimate with [`CHAIN_TIMING_SPREAD`]).
+pub fn planned_reset_driver(
+    design: &StageDesign,
+    plan: &MethodPlan,
+) -> Result<DrivenResetNetwork, VerifyError> {
+    let report = analyse(design).map_err(|e| VerifyError::Analysis(e.to_string()))?;
+    let timing = StageTiming::from_switching(&report.switching, CHAIN_TIMING_SPREAD);
+    design_reset_driver(plan, &ResetStage::from_design(design), &timing)
+        .map_err(|e| VerifyError::Reset(e.to_string()))
+}
+
+/// A simulation corner with the name it is reported under.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NamedCorner {
+    pub name: String,
+    pub corner: SimulationCorner,
+}
+
+/// Nominal and the stage's two worst corners for a chain: "slow" (lowest supply, resistors
+/// high, capacitors high, minimum hFE, coldest: least base drive, longest storage) and "fast"
+/// (highest supply, resistors low, capacitors low, maximum hFE, hottest: most leakage, the
+/// shortest trigger and reset times, so the tightest race). From the design's tolerances.
+pub fn chain_corners(design: &StageDesign) -> Vec<NamedCorner> {
+    let input = design.input();
+    let supply = input.supplies.tolerance;
+    let resistors = input.conditions.resistor_tolerance;
+    let capacitors = input.conditions.capacitor_tolerance;
+    vec![
+        NamedCorner { name: "nominal".to_string(), corner: SimulationCorner::nominal() },
+        NamedCorner {
+            name: "slow".to_string(),
+            corner: SimulationCorner {
+                temperature_c: input.conditions.t_min_c,
+                supply_factor: 1.0 - supply,
+                resistor_factor: 1.0 + resistors,
+                capacitor_factor: 1.0 + capacitors,
+                hfe_spread: -1.0,
+            },
+        },
+        NamedCorner {
+            name: "fast".to_string(),
+            corner: SimulationCorner {
+                temperature_c: input.conditions.t_max_c,
+                supply_factor: 1.0 + supply,
+                resistor_factor: 1.0 - resistors,
+                capacitor_factor: 1.0 - capacitors,
+                hfe_spread: 1.0,
+            },
+        },
+    ]
+}
+
+/// What a planned-chain verification runs.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PlannedChainOptions {
+    /// Input edges per corner (two output periods: 2·N).
+    pub edges: usize,
+    pub pulse: InputPulse,
+    /// One run per corner, in order; at most [`MAX_CORNERS`].
+    pub corners: Vec<NamedCorner>,
+    pub accuracy: RunAccuracy,
+    /// Reset values to simulate instead of the planner's (to try a hand-built network).
+    pub reset_values: Option<DriverValues>,
+}
+
+/// The reset pulses seen on the reset bus of one run: the spans where it stays at or above
+/// the knee (the level at which the reset diodes conduct into the bases, the planner's
+/// `levels.knee_v`), to compare with the planner's `conduction_pulse_s`.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MeasuredResetPulses {
+    pub level_v: f64,
+    /// Width of each pulse in order, from the first rise above the level to the last fall
+    /// (dips shorter than `RESET_PULSE_MERGE_SHARE` of a period merged), s; a pulse still high
+    /// at the end of the run is left out.
+    pub widths_s: Vec<f64>,
+}
+
+impl MeasuredResetPulses {
+    pub fn shortest_s(&self) -> Option<f64> {
+        self.widths_s.iter().copied().reduce(f64::min)
+    }
+}
+
+/// The count check at one corner.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct CornerCount {
+    pub name: String,
+    pub corner: SimulationCorner,
+    pub check: CountCheck,
+    /// Reset-on-count plans only.
+    pub reset_pulses: Option<MeasuredResetPulses>,
+}
+
+/// A planned chain verified at every corner asked for.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct PlannedChainVerification {
+    pub method: MethodKind,
+    pub stage_count: usize,
+    /// The reset network simulated (reset-on-count plans only), with its closed-form checks.
+    pub reset: Option<DrivenResetNetwork>,
+    pub corners: Vec<CornerCount>,
+    /// True when the count was right after every edge at every corner.
+    pub all_correct: bool,
+}
+
+/// Widths of the spans where `values` stays at or above `level_v`, linear between samples;
+/// spans closer together than `merge_gap_s` count as one (a reset bus dips briefly while the
+/// stages it drives change state, which is one reset pulse, not two).
+pub fn pulse_widths_above(times: &[f64], values: &[f64], level_v: f64, merge_gap_s: f64) -> Vec<f64> {
+    let mut spans: Vec<(f64, f64)> = Vec::new();
+    let mut rise: Option<f64> = None;
+    let cross = |i: usize| {
+        let (t0, t1, v0, v1) = (times[i - 1], times[i], values[i - 1], values[i]);
+        if v1 != v0 {
+            t0 + (level_v - v0) * (t1 - t0) / (v1 - v0)
+        } else {
+            t1
+        }
+    };
+    let count = times.len().min(values.len());
+    for i in 1..count {
+        let (before, after) = (values[i - 1] >= level_v, values[i] >= level_v);
+        if !before && after {
+            rise = Some(cross(i));
+        } else if before && !after {
+            if let Some(start) = rise.take() {
+                let end = cross(i);
+                match spans.last_mut() {
+                    Some(last) if start - last.1 < merge_gap_s => last.1 = end,
+                    _ => spans.push((start, end)),
+                }
+            }
+        }
+    }
+    spans.into_iter().map(|(start, end)| end - start).collect()
+}
+
+/// Verifies a planned chain for any N by simulation at every corner of `options`: plain
+/// binary, skip feedback, or reset on count with the driven reset network (the planner's, or
+/// `options.reset_values`), run for `options.edges` input edges, the count after each compared
+/// with the plan's settled count sequence. `progress` is called before every run; returning
+/// false cancels. Returns the first corner's waveforms and circuit for plots and CSV.
+pub fn verify_planned_chain_at_corners(
+    design: &StageDesign,
+    plan: &MethodPlan,
+    stage_count: usize,
+    options: &PlannedChainOptions,
+    progress: &mut dyn FnMut(Progress) -> bool,
+) -> Result<(PlannedChainVerification, TransientResult, BuiltCircuit), VerifyError> {
+    if options.corners.is_empty() || options.corners.len() > MAX_CORNERS {
+        return Err(VerifyError::TooManyCorners { requested: options.corners.len() });
+    }
+    let reset = match &plan.method {
+        Method::ResetOnCount { .. } => {
+            let mut network = planned_reset_driver(design, plan)?;
+            if let Some(values) = options.reset_values {
+                let report = analyse(design).map_err(|e| VerifyError::Analysis(e.to_string()))?;
+                let timing = StageTiming::from_switching(&report.switching, CHAIN_TIMING_SPREAD);
+                // Values the closed form cannot even time are still simulated (that is how a
+                // mis-sized network is shown to fail), with the reason among the problems.
+                network =
+                    match evaluate_reset_driver(plan, &ResetStage::from_design(design), &timing, &values) {
+                        Ok(evaluated) => evaluated,
+                        Err(error) => {
+                            let mut given = network;
+                            given.values = values;
+                            given.passes = false;
+                            given.parts.clear();
+                            given.problems = vec![format!("the given values: {error}")];
+                            given
+                        }
+                    };
+            }
+            Some(network)
+        }
+        _ => None,
+    };
+    let cycle: Vec<u64> = plan.count_sequence.iter().map(|step| u64::from(step.settled_state)).collect();
+    let total_runs = options.corners.len();
+    let mut corners = Vec::with_capacity(total_runs);
+    let mut first: Option<(TransientResult, BuiltCircuit)> = None;
+    for (done_runs, named) in options.corners.iter().enumerate() {
+        if !progress(Progress { done_runs, total_runs, phase: "chain run" }) {
+            return Err(VerifyError::Run(RunError::Cancelled));
+        }
+        let built = match (&plan.method, &reset) {
+            (Method::ResetOnCount { decoded_stages }, Some(network)) => build::chain_circuit_with_reset(
+                design,
+                stage_count,
+                decoded_stages,
+                &network.values,
+                &options.pulse,
+                &named.corner,
+            )?,
+            (Method::SkipFeedback { receiving_stages, .. }, _) => build::chain_circuit_with_feedback(
+                design,
+                stage_count,
+                receiving_stages,
+                &options.pulse,
+                &named.corner,
+            )?,
+            _ => build::chain_circuit(design, stage_count, &options.pulse, &named.corner)?,
+        };
+        let (check, result) = count::run_and_check_against(&built, options.edges, &options.accuracy, &cycle)?;
+        let reset_pulses = match (&built.reset, &reset) {
+            (Some(nodes), Some(network)) => result.voltage(&nodes.bus).map(|bus| MeasuredResetPulses {
+                level_v: network.levels.knee_v,
+                widths_s: pulse_widths_above(
+                    &result.time_s,
+                    bus,
+                    network.levels.knee_v,
+                    RESET_PULSE_MERGE_SHARE * options.pulse.period_s(),
+                ),
+            }),
+            _ => None,
+        };
+        corners.push(CornerCount { name: named.name.clone(), corner: named.corner, check, reset_pulses });
+        if first.is_none() {
+            first = Some((result, built));
+        }
+    }
+    let all_correct = corners.iter().all(|c| c.check.correct);
+    let Some((result, built)) = first else {
+        return Err(VerifyError::TooManyCorners { requested: 0 });
+    };
+    Ok((
+        PlannedChainVerification { method: plan.method.kind(), stage_count, reset, corners, all_correct },
+        result,
+        built,
+    ))
+}
+
+/// Verifies a planned chain for any N by simulation at one corner (see
+/// [`verify_planned_chain_at_corners`]; a reset plan gets the planner's driven reset).
 pub fn verify_planned_chain(
     design: &StageDesign,
-    plan: &crate::chain::MethodPlan,
+    plan: &MethodPlan,
     stage_count: usize,
     edges: usize,
     pulse: &InputPulse,
     corner: &SimulationCorner,
     accuracy: &RunAccuracy,
 ) -> Result<(CountCheck, TransientResult, BuiltCircuit), VerifyError> {
-    let receiving: Vec<u32> = match &plan.method {
-        crate::chain::Method::PlainBinary => Vec::new(),
-        crate::chain::Method::SkipFeedback { receiving_stages, .. } => receiving_stages.clone(),
-        crate::chain::Method::ResetOnCount { .. } => return Err(VerifyError::NotSimulated),
+    let options = PlannedChainOptions {
+        edges,
+        pulse: *pulse,
+        corners: vec![NamedCorner { name: "given".to_string(), corner: *corner }],
+        accuracy: *accuracy,
+        reset_values: None,
     };
-    let built = build::chain_circuit_with_feedback(design, stage_count, &receiving, pulse, corner)?;
-    let cycle: Vec<u64> = plan.count_sequence.iter().map(|step| u64::from(step.settled_state)).collect();
-    let (check, result) = count::run_and_check_against(&built, edges, accuracy, &cycle)?;
-    Ok((check, result, built))
+    let (verification, result, built) =
+        verify_planned_chain_at_corners(design, plan, stage_count, &options, &mut |_| true)?;
+    let check = verification.corners.into_iter().next().map(|c| c.check);
+    check.map(|check| (check, result, built)).ok_or(VerifyError::TooManyCorners { requested: 0 })
 }
