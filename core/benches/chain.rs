@@ -8,7 +8,8 @@
 //! `accuracy` (also the edge-time error against a run at relative tolerance 1e-5),
 //! `sparse-only` (skip the dense runs), `crossover` (only the dense/sparse crossover table),
 //! `once dense|sparse|pivoting STAGES EDGES` (one run, for a profiler, with its steps by decade of
-//! size), `accuracy-only STAGES EDGES` (only the edge-time error, every stage's edges).
+//! size), `accuracy-only STAGES EDGES [CHARGE_TOLERANCE_C]` (only the edge-time error, every
+//! stage's edges, against relative 1e-5 and 1 fC).
 
 mod common;
 
@@ -155,9 +156,10 @@ fn case<S: LinearSolver>(
 }
 
 /// Edge times of the last stage at the default tolerance against a run at 1e-5.
-fn accuracy(built: &BuiltCircuit, edges: usize) {
-    let loose = run(built, edges, &RunAccuracy::default(), &mut AutomaticSolver::default());
-    let tight_accuracy = RunAccuracy { relative_tolerance: 1e-5, ..RunAccuracy::default() };
+fn accuracy(built: &BuiltCircuit, edges: usize, loose_accuracy: &RunAccuracy) {
+    let loose = run(built, edges, loose_accuracy, &mut AutomaticSolver::default());
+    let tight_accuracy =
+        RunAccuracy { relative_tolerance: 1e-5, charge_tolerance_c: 1e-15, ..RunAccuracy::default() };
     let tight = run(built, edges, &tight_accuracy, &mut AutomaticSolver::default());
     let every_stage = |result: &TransientResult| -> Vec<f64> {
         (0..built.stages.len()).flat_map(|stage| stage_edges(built, result, stage)).collect()
@@ -171,7 +173,7 @@ fn accuracy(built: &BuiltCircuit, edges: usize) {
     let worst = errors.iter().copied().fold(0.0, f64::max);
     let q = quartiles(errors);
     println!(
-        "  accuracy: {} output edges of all stages; |t(1e-3) − t(1e-5)| median {:.3} ns, largest {:.3} ns ({} vs {} accepted steps)",
+        "  accuracy: {} output edges of all stages; |t − t(tight)| median {:.3} ns, largest {:.3} ns ({} vs {} accepted steps)",
         a.len(),
         q.median * 1e9,
         worst * 1e9,
@@ -260,7 +262,12 @@ fn main() {
     if let Some(at) = args.iter().position(|a| a == "accuracy-only") {
         let get = |offset: usize| args.get(at + offset).map(String::as_str).unwrap_or("");
         let built = built(&design, get(1).parse().unwrap_or(10));
-        accuracy(&built, get(2).parse().unwrap_or(128));
+        let charge_tolerance_c = get(3).parse().unwrap_or(RunAccuracy::default().charge_tolerance_c);
+        accuracy(
+            &built,
+            get(2).parse().unwrap_or(128),
+            &RunAccuracy { charge_tolerance_c, ..RunAccuracy::default() },
+        );
         return;
     }
     if has("crossover") {
@@ -279,7 +286,7 @@ fn main() {
             println!("  dense/sparse median ratio {:.2}", dense / sparse);
         }
         if has("accuracy") {
-            accuracy(&built, edges);
+            accuracy(&built, edges, &RunAccuracy::default());
         }
     }
 }

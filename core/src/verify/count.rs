@@ -17,13 +17,15 @@ const SAMPLE_LEAD_SHARE: f64 = 0.02;
 pub struct RunAccuracy {
     /// The engine's relative tolerance (charges and Newton).
     pub relative_tolerance: f64,
+    /// The engine's absolute tolerance on each charge's local truncation error, C.
+    pub charge_tolerance_c: f64,
     /// Most accepted steps one run may take.
     pub max_steps: usize,
 }
 
 impl Default for RunAccuracy {
     fn default() -> Self {
-        RunAccuracy { relative_tolerance: 1e-3, max_steps: 2_000_000 }
+        RunAccuracy { relative_tolerance: 1e-3, charge_tolerance_c: 1e-15, max_steps: 2_000_000 }
     }
 }
 
@@ -126,6 +128,7 @@ pub fn run_settings(built: &BuiltCircuit, edges: usize, accuracy: &RunAccuracy) 
     settings.max_step_s = Some((stop / 50.0).min(period / 4.0));
     settings.initial_step_s = Some(built.pulse.effective_edge_s() * 1e-3);
     settings.relative_tolerance = accuracy.relative_tolerance;
+    settings.charge_tolerance_c = accuracy.charge_tolerance_c;
     settings.max_steps = accuracy.max_steps;
     settings
 }
