@@ -34,6 +34,43 @@ const FIELDS = [
   ["loads.1.resistance_ohm", "Load on Q2 output (Ω to 0 V; blank = none)", "optional"],
 ];
 
+// The counter chain: blank divide ratio = a single stage (no chain section in the file).
+const CHAIN_FIELDS = [
+  ["chain.divide_by", "Divide by N (2…4096; blank = one stage)", "optional"],
+  ["chain.method", "Method", "select", [["recommended", "recommended for N"], ["plain_binary", "plain binary (N = 2^n)"],
+    ["reset_on_count", "reset on reaching N"], ["skip_feedback", "skip-state feedback"]]],
+  ["chain.natural_binary_code", "Outputs must count in natural binary", "select", [["false", "no"], ["true", "yes (0…N−1, 8-4-2-1)"]]],
+];
+
+// The user's own transistor: the datasheet fields of the core's TransistorDatasheet the form
+// offers (the rest are kept from the class it started from, or from the file).
+const CUSTOM_TRANSISTOR = "custom:entered";
+const DATASHEET_FIELDS = [
+  ["transistor.label", "Part name", "text"],
+  ["transistor.polarity", "Polarity", "select", [["npn", "NPN"], ["pnp", "PNP"]]],
+  ["transistor.material", "Material", "select", [["silicon", "silicon"], ["germanium", "germanium"]]],
+  ["transistor.hfe_min", "hFE min", "text"],
+  ["transistor.hfe_typ", "hFE typ", "text"],
+  ["transistor.hfe_max", "hFE max", "text"],
+  ["transistor.hfe_test_current_a", "hFE at IC (A)", "text"],
+  ["transistor.vce_sat_typ_v", "VCE(sat) typ (V)", "text"],
+  ["transistor.vce_sat_max_v", "VCE(sat) max (V)", "text"],
+  ["transistor.vbe_sat_min_v", "VBE(sat) min (V)", "text"],
+  ["transistor.vbe_sat_typ_v", "VBE(sat) typ (V)", "text"],
+  ["transistor.vbe_sat_max_v", "VBE(sat) max (V)", "text"],
+  ["transistor.sat_forced_gain", "Saturation at IC/IB =", "text"],
+  ["transistor.sat_test_current_a", "Saturation at IC (A)", "text"],
+  ["transistor.icbo_25c_a", "ICBO max at 25 °C (A)", "text"],
+  ["transistor.ft_hz", "fT (Hz)", "text"],
+  ["transistor.cob_f", "Cob (F)", "text"],
+  ["transistor.storage_time_constant_s", "Storage time constant τS (s)", "optional"],
+  ["transistor.vceo_v", "VCEO (V)", "text"],
+  ["transistor.vcbo_v", "VCBO (V)", "text"],
+  ["transistor.vebo_v", "VEBO (V)", "text"],
+  ["transistor.ic_max_a", "IC max (A)", "text"],
+  ["transistor.ptot_w", "Ptot (W)", "text"],
+];
+
 const VALUE_FIELDS = [
   ["values.collector_resistor_ohm", "RC (Ω)"],
   ["values.cross_resistor_ohm", "R1 (Ω)"],
@@ -160,10 +197,53 @@ function buildForm() {
   const fields = $("fields");
   fields.textContent = "";
   for (const [path, label, kind, options] of FIELDS) fields.appendChild(fieldRow(path, label, kind, options));
+  const sheet = $("datasheet-fields");
+  sheet.textContent = "";
+  for (const [path, label, kind, options] of DATASHEET_FIELDS) sheet.appendChild(fieldRow(path, label, kind, options));
+  const picker = $("f-transistor");
+  const own = document.createElement("option");
+  own.value = CUSTOM_TRANSISTOR;
+  own.textContent = "enter your part's datasheet…";
+  picker.appendChild(own);
+  picker.addEventListener("change", startDatasheet);
+  const chain = $("chain-fields");
+  chain.textContent = "";
+  for (const [path, label, kind, options] of CHAIN_FIELDS) chain.appendChild(fieldRow(path, label, kind, options));
   const values = $("value-fields");
   values.textContent = "";
   for (const [path, label] of VALUE_FIELDS) values.appendChild(fieldRow(path, label, "optional"));
   $("auto-values").addEventListener("change", () => { syncValueLock(); scheduleCompute(); });
+}
+
+/** Opens the datasheet form, filled from the class picked before (or the part in the file). */
+let lastTransistorSheet = null;
+function startDatasheet() {
+  const picker = $("f-transistor");
+  const custom = picker.value.startsWith("custom:");
+  $("datasheet").hidden = !custom;
+  if (!custom) { lastTransistorSheet = null; return; }
+  if (picker.value !== CUSTOM_TRANSISTOR) return;
+  const from = typeof current.transistor === "object" && current.transistor ? current.transistor : callNow("transistor_datasheet", current.transistor);
+  if (!from) return;
+  lastTransistorSheet = Object.assign({}, from, { label: (from.label || "my part").replace(/^generic /, "my ") , approximate: false });
+  fillDatasheet(lastTransistorSheet);
+}
+
+function fillDatasheet(sheet) {
+  for (const [path] of DATASHEET_FIELDS) {
+    const value = getPath({ transistor: sheet }, path);
+    $("f-" + path.replace(/\W/g, "-")).value = value == null ? "" : String(value);
+  }
+}
+
+function readDatasheet() {
+  const sheet = Object.assign({}, lastTransistorSheet || (typeof current.transistor === "object" ? current.transistor : {}));
+  for (const [path, , kind] of DATASHEET_FIELDS) {
+    const text = $("f-" + path.replace(/\W/g, "-")).value.trim();
+    const key = path.slice("transistor.".length);
+    sheet[key] = kind === "optional" && text === "" ? null : text;
+  }
+  return sheet;
 }
 
 function syncValueLock() {
@@ -176,6 +256,14 @@ function showInForm(design) {
     const input = $("f-" + path.replace(/\W/g, "-"));
     let value = getPath(design, path);
     if (kind === "transistor" || kind === "diode") {
+      if (kind === "transistor" && typeof value === "object" && value) {
+        lastTransistorSheet = value;
+        fillDatasheet(value);
+        input.value = CUSTOM_TRANSISTOR;
+        $("datasheet").hidden = false;
+        continue;
+      }
+      if (kind === "transistor") { $("datasheet").hidden = true; lastTransistorSheet = null; }
       if (typeof value === "object" && value) {
         // A datasheet typed in by the user: keep it, offer it by its label.
         const custom = "custom:" + (value.label || "user part");
@@ -194,6 +282,10 @@ function showInForm(design) {
     }
     input.value = value == null ? "" : String(value);
   }
+  const chain = design.chain || {};
+  $("f-chain-divide_by").value = chain.divide_by == null ? "" : String(chain.divide_by);
+  $("f-chain-method").value = chain.method || "recommended";
+  $("f-chain-natural_binary_code").value = chain.natural_binary_code ? "true" : "false";
   showValues(design.values);
 }
 
@@ -211,7 +303,8 @@ function readForm() {
     const input = $("f-" + path.replace(/\W/g, "-"));
     const text = input.value.trim();
     if (kind === "transistor" || kind === "diode") {
-      if (!text.startsWith("custom:")) design[path] = text;
+      if (kind === "transistor" && text === CUSTOM_TRANSISTOR) design.transistor = readDatasheet();
+      else if (!text.startsWith("custom:")) design[path] = text;
       continue;
     }
     if (path === "loads.1.resistance_ohm") {
@@ -222,6 +315,9 @@ function readForm() {
     if (kind === "optional" && text === "") { setPath(design, path, null); continue; }
     setPath(design, path, text);
   }
+  const divideBy = $("f-chain-divide_by").value.trim();
+  if (divideBy === "") delete design.chain;
+  else design.chain = { divide_by: divideBy, method: $("f-chain-method").value, natural_binary_code: $("f-chain-natural_binary_code").value === "true" };
   if ($("auto-values").checked) {
     design.values = null;
   } else {
@@ -403,9 +499,16 @@ function render(view, synthesis) {
     ["Rules 1/(2.3·C1·R1∥R2) · 1/(2·C1·R1∥R2)", `${si(s.max_rate_rule_bell_hz, "Hz")} · ${si(s.max_rate_rule_half_hz, "Hz")}`],
     ["Trigger: estimated minimum · available", `${si(s.min_trigger_amplitude_v, "V")} · ${si(s.available_trigger_amplitude_v, "V")}`],
   ]);
+  const plan = view.chain && view.chain.status === "ok" ? view.chain : null;
+  const chainRows = plan ? plan.parts.map(p => [p.designator, p.value_text, "", "", "", "", p.function]) : [];
   table($("parts"), ["Ref", "Value", "Code", "Tolerance", "Worst-case stress", "Buy (rating)", "Function"],
     view.table.map(r => [r.designator, r.value_text, r.code, r.tolerance_text, r.stress_text,
-      { text: r.rating_text + (r.meets ? "" : "  — NOT MET"), className: r.meets ? "" : "fail" }, r.function]));
+      { text: r.rating_text + (r.meets ? "" : "  — NOT MET"), className: r.meets ? "" : "fail" }, r.function]).concat(chainRows));
+  $("parts-chain-note").textContent = plan
+    ? `Stage 1 is listed; stages 2…${plan.stage_count} repeat its parts as R201…, R${plan.stage_count}01… ` +
+      (plan.parts.length ? `The ${plan.chosen_name} parts are R9xx, C9xx, D9xx (steering diodes of the stage's type; ratings as for the stage's own).` : "")
+    : "";
+  renderPlan(view.chain);
   const cautions = $("cautions");
   cautions.textContent = "";
   for (const c of report.cautions) { const li = document.createElement("li"); li.textContent = c; cautions.appendChild(li); }
@@ -417,8 +520,129 @@ function render(view, synthesis) {
   $("print-header").innerHTML = "";
   const h = document.createElement("h1"); h.textContent = view.name;
   const p = document.createElement("p");
-  p.textContent = `Printed ${new Date().toISOString().slice(0, 10)} · supplies ${d.supplies.collector_supply_v} V / ${d.supplies.bias_supply_v} V ±${d.supplies.tolerance} · ${d.conditions.t_min_c}…${d.conditions.t_max_c} °C · resistors ±${d.conditions.resistor_tolerance}, capacitors ±${d.conditions.capacitor_tolerance} · toggle rate ${d.requirements.toggle_rate_hz} Hz · transistor ${typeof d.transistor === "string" ? d.transistor : d.transistor.label}`;
+  p.textContent = `Printed ${new Date().toISOString().slice(0, 10)} · supplies ${d.supplies.collector_supply_v} V / ${d.supplies.bias_supply_v} V ±${d.supplies.tolerance} · ${d.conditions.t_min_c}…${d.conditions.t_max_c} °C · resistors ±${d.conditions.resistor_tolerance}, capacitors ±${d.conditions.capacitor_tolerance} · toggle rate ${d.requirements.toggle_rate_hz} Hz · transistor ${typeof d.transistor === "string" ? d.transistor : d.transistor.label}` +
+    (plan ? ` · divide by ${plan.divide_by} (${plan.stage_count} stages, ${plan.chosen_name})` : "");
   $("print-header").append(h, p);
+}
+
+// ---- chain plan ----
+let planShown = null;       // the plan view on screen, for redrawing its diagram
+
+function bitsHeader(stages) {
+  return `Q stage ${stages}…1`;
+}
+
+/** The count table, or its first and last rows when it is long (the print stays short). */
+const COUNT_ROWS = 64;
+function countRows(rows) {
+  if (rows.length <= COUNT_ROWS) return rows;
+  return rows.slice(0, COUNT_ROWS - 8).concat([null], rows.slice(-8));
+}
+
+function loadText(load) {
+  if (!load || load.kind === "none") return "—";
+  if (load.kind === "resistance") return `${si(load.resistance_ohm, "Ω")} to ${si(load.return_v, "V")}`;
+  return `${si(load.current_a, "A")} drawn`;
+}
+
+function renderPlan(outcome) {
+  const box = $("plan");
+  planShown = null;
+  const runLabel = $("plan-run-label");
+  if (!outcome) {
+    box.hidden = true;
+    runLabel.textContent = "enter a divide ratio to plan a chain";
+    drawCharts();
+    return;
+  }
+  box.hidden = false;
+  $("plan-problem").textContent = outcome.status === "ok" ? "" : "The chain cannot be planned: " + (outcome.message || outcomeProblem(outcome));
+  if (outcome.status !== "ok") return;
+  const plan = outcome;
+  planShown = plan;
+  const n = plan.stage_count;
+  runLabel.textContent = `divide by ${plan.divide_by}: ${n} stages, ${plan.chosen_name}, ${plan.divide_by} input edges`;
+  $("plan-title").textContent = `Chain plan: divide by ${plan.divide_by}`;
+  $("plan-summary").textContent = `${n} binary stage${n === 1 ? "" : "s"} (⌈log2 ${plan.divide_by}⌉ = ${n}); building ${plan.chosen_name}` +
+    (plan.chosen_by_user ? (plan.chosen === plan.recommended ? " (your choice, also the recommendation)." : ` (your choice; recommended: ${plan.methods.find(m => m.recommended)?.name}).`) : " (recommended).");
+  table($("plan-methods"), ["Method considered", "Extra parts", "Output duty", "Natural binary", "Max input rate", "Start-up"],
+    plan.methods.map(m => [
+      { text: m.name + (m.recommended ? " — recommended" : "") + (m.chosen ? " — building" : ""), className: m.chosen ? "strong" : "", sub: m.parts_description.join("; ") },
+      { text: String(m.extra_parts), className: "num" },
+      { text: `${(100 * m.output.duty_cycle).toFixed(1)} %`, className: "num", sub: `high ${m.output.high_counts} of ${plan.divide_by}` },
+      m.natural_binary ? "yes" : "no",
+      { text: m.timing ? si(m.timing.max_input_rate_hz, "Hz") : "—", className: "num" + (m.timing && !m.timing.meets_input_rate ? " fail" : ""), sub: m.timing ? (m.timing.meets_input_rate ? "meets the input rate" : "TOO SLOW for the input rate") : (m.timing_problem || "") },
+      m.start_up.unused_states === 0 ? "no unused states" : (m.start_up.every_state_enters_cycle ? `${m.start_up.unused_states} unused, join within ${m.start_up.most_pulses_to_enter} pulse(s)` : { text: "LOCK-OUT possible", className: "fail" }),
+    ]));
+  const reasons = $("plan-reasons");
+  reasons.textContent = "";
+  for (const r of plan.recommendation_reasons) { const li = document.createElement("li"); li.textContent = r; reasons.appendChild(li); }
+  const shown = countRows(plan.count_table);
+  table($("plan-count"), ["Pulse", "Count", bitsHeader(n), "Output", "Correction"],
+    shown.map(r => r === null
+      ? [{ text: "…" }, { text: `${plan.count_table.length - COUNT_ROWS} rows` }, "", "", ""]
+      : [{ text: String(r.pulse), className: "num" }, { text: String(r.state), className: "num" }, { text: r.bits, className: "bits" }, r.output_high ? "1" : "0", r.correction || ""]));
+  $("plan-count-note").textContent = plan.count_table.length > COUNT_ROWS
+    ? `First ${COUNT_ROWS - 8} and last 8 of ${plan.count_table.length} rows. The cycle starts from 0 (all stages cleared).`
+    : "The cycle starts from 0 (all stages cleared).";
+  const chosen = plan.methods.find(m => m.chosen);
+  const t = chosen && chosen.timing;
+  table($("plan-timing"), ["Quantity", "Value"], t ? [
+    ["Stage delay tpd (slowest)", { text: si(t.propagation_delay_s, "s"), className: "num" }],
+    [`Ripple delay n·tpd (n = ${n})`, { text: si(t.ripple_delay_s, "s"), className: "num" }],
+    ["f(max) = 1/(n·tpd)", { text: si(t.settling_max_input_rate_hz, "Hz"), className: "num" }],
+    ["Correction after the ripple", { text: t.correction_s == null ? "none" : si(t.correction_s, "s"), className: "num" }],
+    ["Worst settling · max input rate", { text: `${si(t.worst_settling_s, "s")} · ${si(t.max_input_rate_hz, "Hz")}`, className: "num" + (t.meets_input_rate ? "" : " fail") }],
+    ["Input rate (requirement)", { text: si(t.input_rate_hz, "Hz"), className: "num" }],
+  ] : [["Timing", (chosen && chosen.timing_problem) || "—"]]);
+  table($("plan-rates"), ["Stage", "Average rate", "Must toggle at", "Stage limit (est.)"], t ? t.stages.map(r => [
+    { text: String(r.stage + 1), className: "num" },
+    { text: si(r.average_trigger_rate_hz, "Hz"), className: "num" },
+    { text: si(r.required_toggle_rate_hz, "Hz"), className: "num" + (r.required_toggle_rate_hz > plan.stage_max_toggle_rate_hz ? " fail" : "") },
+    { text: si(plan.stage_max_toggle_rate_hz, "Hz"), className: "num" },
+  ]) : []);
+  const networkNotes = $("plan-network-notes");
+  networkNotes.textContent = "";
+  const note = (text, className) => { const li = document.createElement("li"); li.textContent = text; if (className) li.className = className; networkNotes.appendChild(li); };
+  if (plan.reset) {
+    const r = plan.reset;
+    const v = r.values;
+    $("plan-network-title").textContent = `Reset network — decodes ${plan.divide_by} (${plan.divide_by.toString(2)}) from stages ${plan.decoded_stages.map(k => k + 1).join(" and ")}`;
+    table($("plan-network"), ["Part", "Value"], [
+      ["Gate pull-up (R901)", { text: si(v.pull_up_ohm, "Ω"), className: "num" }],
+      ["Driver base divider upper · lower (R902 · R903)", { text: `${si(v.divider_upper_ohm, "Ω")} · ${si(v.divider_lower_ohm, "Ω")}`, className: "num" }],
+      ["Reset bus resistor (R904) · series resistor per stage (R911 …)", { text: `${si(v.emitter_resistor_ohm, "Ω")} · ${si(v.series_resistor_ohm, "Ω")}`, className: "num" }],
+      ["Hold capacitor (C901)", { text: si(v.hold_capacitor_f, "F"), className: "num" }],
+      ["Gate sink at rest (share of a stage's collector current)", { text: `${(100 * r.gate_sink_share).toFixed(0)} %`, className: "num" }],
+      ["Reset cycle", { text: si(r.timeline.reset_cycle_s, "s"), className: "num" }],
+      ["Race: hold needed · available", { text: `${si(r.race.required_hold_s, "s")} · ${si(r.race.available_hold_s, "s")}`, className: "num " + (r.race.won ? "pass" : "fail") }],
+    ]);
+    note(`Race ${r.race.won ? "won" : "LOST"}: ${r.race.condition}`, r.race.won ? "" : "fail");
+    for (const p of r.problems) note("Problem: " + p, "fail");
+  } else if (plan.feedback) {
+    const f = plan.feedback;
+    $("plan-network-title").textContent = "Feedback connections";
+    table($("plan-network"), ["From", "To", "Effect"], f.receiving_stages.map(k => [
+      `stage ${f.source_stage + 1} Q̄ (its 0 → 1 transition)`, `stage ${k + 1} preset input (sets it to 1)`, `skips ${f.skipped_states} states: ${f.jumps_from} → ${f.jumps_to}`]));
+  } else {
+    $("plan-network-title").textContent = "Correction network";
+    table($("plan-network"), ["Part", "Value"], [[plan.reset_problem ? "Reset network" : "None needed", plan.reset_problem || "the ripple chain alone divides by N"]]);
+  }
+  const g = plan.glitches;
+  $("plan-glitches").textContent = `${g.ripple} ripple state(s) between stage transitions` +
+    (g.reset_transient ? `, ${g.reset_transient} reset transient(s) (N shows until the reset clears it)` : "") +
+    (g.preset_transient ? `, ${g.preset_transient} preset transient(s) (one stage delay)` : "") +
+    ". A decoder of the outputs sees spikes there: strobe it after the worst settling time. " + g.examples.slice(0, 3).join("; ") + (g.examples.length ? "." : "");
+  table($("plan-loads"), ["Stage", "Q̄ (Q1 collector)", "Q (Q2 collector)", "Capacitance Q̄ · Q", "From"],
+    plan.loads.map(l => [{ text: String(l.stage + 1), className: "num" }, loadText(l.loads[0]), loadText(l.loads[1]),
+      { text: `${si(l.capacitance_f[0], "F")} · ${si(l.capacitance_f[1], "F")}`, className: "num" }, { text: l.sources.join("; "), className: "advice" }]));
+  if (plan.loads_problem) $("plan-problem").textContent = "Loads: " + plan.loads_problem;
+  const notes = $("plan-notes");
+  notes.textContent = "";
+  for (const x of plan.notes) { const li = document.createElement("li"); li.textContent = x; notes.appendChild(li); }
+  $("plan-canvas").style.height = chainHeight(n) + "px";
+  drawCharts();
+  $("plan-svg").innerHTML = printChart("timing_diagram_svg", plan.diagram, 600, Math.round(0.8 * chainHeight(n)));
 }
 
 // ---- simulation worker ----
@@ -523,6 +747,7 @@ function setRunning(text) {
   const running = text != null;
   $("verify-run").disabled = running || simulationUnavailable;
   $("chain-run").disabled = running || simulationUnavailable;
+  $("plan-run").disabled = running || simulationUnavailable;
   $("verify-progress").hidden = !running;
   clearInterval(elapsedTimer);
   if (running) {
@@ -609,6 +834,26 @@ async function verifyChain() {
   const problem = outcomeProblem(done.outcome);
   if (problem) { showStatus("The chain verification could not run: " + problem, "error"); return; }
   chainRun = { view: done.outcome, designJson: design, ms: done.ms, stages };
+  document.body.dataset.lastChainMs = done.ms.toFixed(0);
+  showStatus("");
+  renderChainRun();
+}
+
+async function verifyPlanned() {
+  const design = designForSimulation();
+  const plan = planShown;
+  if (!design || !plan) { showStatus("Enter a divide ratio N and let the plan compute first.", "error"); return; }
+  const started = performance.now();
+  const label = () => `planned chain, divide by ${plan.divide_by} (${plan.stage_count} stages, ${plan.divide_by} edges): running for ${((performance.now() - started) / 1000).toFixed(0)} s`;
+  const run = runJob("verify_planned_chain_design", { design }, label());
+  elapsedTimer = setInterval(() => { $("verify-phase").textContent = label(); }, 1000);
+  const done = await run;
+  if (!done) return;
+  const problem = outcomeProblem(done.outcome);
+  if (problem) { showStatus("The planned chain could not be verified: " + problem, "error"); return; }
+  const v = done.outcome;
+  chainRun = { view: v, designJson: design, ms: done.ms, stages: v.stage_count, planned: v };
+  document.body.dataset.lastPlannedStatus = "ok";
   document.body.dataset.lastChainMs = done.ms.toFixed(0);
   showStatus("");
   renderChainRun();
@@ -709,8 +954,11 @@ function renderChainRun() {
   if (!chainRun) return;
   const { view, ms, stages } = chainRun;
   $("chain-result").hidden = false;
-  $("chain-title").textContent = `Ripple chain of ${stages} stage${stages === 1 ? "" : "s"} (divide by ${2 ** stages})`;
-  checkVerdict($("chain-verdict"), view.check, `a ripple chain of ${stages}`);
+  const planned = chainRun.planned;
+  $("chain-title").textContent = planned
+    ? `Planned chain: divide by ${planned.divide_by}, ${stages} stages (${planned.method_name}) — simulated count against the plan's count table`
+    : `Ripple chain of ${stages} stage${stages === 1 ? "" : "s"} (divide by ${2 ** stages})`;
+  checkVerdict($("chain-verdict"), view.check, planned ? `the planned divide-by-${planned.divide_by} chain` : `a ripple chain of ${stages}`);
   countsInto($("chain-counts"), view.check, 64);
   $("chain-engine").textContent = engineLine(view.check.statistics, ms, view.pulse, view.polarity_sign);
   $("chain-canvas").style.height = chainHeight(stages) + "px";
@@ -762,6 +1010,7 @@ function drawCharts() {
   const started = performance.now();
   if (stageRun && !$("stage-result").hidden) drawOn($("stage-canvas"), "draw_waveform_chart", stageRun.view.chart);
   if (chainRun && !$("chain-result").hidden) drawOn($("chain-canvas"), "draw_timing_diagram", chainRun.view.diagram);
+  if (planShown && !$("plan").hidden) drawOn($("plan-canvas"), "draw_timing_diagram", planShown.diagram);
   document.body.dataset.lastDrawMs = (performance.now() - started).toFixed(1);
 }
 
@@ -774,6 +1023,7 @@ function markStale() {
 function initVerification() {
   $("verify-run").addEventListener("click", verifyStage);
   $("chain-run").addEventListener("click", verifyChain);
+  $("plan-run").addEventListener("click", verifyPlanned);
   $("verify-cancel").addEventListener("click", cancelWorkerJob);
   let resizeTimer = null;
   window.addEventListener("resize", () => { clearTimeout(resizeTimer); resizeTimer = setTimeout(drawCharts, 150); });

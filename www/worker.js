@@ -7,6 +7,7 @@
 const JOBS = {
   verify_design: (args, progress) => wasm_bindgen.verify_design(args.design, args.options ?? undefined, progress),
   verify_chain_design: (args) => wasm_bindgen.verify_chain_design(args.design, args.stages, args.edges),
+  verify_planned_chain_design: (args) => wasm_bindgen.verify_planned_chain_design(args.design, args.edges ?? undefined),
   // Exists only in the test-hooks build: a panic inside the worker, for the recovery test.
   force_panic: () => wasm_bindgen.force_panic(),
 };

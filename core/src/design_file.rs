@@ -9,6 +9,7 @@
 use serde::Serialize;
 use serde_json::{Map, Value};
 
+use crate::chain::{ChainRequest, MethodKind};
 use crate::device::archetypes;
 use crate::device::{DiodeDatasheet, Material, Polarity, StorageTimeTest, TransistorDatasheet};
 use crate::stage::{
@@ -45,6 +46,53 @@ pub struct DesignFile {
     pub loads: [Load; 2],
     /// Chosen values; `None` asks for synthesis.
     pub values: Option<StageValues>,
+    /// The counter chain the stage is for; `None` (files written before the section existed)
+    /// is a single stage.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub chain: Option<ChainSection>,
+}
+
+/// Largest division ratio a design file asks for: the page shows and verifies one row per
+/// count, and 4096 (12 stages) covers the dividers the tool is for.
+pub const MAX_DIVIDE_BY: u32 = 4096;
+
+/// Which chain method the user wants built.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ChainMethodChoice {
+    /// Whatever the planner recommends for N (and the reset network's race).
+    Recommended,
+    PlainBinary,
+    ResetOnCount,
+    SkipFeedback,
+}
+
+impl ChainMethodChoice {
+    /// The planner's method this choice names, `None` for [`ChainMethodChoice::Recommended`].
+    pub fn method(self) -> Option<MethodKind> {
+        match self {
+            ChainMethodChoice::Recommended => None,
+            ChainMethodChoice::PlainBinary => Some(MethodKind::PlainBinary),
+            ChainMethodChoice::ResetOnCount => Some(MethodKind::ResetOnCount),
+            ChainMethodChoice::SkipFeedback => Some(MethodKind::SkipFeedback),
+        }
+    }
+}
+
+/// The optional `chain` section: divide by N with a chain of identical stages.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub struct ChainSection {
+    /// Division ratio N, 2 to [`MAX_DIVIDE_BY`].
+    pub divide_by: u32,
+    pub method: ChainMethodChoice,
+    /// The stage outputs must read as natural binary 0 … N − 1 (8-4-2-1 for a decoder).
+    pub natural_binary_code: bool,
+}
+
+impl ChainSection {
+    pub fn request(&self) -> ChainRequest {
+        ChainRequest { modulus: self.divide_by, natural_binary_code: self.natural_binary_code }
+    }
 }
 
 /// Collects every problem of a document while it is read (shared with the circuit file).
@@ -501,6 +549,74 @@ fn read_values(reader: &mut Reader, value: &Value) -> Option<StageValues> {
     })
 }
 
+const CHAIN_METHODS: [(&str, ChainMethodChoice); 4] = [
+    ("recommended", ChainMethodChoice::Recommended),
+    ("plain_binary", ChainMethodChoice::PlainBinary),
+    ("reset_on_count", ChainMethodChoice::ResetOnCount),
+    ("skip_feedback", ChainMethodChoice::SkipFeedback),
+];
+
+fn read_chain(reader: &mut Reader, value: &Value) -> Option<ChainSection> {
+    let mut o = reader.object(Some(value), "chain")?;
+    let path = join(&o.path, "divide_by");
+    let range = format!("a whole number from {} to {MAX_DIVIDE_BY}", crate::chain::MIN_MODULUS);
+    let divide_by = match reader.number(&mut o, "divide_by") {
+        Some(n)
+            if n.fract() == 0.0
+                && n >= f64::from(crate::chain::MIN_MODULUS)
+                && n <= f64::from(MAX_DIVIDE_BY) =>
+        {
+            // In range and whole, so the conversion is exact.
+            Some(n as u32)
+        }
+        Some(n) => {
+            reader.error(path, format!("must be {range}, got {n}"));
+            None
+        }
+        None => {
+            // The reader's own message says "a number"; say which numbers.
+            if let Some(last) = reader.errors.last_mut() {
+                if last.path == path {
+                    last.message = format!("must be {range} ({})", last.message);
+                }
+            }
+            None
+        }
+    };
+    let method = reader.choice(&mut o, "method", &CHAIN_METHODS, Some(ChainMethodChoice::Recommended));
+    let natural_binary_code = reader.boolean(&mut o, "natural_binary_code", false);
+    reader.finish(o);
+    let (divide_by, method, natural_binary_code) = (divide_by?, method?, natural_binary_code?);
+    // A method that cannot divide by this N is the user's entry to fix, at the method field.
+    let power_of_two = divide_by.is_power_of_two();
+    let method_path = "chain.method".to_string();
+    match method {
+        ChainMethodChoice::PlainBinary if !power_of_two => {
+            reader.error(
+                method_path,
+                format!("plain binary divides only by a power of two; for {divide_by} choose reset on count or skip-state feedback"),
+            );
+            return None;
+        }
+        ChainMethodChoice::ResetOnCount | ChainMethodChoice::SkipFeedback if power_of_two => {
+            reader.error(
+                method_path,
+                format!("{divide_by} is a power of two: the plain binary chain divides by it with no extra parts; choose plain binary or recommended"),
+            );
+            return None;
+        }
+        ChainMethodChoice::SkipFeedback if natural_binary_code => {
+            reader.error(
+                method_path,
+                "skip-state feedback does not count in natural binary; choose reset on count, or untick natural binary code",
+            );
+            return None;
+        }
+        _ => {}
+    }
+    Some(ChainSection { divide_by, method, natural_binary_code })
+}
+
 impl DesignFile {
     /// Parses and checks the structure of a design file. Semantic checks (ranges, consistency)
     /// follow in [`DesignFile::stage_input`]/[`StageDesign::new`]; [`DesignFile::load`] does both.
@@ -596,6 +712,11 @@ impl DesignFile {
             None | Some(Value::Null) => Some(None),
             Some(v) => read_values(&mut reader, v).map(Some),
         };
+        o.used.push("chain");
+        let chain = match o.map.get("chain") {
+            None | Some(Value::Null) => Some(None),
+            Some(v) => read_chain(&mut reader, v).map(Some),
+        };
         reader.finish(o);
         if !reader.errors.is_empty() {
             return Err(reader.errors);
@@ -614,6 +735,7 @@ impl DesignFile {
             requirements: requirements.ok_or_else(missing)?,
             loads: loads.ok_or_else(missing)?,
             values: values.ok_or_else(missing)?,
+            chain: chain.ok_or_else(missing)?,
         })
     }
 
@@ -707,6 +829,7 @@ impl DesignFile {
             },
             loads: [Load::None, Load::Resistance { resistance_ohm: 47e3, return_v: 0.0 }],
             values: None,
+            chain: None,
         }
     }
 }

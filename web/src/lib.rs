@@ -3,6 +3,7 @@
 
 #[cfg(feature = "bench")]
 mod bench;
+pub mod chain;
 pub mod plots;
 mod schematic;
 pub mod traces;
@@ -33,8 +34,12 @@ pub fn start() {
 #[serde(tag = "status", rename_all = "snake_case")]
 pub enum Outcome<T: Serialize> {
     Ok(T),
-    Invalid { errors: Vec<FieldError> },
-    Failed { message: String },
+    Invalid {
+        errors: Vec<FieldError>,
+    },
+    Failed {
+        message: String,
+    },
 }
 
 /// Everything the page shows for one analysed stage.
@@ -47,6 +52,8 @@ pub struct AnalysisView {
     pub table: Vec<ComponentRow>,
     pub table_csv: String,
     pub schematic_svg: String,
+    /// The chain plan when the file divides by N (its `chain` section).
+    pub chain: Option<Outcome<chain::ChainPlanView>>,
 }
 
 /// Result of synthesis: the completed design and its analysis.
@@ -68,6 +75,7 @@ fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsError> {
 fn view(file: &DesignFile, design: &StageDesign, report: StageReport) -> AnalysisView {
     let table = component_table(design, &report, 1);
     AnalysisView {
+        chain: chain::chain_view(file.chain.as_ref(), design, &report),
         design_json: file.to_json(),
         name: file.name.clone(),
         table_csv: to_csv(&table),
@@ -267,6 +275,23 @@ fn verify_chain_text(design_json: &str, stages: usize, edges: usize) -> Outcome<
         };
     let sign = design.transistor().polarity.sign();
     let result = in_real_polarity(result, sign);
+    let diagram = chain_diagram(&built, &result, &check, &pulse);
+    Outcome::Ok(ChainVerificationView {
+        check,
+        pulse,
+        polarity_sign: sign,
+        assumptions: polarity_assumptions(built.assumptions, sign),
+        diagram,
+    })
+}
+
+/// The input and every stage's output of a chain run, decimated, with the count after each edge.
+fn chain_diagram(
+    built: &BuiltCircuit,
+    result: &flipwright::transient::TransientResult,
+    check: &CountCheck,
+    pulse: &InputPulse,
+) -> TimingDiagram {
     let nodes: Vec<(String, String)> = std::iter::once((built.input_node.clone(), "input".to_string()))
         .chain(
             built
@@ -276,18 +301,12 @@ fn verify_chain_text(design_json: &str, stages: usize, edges: usize) -> Outcome<
                 .map(|(k, stage)| (stage.output().to_string(), format!("stage {} · bit {k}", k + 1))),
         )
         .collect();
-    let diagram = TimingDiagram {
-        run: traces::decimate(&result, &nodes),
+    TimingDiagram {
+        run: traces::decimate(result, &nodes),
         edge_times_s: (0..=check.edges).map(|k| pulse.edge_time_s(k)).collect(),
         counts: check.observed.clone(),
-    };
-    Outcome::Ok(ChainVerificationView {
-        check,
-        pulse,
-        polarity_sign: sign,
-        assumptions: polarity_assumptions(built.assumptions, sign),
-        diagram,
-    })
+        logic: false,
+    }
 }
 
 fn from_js<T: serde::de::DeserializeOwned>(value: JsValue, what: &str) -> Result<T, JsError> {
@@ -341,6 +360,13 @@ pub fn archetypes() -> Result<JsValue, JsError> {
         .filter_map(|id| a::diode(id).map(|s| (id.to_string(), s.label)))
         .collect();
     to_js(&serde_json::json!({ "transistors": transistors, "diodes": diodes }))
+}
+
+/// The datasheet values of a transistor archetype (to start the page's datasheet form from),
+/// or null for an unknown name.
+#[wasm_bindgen]
+pub fn transistor_datasheet(archetype: &str) -> Result<JsValue, JsError> {
+    to_js(&flipwright::device::archetypes::transistor(archetype))
 }
 
 /// Verifies a design (with values) by simulation: the nominal run at the design's rate, then

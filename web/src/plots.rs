@@ -42,6 +42,9 @@ pub struct TimingDiagram {
     pub edge_times_s: Vec<f64>,
     /// Count read after each edge; `None` where a stage sat between its states.
     pub counts: Vec<Option<u64>>,
+    /// Ideal logic levels (a plan), labelled 0 and 1 instead of volts.
+    #[serde(default)]
+    pub logic: bool,
 }
 
 const INK: RGBColor = RGBColor(0x1b, 0x1b, 0x1b);
@@ -335,7 +338,11 @@ fn timing_diagram_on<DB: DrawingBackend>(
         let (px, py) = plot.backend_coord(&(x0, base + 0.35));
         let name = m.font(11.5).color(&INK).pos(Pos::new(HPos::Right, VPos::Bottom));
         root.draw(&Text::new(trace.label.clone(), (px - m.px(8.0), py), name)).map_err(fail)?;
-        let levels = format!("{} … {} V", tick_label(low, swing / 10.0), tick_label(high, swing / 10.0));
+        let levels = if diagram.logic {
+            "logic 0 / 1".to_string()
+        } else {
+            format!("{} … {} V", tick_label(low, swing / 10.0), tick_label(high, swing / 10.0))
+        };
         let small = m.font(10.0).color(&MUTED).pos(Pos::new(HPos::Right, VPos::Top));
         root.draw(&Text::new(levels, (px - m.px(8.0), py + m.px(2.0)), small)).map_err(fail)?;
     }
@@ -434,6 +441,7 @@ mod tests {
             run: square_run(),
             edge_times_s: vec![10e-6, 20e-6, 30e-6, 40e-6],
             counts: vec![Some(1), Some(0), None],
+            logic: false,
         };
         let svg = timing_diagram_svg(&diagram, 720, 300).unwrap_or_else(|e| unreachable!("{e}"));
         // plotters writes each text on a line of its own inside its element.

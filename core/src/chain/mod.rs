@@ -9,6 +9,7 @@
 //! bit. The chain's output is the last stage's Q; it falls once per N input pulses (the
 //! carry). Everything is in the NPN frame, like the stage module.
 
+pub mod design;
 pub mod loads;
 pub mod reset;
 pub mod reset_driver;

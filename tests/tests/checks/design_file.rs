@@ -1,6 +1,6 @@
 //! Checks of the design-file reader: round trip, every bad field reported by path, version and format guards, quantity strings, semantic validation.
 
-use flipwright::design_file::{DesignFile, DeviceChoice, FORMAT_VERSION};
+use flipwright::design_file::{ChainMethodChoice, ChainSection, DesignFile, DeviceChoice, FORMAT_VERSION};
 use flipwright::device::archetypes;
 use flipwright::stage::{BiasScheme, FieldError, StageValues, Steering, TriggerNetwork};
 use serde_json::{json, Value};
@@ -218,4 +218,81 @@ fn loaded_demo_is_a_valid_design() {
     assert_eq!(file, demo_with_values());
     assert_eq!(design.values().cross_resistor_ohm, 8.2e3);
     assert_eq!(design.transistor(), &archetypes::transistor("si-npn-switch-40v").expect("archetype"));
+}
+
+/// The chain section of a file: a version-1 document with `chain` set to `section`.
+fn with_chain(section: Value) -> Value {
+    let mut doc = demo_json();
+    doc["chain"] = section;
+    doc
+}
+
+#[test]
+fn a_file_without_the_chain_section_still_opens_as_one_stage() {
+    // Version-1 files written before the section existed have no "chain" key.
+    let doc = demo_json();
+    assert!(doc.get("chain").is_none(), "the demo writes no chain section");
+    let file = DesignFile::parse(&doc.to_string()).unwrap_or_else(|e| panic!("{e:#?}"));
+    assert_eq!(file.chain, None);
+    let file = DesignFile::parse(&with_chain(Value::Null).to_string()).unwrap_or_else(|e| panic!("{e:#?}"));
+    assert_eq!(file.chain, None);
+}
+
+#[test]
+fn the_chain_section_round_trips_and_defaults_to_the_recommended_method() {
+    let file = DesignFile::parse(&with_chain(json!({"divide_by": 10})).to_string())
+        .unwrap_or_else(|e| panic!("{e:#?}"));
+    let section = file.chain.expect("chain section read");
+    assert_eq!(
+        section,
+        ChainSection { divide_by: 10, method: ChainMethodChoice::Recommended, natural_binary_code: false }
+    );
+    let mut file = demo_with_values();
+    file.chain = Some(ChainSection {
+        divide_by: 60,
+        method: ChainMethodChoice::ResetOnCount,
+        natural_binary_code: true,
+    });
+    let back = DesignFile::parse(&file.to_json()).unwrap_or_else(|e| panic!("{e:#?}"));
+    assert_eq!(back, file);
+    // A quantity string is a number too, as everywhere in the file.
+    let file = DesignFile::parse(&with_chain(json!({"divide_by": "1024"})).to_string())
+        .unwrap_or_else(|e| panic!("{e:#?}"));
+    assert_eq!(file.chain.map(|c| c.divide_by), Some(1024));
+}
+
+#[test]
+fn every_bad_chain_field_is_reported_by_path() {
+    for bad in [json!(1), json!(5000), json!("abc"), json!(10.5), json!(-4), json!(true)] {
+        let errors = errors_of(&with_chain(json!({"divide_by": bad.clone()})));
+        assert_eq!(paths(&errors), vec!["chain.divide_by"], "divide_by = {bad}");
+        assert!(errors[0].message.contains("2 to 4096"), "divide_by = {bad}: {}", errors[0].message);
+    }
+    let errors = errors_of(&with_chain(json!({"divide_by": 0, "method": "fastest", "natural": true})));
+    check_paths(&errors, &["chain.divide_by", "chain.method", "chain.natural"]);
+    assert_eq!(errors.len(), 3, "{errors:#?}");
+    check_paths(&errors_of(&with_chain(json!({}))), &["chain.divide_by"]);
+    check_paths(&errors_of(&with_chain(json!(10))), &["chain"]);
+}
+
+#[test]
+fn a_method_that_cannot_divide_by_n_is_reported_at_the_method() {
+    // Plain binary only divides by 2^n; the two corrections only exist when N is not one;
+    // only the reset counts in natural binary.
+    for (n, method, natural) in [
+        (10, "plain_binary", false),
+        (16, "reset_on_count", false),
+        (16, "skip_feedback", false),
+        (12, "skip_feedback", true),
+    ] {
+        let errors =
+            errors_of(&with_chain(json!({"divide_by": n, "method": method, "natural_binary_code": natural})));
+        assert_eq!(paths(&errors), vec!["chain.method"], "N = {n}, {method}");
+    }
+    for (n, method) in
+        [(16, "plain_binary"), (10, "reset_on_count"), (10, "skip_feedback"), (4096, "recommended")]
+    {
+        DesignFile::parse(&with_chain(json!({"divide_by": n, "method": method})).to_string())
+            .unwrap_or_else(|e| panic!("N = {n}, {method} refused: {e:#?}"));
+    }
 }

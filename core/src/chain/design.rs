@@ -1,0 +1,203 @@
+//! A chain worked out for one designed stage: the plan for N, the method to build (the
+//! user's choice or the recommendation once the reset network's race is known), every
+//! method's timing at the design's input rate, the reset network, the loads each stage of the
+//! chosen chain sees, and the extra parts with reference designators. Front ends render it.
+
+use serde::{Deserialize, Serialize};
+
+use super::loads::{chain_stage_loads_with_decode, StageLoads};
+use super::reset_driver::{design_reset_driver_for_stage, DrivenResetNetwork};
+use super::timing::{chain_timing_with_reset_cycle, ChainTiming, StageTiming};
+use super::{plan_chain, ChainError, ChainPlan, ChainRequest, Method, MethodKind, Recommendation};
+use crate::stage::analysis::StageReport;
+use crate::stage::StageDesign;
+use crate::units::{format_quantity, Unit};
+
+/// Spread of the stage times taken for chain timing: the slowest stage is 30 % slower than
+/// the estimate (our choice for identical stages built from one batch, stated in the notes).
+pub const CHAIN_TIMING_SPREAD: f64 = 0.3;
+
+/// One method's timing, or why it could not be timed.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct MethodTiming {
+    pub method: MethodKind,
+    pub timing: Result<ChainTiming, String>,
+}
+
+/// One extra part the method adds to the n binaries, with a designator in the chain's own
+/// range (9xx, so it never collides with stage k's k01…k99).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ChainPartRow {
+    pub designator: String,
+    /// The value in SI units where the core chose one, `None` for a part named by type.
+    pub value_si: Option<f64>,
+    pub value_text: String,
+    pub function: String,
+}
+
+/// Everything about the chain of one designed stage.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ChainDesign {
+    pub plan: ChainPlan,
+    /// The recommendation, with the reset race when the reset network could be designed.
+    pub recommendation: Recommendation,
+    /// The method to build.
+    pub chosen: MethodKind,
+    /// True when the user named the method, false when it is the recommendation.
+    pub chosen_by_user: bool,
+    pub timing: Vec<MethodTiming>,
+    /// The stage's estimated maximum toggle rate at its slow corner, Hz.
+    pub stage_max_toggle_rate_hz: f64,
+    /// The driven reset network (the one the verification builds and simulates).
+    pub reset: Option<DrivenResetNetwork>,
+    /// Why the reset network could not be designed, when it could not.
+    pub reset_problem: Option<String>,
+    /// Loads on each stage of the chosen chain, or why they could not be worked out.
+    pub loads: Result<Vec<StageLoads>, String>,
+    /// Extra parts of the chosen method, for the component table.
+    pub parts: Vec<ChainPartRow>,
+    pub notes: Vec<String>,
+}
+
+/// Works out the chain of `request.modulus` stages of `design` (already analysed in
+/// `report`); `choice` names the method, `None` takes the recommendation.
+pub fn design_chain(
+    request: &ChainRequest,
+    choice: Option<MethodKind>,
+    design: &StageDesign,
+    report: &StageReport,
+) -> Result<ChainDesign, ChainError> {
+    let plan = plan_chain(request)?;
+    let stage_timing = StageTiming::from_switching(&report.switching, CHAIN_TIMING_SPREAD);
+    let input_rate_hz = design.input().requirements.toggle_rate_hz;
+    let mut recommendation = plan.recommendation.clone();
+    let (reset, reset_problem) = if plan.method(MethodKind::ResetOnCount).is_some() {
+        match design_reset_driver_for_stage(&plan, design, &stage_timing) {
+            Ok(network) => {
+                recommendation = plan.recommend_with_driven_reset(&network);
+                (Some(network), None)
+            }
+            Err(e) => {
+                recommendation.reasons.push(format!("the reset cannot be built: {e}"));
+                (None, Some(e.to_string()))
+            }
+        }
+    } else {
+        (None, None)
+    };
+    let chosen = match choice {
+        Some(kind) if plan.method(kind).is_some() => kind,
+        Some(kind) => {
+            return Err(ChainError::WrongMethod { expected: kind, got: recommendation.method });
+        }
+        None => recommendation.method,
+    };
+    let timing = plan
+        .methods
+        .iter()
+        .map(|method| {
+            let kind = method.method.kind();
+            let network = if kind == MethodKind::ResetOnCount { reset.as_ref() } else { None };
+            MethodTiming {
+                method: kind,
+                timing: chain_timing_with_reset_cycle(
+                    method,
+                    &stage_timing,
+                    input_rate_hz,
+                    network.map(|r| r.timeline.reset_cycle_s),
+                )
+                .map_err(|e| e.to_string()),
+            }
+        })
+        .collect();
+    let chosen_plan = plan.method(chosen).ok_or(ChainError::WrongMethod { expected: chosen, got: chosen })?;
+    let loads = chain_stage_loads_with_decode(
+        chosen_plan,
+        design,
+        if chosen == MethodKind::ResetOnCount { reset.as_ref().map(|r| r.decode_load) } else { None },
+    )
+    .map_err(|e| e.to_string());
+    let parts = extra_parts(&chosen_plan.method, reset.as_ref(), design);
+    let notes = vec![format!(
+        "chain timing takes the slowest stage {:.0} % slower than the stage's charge-control estimate",
+        CHAIN_TIMING_SPREAD * 100.0
+    )];
+    Ok(ChainDesign {
+        plan,
+        recommendation,
+        chosen,
+        chosen_by_user: choice.is_some(),
+        timing,
+        stage_max_toggle_rate_hz: report.worst_max_toggle_rate_hz,
+        reset,
+        reset_problem,
+        loads,
+        parts,
+        notes,
+    })
+}
+
+fn part(designator: String, value: Option<(f64, Unit)>, text: &str, function: String) -> ChainPartRow {
+    ChainPartRow {
+        designator,
+        value_si: value.map(|(v, _)| v),
+        value_text: value.map_or_else(|| text.to_string(), |(v, unit)| format_quantity(v, unit)),
+        function,
+    }
+}
+
+/// The method's extra parts with designators in the 9xx range. The reset network's parts
+/// come from its design; the feedback's preset capacitors and diodes repeat the stage's own
+/// trigger network (one per receiving stage), as the loads module assumes.
+fn extra_parts(
+    method: &Method,
+    reset: Option<&DrivenResetNetwork>,
+    design: &StageDesign,
+) -> Vec<ChainPartRow> {
+    let diode = design.diode().label.clone();
+    let transistor = design.transistor().label.clone();
+    let mut rows = Vec::new();
+    match method {
+        Method::PlainBinary => {}
+        Method::ResetOnCount { .. } => {
+            // The driven network lists its own parts (gate, hold, driver, per-stage reset).
+            for p in reset.map_or(&[][..], |network| network.parts.as_slice()) {
+                let unit = match p.kind.as_str() {
+                    "resistor" => Some(Unit::Ohm),
+                    "capacitor" => Some(Unit::Farad),
+                    _ => None,
+                };
+                let text = match p.kind.as_str() {
+                    "diode" => diode.as_str(),
+                    "transistor" => transistor.as_str(),
+                    other => other,
+                };
+                rows.push(part(p.designator.clone(), p.value.zip(unit), text, p.function.clone()));
+            }
+        }
+        Method::SkipFeedback { source_stage, receiving_stages, .. } => {
+            let trigger = design.values().trigger;
+            for (k, stage) in receiving_stages.iter().enumerate() {
+                rows.push(part(
+                    format!("C9{:02}", k + 1),
+                    trigger.map(|t| (t.trigger_capacitor_f, Unit::Farad)),
+                    "as Ct",
+                    format!("preset capacitor from stage {} Q̄ to stage {}", source_stage + 1, stage + 1),
+                ));
+                rows.push(part(
+                    format!("D9{:02}", k + 1),
+                    None,
+                    &diode,
+                    format!("preset steering diode into stage {} Q2 base (sets it to 1)", stage + 1),
+                ));
+                rows.push(part(
+                    format!("R9{:02}", k + 1),
+                    trigger.map(|t| (t.trigger_resistor_ohm, Unit::Ohm)),
+                    "as Rt",
+                    format!("preset bias resistor of stage {}", stage + 1),
+                ));
+            }
+        }
+    }
+    rows
+}

@@ -1,0 +1,490 @@
+//! The chain plan and its verification as the page shows them: transfer structs cut from
+//! `core::chain::design::ChainDesign` (the count table, timing, reset or feedback, loads and
+//! extra parts of the chosen method) and the plan's logic timing diagram (ideal levels from
+//! the count sequence, drawn by `plots`). Conversion only; the engineering is in the core.
+
+use serde::Serialize;
+use wasm_bindgen::prelude::*;
+
+use flipwright::chain::design::{design_chain, ChainDesign, ChainPartRow};
+use flipwright::chain::loads::StageLoads;
+use flipwright::chain::reset_driver::DrivenResetNetwork;
+use flipwright::chain::timing::ChainTiming;
+use flipwright::chain::{CorrectionKind, GlitchKind, Method, MethodKind, MethodPlan, OutputCycle, StartUp};
+use flipwright::design_file::{ChainSection, DesignFile};
+use flipwright::stage::analysis::StageReport;
+use flipwright::stage::StageDesign;
+use flipwright::verify::{self, CountCheck, InputPulse, RunAccuracy, SearchSettings, SimulationCorner};
+
+use crate::plots::TimingDiagram;
+use crate::traces::{DecimatedRun, DecimatedTrace, MAX_BUCKETS};
+use crate::{polarity_assumptions, to_js, Outcome};
+
+/// One method as the comparison table shows it.
+#[derive(Serialize)]
+pub struct MethodSummary {
+    pub kind: MethodKind,
+    pub name: &'static str,
+    pub recommended: bool,
+    pub chosen: bool,
+    pub extra_parts: u32,
+    pub parts_description: Vec<String>,
+    pub output: OutputCycle,
+    pub start_up: StartUp,
+    pub glitch_windows: usize,
+    pub natural_binary: bool,
+    pub timing: Option<ChainTiming>,
+    pub timing_problem: Option<String>,
+}
+
+/// One row of the count table.
+#[derive(Serialize)]
+pub struct CountRow {
+    pub pulse: u32,
+    /// Settled state and its bits, last stage first.
+    pub state: u32,
+    pub bits: String,
+    pub output_high: bool,
+    /// "reset from 10 (1010)" or "preset from 8 (1000)" where a correction follows the ripple.
+    pub correction: Option<String>,
+}
+
+/// Momentary states a decoder of the outputs would see, by kind, with the first few.
+#[derive(Serialize)]
+pub struct GlitchSummary {
+    pub ripple: usize,
+    pub reset_transient: usize,
+    pub preset_transient: usize,
+    /// "after pulse 2: 0 (0000) for 1 stage delay from 1"…
+    pub examples: Vec<String>,
+}
+
+/// The feedback connections of a skip-state chain.
+#[derive(Serialize)]
+pub struct FeedbackView {
+    pub source_stage: u32,
+    pub receiving_stages: Vec<u32>,
+    pub skipped_states: u32,
+    /// State the count jumps from, and to.
+    pub jumps_from: u32,
+    pub jumps_to: u32,
+}
+
+/// The chain plan of the design file's `chain` section, for the page.
+#[derive(Serialize)]
+pub struct ChainPlanView {
+    pub divide_by: u32,
+    pub stage_count: u32,
+    pub chosen: MethodKind,
+    pub chosen_name: &'static str,
+    pub chosen_by_user: bool,
+    pub recommended: MethodKind,
+    pub recommendation_reasons: Vec<String>,
+    pub methods: Vec<MethodSummary>,
+    pub count_table: Vec<CountRow>,
+    pub decoded_stages: Vec<u32>,
+    pub feedback: Option<FeedbackView>,
+    pub glitches: GlitchSummary,
+    pub reset: Option<DrivenResetNetwork>,
+    pub reset_problem: Option<String>,
+    pub loads: Vec<StageLoads>,
+    pub loads_problem: Option<String>,
+    pub stage_max_toggle_rate_hz: f64,
+    pub parts: Vec<ChainPartRow>,
+    pub notes: Vec<String>,
+    /// Input and every stage's Q over one output period, ideal logic levels.
+    pub diagram: TimingDiagram,
+}
+
+fn bits(state: u32, stages: u32) -> String {
+    (0..stages).rev().map(|bit| if state >> bit & 1 == 1 { '1' } else { '0' }).collect()
+}
+
+fn count_table(plan: &MethodPlan, stages: u32) -> Vec<CountRow> {
+    plan.count_sequence
+        .iter()
+        .map(|row| CountRow {
+            pulse: row.pulse,
+            state: row.settled_state,
+            bits: bits(row.settled_state, stages),
+            output_high: row.output_high,
+            correction: row.correction.as_ref().map(|c| {
+                let kind = match c.kind {
+                    CorrectionKind::Reset => "reset",
+                    CorrectionKind::Preset => "preset",
+                };
+                format!("{kind} from {} ({})", row.reached_state, bits(row.reached_state, stages))
+            }),
+        })
+        .collect()
+}
+
+/// Glitch examples listed at most (the counts cover them all).
+const GLITCH_EXAMPLES: usize = 6;
+
+fn glitches(plan: &MethodPlan, stages: u32) -> GlitchSummary {
+    let count = |kind: GlitchKind| plan.glitch_windows.iter().filter(|g| g.kind == kind).count();
+    let examples = plan
+        .glitch_windows
+        .iter()
+        .filter(|g| g.kind != GlitchKind::Ripple)
+        .chain(plan.glitch_windows.iter().filter(|g| g.kind == GlitchKind::Ripple))
+        .take(GLITCH_EXAMPLES)
+        .map(|g| {
+            let until = match g.to_stage_delays {
+                Some(to) => format!("from {} to {to} stage delays", g.from_stage_delays),
+                None => format!("from {} stage delays until the reset clears it", g.from_stage_delays),
+            };
+            let kind = match g.kind {
+                GlitchKind::Ripple => "ripple",
+                GlitchKind::ResetTransient => "reset transient",
+                GlitchKind::PresetTransient => "preset transient",
+            };
+            format!("after pulse {}: {} ({}), {kind}, {until}", g.pulse, g.state, bits(g.state, stages))
+        })
+        .collect();
+    GlitchSummary {
+        ripple: count(GlitchKind::Ripple),
+        reset_transient: count(GlitchKind::ResetTransient),
+        preset_transient: count(GlitchKind::PresetTransient),
+        examples,
+    }
+}
+
+/// Ideal logic levels of the input and every stage's Q over one output period of `plan`, at
+/// `input_rate_hz`: the input is high in the second half of each period and its falling edge
+/// (the active edge) ends the period; the state after pulse k holds from edge k to edge k+1.
+pub fn logic_diagram(plan: &MethodPlan, stages: u32, input_rate_hz: f64) -> TimingDiagram {
+    let period_s = if input_rate_hz.is_finite() && input_rate_hz > 0.0 { 1.0 / input_rate_hz } else { 1.0 };
+    let pulses = plan.count_sequence.len();
+    // Half a period of the all-zero state before the first edge, half after the last.
+    let start_s = 0.0;
+    let first_edge_s = 0.5 * period_s;
+    let stop_s = first_edge_s + pulses as f64 * period_s + 0.5 * period_s;
+    let buckets = (8 * (pulses + 1)).min(MAX_BUCKETS);
+    let width_s = (stop_s - start_s) / buckets as f64;
+    // State in force at time t: 0 before the first edge, then the settled state of pulse k.
+    let state_at = |t: f64| -> u32 {
+        if t < first_edge_s {
+            return 0;
+        }
+        let k = ((t - first_edge_s) / period_s).floor() as usize;
+        plan.count_sequence.get(k.min(pulses.saturating_sub(1))).map_or(0, |r| r.settled_state)
+    };
+    let input_at = |t: f64| -> f64 {
+        // High for the half period before each edge.
+        let phase = ((t - first_edge_s) / period_s).rem_euclid(1.0);
+        if phase >= 0.5 {
+            1.0
+        } else {
+            0.0
+        }
+    };
+    // Sample each bucket at its two ends and at every edge or mid-period inside it, so the
+    // envelope holds every level the bucket spans.
+    let samples_in = |i: usize| -> Vec<f64> {
+        let (a, b) = (start_s + i as f64 * width_s, start_s + (i + 1) as f64 * width_s);
+        let mut times = vec![a, b - 1e-9 * width_s];
+        let half = 0.5 * period_s;
+        let mut t = first_edge_s + ((a - first_edge_s) / half).ceil() * half;
+        while t < b {
+            times.push(t);
+            times.push(t - 1e-6 * half);
+            t += half;
+        }
+        times
+    };
+    let mut traces: Vec<DecimatedTrace> = std::iter::once(("in".to_string(), "input".to_string()))
+        .chain((0..stages).map(|k| (format!("q{k}"), format!("stage {} Q · bit {k}", k + 1))))
+        .map(|(node, label)| DecimatedTrace { node, label, min_v: Vec::new(), max_v: Vec::new() })
+        .collect();
+    for i in 0..buckets {
+        let times = samples_in(i);
+        for (lane, trace) in traces.iter_mut().enumerate() {
+            let level = |t: f64| {
+                if lane == 0 {
+                    input_at(t)
+                } else {
+                    f64::from(state_at(t) >> (lane - 1) & 1)
+                }
+            };
+            let (low, high) = times
+                .iter()
+                .map(|&t| level(t))
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), v| (l.min(v), h.max(v)));
+            trace.min_v.push(low);
+            trace.max_v.push(high);
+        }
+    }
+    let edge_times_s: Vec<f64> = (0..=pulses).map(|k| first_edge_s + k as f64 * period_s).collect();
+    TimingDiagram {
+        run: DecimatedRun { start_s, stop_s, buckets, recorded_points: 0, traces },
+        edge_times_s,
+        counts: plan.count_sequence.iter().map(|r| Some(u64::from(r.settled_state))).collect(),
+        logic: true,
+    }
+}
+
+fn plan_view(chain: ChainDesign, input_rate_hz: f64) -> Result<ChainPlanView, String> {
+    let stages = chain.plan.stage_count;
+    let chosen_plan =
+        chain.plan.method(chain.chosen).ok_or_else(|| "the chosen method has no plan".to_string())?;
+    let methods = chain
+        .plan
+        .methods
+        .iter()
+        .map(|m| {
+            let kind = m.method.kind();
+            let timing = chain.timing.iter().find(|t| t.method == kind).map(|t| t.timing.clone());
+            MethodSummary {
+                kind,
+                name: kind.name(),
+                recommended: kind == chain.recommendation.method,
+                chosen: kind == chain.chosen,
+                extra_parts: m.parts.total(),
+                parts_description: m.parts.description.clone(),
+                output: m.output.clone(),
+                start_up: m.start_up.clone(),
+                glitch_windows: m.glitch_windows.len(),
+                natural_binary: m
+                    .count_sequence
+                    .iter()
+                    .all(|r| r.settled_state == r.pulse % chain.plan.modulus),
+                timing_problem: timing.clone().and_then(|t| t.err()),
+                timing: timing.and_then(|t| t.ok()),
+            }
+        })
+        .collect();
+    let (decoded_stages, feedback) = match &chosen_plan.method {
+        Method::PlainBinary => (Vec::new(), None),
+        Method::ResetOnCount { decoded_stages } => (decoded_stages.clone(), None),
+        Method::SkipFeedback { source_stage, receiving_stages, skipped_states } => {
+            let jumps_from = 1u32 << source_stage;
+            (
+                Vec::new(),
+                Some(FeedbackView {
+                    source_stage: *source_stage,
+                    receiving_stages: receiving_stages.clone(),
+                    skipped_states: *skipped_states,
+                    jumps_from,
+                    jumps_to: jumps_from + skipped_states,
+                }),
+            )
+        }
+    };
+    let (loads, loads_problem) = match chain.loads {
+        Ok(loads) => (loads, None),
+        Err(problem) => (Vec::new(), Some(problem)),
+    };
+    Ok(ChainPlanView {
+        divide_by: chain.plan.modulus,
+        stage_count: stages,
+        chosen: chain.chosen,
+        chosen_name: chain.chosen.name(),
+        chosen_by_user: chain.chosen_by_user,
+        recommended: chain.recommendation.method,
+        recommendation_reasons: chain.recommendation.reasons.clone(),
+        methods,
+        count_table: count_table(chosen_plan, stages),
+        decoded_stages,
+        feedback,
+        glitches: glitches(chosen_plan, stages),
+        reset: if chain.chosen == MethodKind::ResetOnCount { chain.reset.clone() } else { None },
+        reset_problem: chain.reset_problem.clone(),
+        loads,
+        loads_problem,
+        stage_max_toggle_rate_hz: chain.stage_max_toggle_rate_hz,
+        parts: chain.parts.clone(),
+        notes: chain.notes.clone(),
+        diagram: logic_diagram(chosen_plan, stages, input_rate_hz),
+    })
+}
+
+/// The chain view of a file's `chain` section, `None` for a single stage.
+pub fn chain_view(
+    section: Option<&ChainSection>,
+    design: &StageDesign,
+    report: &StageReport,
+) -> Option<Outcome<ChainPlanView>> {
+    let section = section?;
+    let outcome = match design_chain(&section.request(), section.method.method(), design, report) {
+        Ok(chain) => match plan_view(chain, design.input().requirements.toggle_rate_hz) {
+            Ok(view) => Outcome::Ok(view),
+            Err(message) => Outcome::Failed { message },
+        },
+        Err(e) => Outcome::Failed { message: e.to_string() },
+    };
+    Some(outcome)
+}
+
+/// A planned chain's verification as the page shows it.
+#[derive(Serialize)]
+pub struct PlannedChainVerificationView {
+    pub divide_by: u32,
+    pub stage_count: u32,
+    pub method: MethodKind,
+    pub method_name: &'static str,
+    pub check: CountCheck,
+    /// The plan's settled count after each edge, to set beside the simulated count.
+    pub planned: Vec<u32>,
+    pub pulse: InputPulse,
+    pub polarity_sign: f64,
+    pub assumptions: Vec<String>,
+    pub diagram: TimingDiagram,
+}
+
+fn verify_planned_text(design_json: &str, edges: Option<usize>) -> Outcome<PlannedChainVerificationView> {
+    let (file, design) = match DesignFile::load(design_json) {
+        Ok(pair) => pair,
+        Err(errors) => return Outcome::Invalid { errors },
+    };
+    let Some(section) = file.chain else {
+        return Outcome::Failed {
+            message: "the design has no divide ratio: enter one to plan a chain".to_string(),
+        };
+    };
+    let failed = |e: String| Outcome::Failed { message: format!("the chain verification failed: {e}") };
+    let report = match flipwright::stage::analysis::analyse(&design) {
+        Ok(report) => report,
+        Err(e) => return failed(e.to_string()),
+    };
+    let chain = match design_chain(&section.request(), section.method.method(), &design, &report) {
+        Ok(chain) => chain,
+        Err(e) => return failed(e.to_string()),
+    };
+    let Some(plan) = chain.plan.method(chain.chosen) else {
+        return failed("no plan for the method".to_string());
+    };
+    let stage_count = chain.plan.stage_count as usize;
+    let edges = edges.unwrap_or(plan.count_sequence.len()).max(1);
+    let pulse = match verify::service_pulse(&design, SearchSettings::default().edge_s) {
+        Ok(pulse) => pulse,
+        Err(e) => return failed(e.to_string()),
+    };
+    let corner = SimulationCorner::nominal();
+    let (check, result, built) = match verify::verify_planned_chain(
+        &design,
+        plan,
+        stage_count,
+        edges,
+        &pulse,
+        &corner,
+        &RunAccuracy::default(),
+    ) {
+        Ok(triple) => triple,
+        Err(e) => return failed(e.to_string()),
+    };
+    let sign = design.transistor().polarity.sign();
+    let result = verify::in_real_polarity(result, sign);
+    let planned = (0..edges)
+        .map(|k| plan.count_sequence.get(k % plan.count_sequence.len().max(1)).map_or(0, |r| r.settled_state))
+        .collect();
+    Outcome::Ok(PlannedChainVerificationView {
+        divide_by: chain.plan.modulus,
+        stage_count: chain.plan.stage_count,
+        method: chain.chosen,
+        method_name: chain.chosen.name(),
+        diagram: crate::chain_diagram(&built, &result, &check, &pulse),
+        planned,
+        pulse,
+        polarity_sign: sign,
+        assumptions: polarity_assumptions(built.assumptions, sign),
+        check,
+    })
+}
+
+/// Verifies the design file's planned chain by simulation: the chosen method's circuit run
+/// for `edges` input edges (one output period when not given), the count after each compared
+/// with the plan's count table (every method, the reset-on-count one with its driven reset
+/// network). Runs for seconds to minutes: call it from a worker.
+#[wasm_bindgen]
+pub fn verify_planned_chain_design(design_json: &str, edges: Option<usize>) -> Result<JsValue, JsError> {
+    to_js(&verify_planned_text(design_json, edges))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::{synthesise_text, Outcome};
+
+    fn demo_with_chain(section: &str) -> String {
+        let mut value: serde_json::Value =
+            serde_json::from_str(&flipwright::design_file::DesignFile::demo().to_json()).unwrap_or_default();
+        value["chain"] = serde_json::from_str(section).unwrap_or_default();
+        value.to_string()
+    }
+
+    fn plan_of(section: &str) -> ChainPlanView {
+        let Outcome::Ok(view) = synthesise_text(&demo_with_chain(section)) else {
+            unreachable!("synthesises")
+        };
+        match view.analysis.chain {
+            Some(Outcome::Ok(plan)) => plan,
+            _ => unreachable!("the chain is planned"),
+        }
+    }
+
+    #[test]
+    fn a_decade_by_reset_counts_zero_to_nine_and_decodes_1010() {
+        // A decade counter counts 0 … 9 and returns to 0; the decade by reset decodes 1010
+        // (ten) from the outputs of bits 1 and 3 (standard digital texts, e.g. Floyd,
+        // Digital Fundamentals, asynchronous decade counter; from memory).
+        let plan = plan_of(r#"{"divide_by": 10, "method": "reset_on_count"}"#);
+        assert_eq!(plan.stage_count, 4);
+        let states: Vec<u32> = plan.count_table.iter().map(|r| r.state).collect();
+        assert_eq!(states, [1, 2, 3, 4, 5, 6, 7, 8, 9, 0]);
+        assert_eq!(plan.decoded_stages, [1, 3]);
+        assert_eq!(
+            plan.count_table.last().and_then(|r| r.correction.clone()).as_deref(),
+            Some("reset from 10 (1010)")
+        );
+        assert!(plan.parts.iter().any(|p| p.designator == "R901"), "reset network in the parts");
+    }
+
+    #[test]
+    fn the_logic_diagram_has_a_lane_per_stage_and_one_count_per_pulse() {
+        let plan = plan_of(r#"{"divide_by": 12}"#);
+        assert_eq!(plan.stage_count, 4);
+        let d = &plan.diagram;
+        assert_eq!(d.run.traces.len(), 5);
+        assert_eq!(d.counts.len(), 12);
+        assert_eq!(d.edge_times_s.len(), 13);
+        // Stage 4 (bit 3) is high for part of the cycle and low for the rest.
+        let top = &d.run.traces[4];
+        assert!(top.max_v.contains(&1.0) && top.min_v.contains(&0.0));
+        assert!(d.run.traces.iter().all(|t| t.min_v.len() == d.run.buckets));
+    }
+
+    #[test]
+    fn a_single_stage_file_has_no_chain_view() {
+        let Outcome::Ok(view) = synthesise_text(&flipwright::design_file::DesignFile::demo().to_json())
+        else {
+            unreachable!("synthesises")
+        };
+        assert!(view.analysis.chain.is_none());
+    }
+
+    #[test]
+    fn the_planned_decades_by_feedback_and_by_reset_verify_with_the_plans_counts() {
+        let Outcome::Ok(view) = synthesise_text(&demo_with_chain(r#"{"divide_by": 10}"#)) else {
+            unreachable!("synthesises")
+        };
+        let Outcome::Ok(run) = verify_planned_text(&view.analysis.design_json, None) else {
+            unreachable!("the feedback decade verifies")
+        };
+        assert!(run.check.correct, "{:?}", run.check.observed);
+        let observed: Vec<Option<u64>> = run.planned.iter().map(|&s| Some(u64::from(s))).collect();
+        assert_eq!(run.check.observed, observed, "simulated counts match the plan's table");
+        let Outcome::Ok(view) =
+            synthesise_text(&demo_with_chain(r#"{"divide_by": 10, "method": "reset_on_count"}"#))
+        else {
+            unreachable!("synthesises")
+        };
+        let Outcome::Ok(run) = verify_planned_text(&view.analysis.design_json, None) else {
+            unreachable!("the reset decade verifies")
+        };
+        assert!(run.check.correct, "{:?}", run.check.observed);
+        let observed: Vec<Option<u64>> = run.planned.iter().map(|&s| Some(u64::from(s))).collect();
+        assert_eq!(run.check.observed, observed, "simulated counts match the plan's table");
+    }
+}
