@@ -1,0 +1,1 @@
+//! Synthesis for a yield target: placeholder, filled in below.
