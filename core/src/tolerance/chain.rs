@@ -6,9 +6,11 @@ use serde::Serialize;
 
 use super::ToleranceError;
 use crate::chain::loads::{chain_stage_loads, stage_design_with_loads, StageLoads};
-use crate::chain::reset::ResetNetwork;
-use crate::chain::MethodPlan;
+use crate::chain::reset::{design_reset_for_stage, ResetNetwork};
+use crate::chain::timing::StageTiming;
+use crate::chain::{plan_chain, ChainRequest, MethodKind, MethodPlan};
 use crate::device::ebers_moll::EbersMoll;
+use crate::stage::analysis::analyse;
 use crate::stage::margins::{required_value, MarginKind};
 use crate::stage::worst_case::{self, Setting};
 use crate::stage::{Load, StageDesign};
@@ -206,4 +208,66 @@ pub fn chain_worst_case(chain: &LoadedChain) -> Result<ChainWorstCase, Tolerance
         all_pass,
         evaluations,
     })
+}
+
+/// Which chain to analyse, as the front ends ask for it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, serde::Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum ChainShape {
+    /// A ripple chain of this many stages (divide by 2^stages), each with the design's loads.
+    Stages { stages: u32 },
+    /// The planned chain for a division ratio. `method` defaults as in `flipwright simulate
+    /// --divide`: plain binary for a power of two, otherwise skip-state feedback; the reset
+    /// method adds the decoding gate's pull-up load on each decoded Q.
+    Divide {
+        modulus: u32,
+        #[serde(default)]
+        method: Option<MethodKind>,
+    },
+}
+
+/// Spread of stage times assumed for the reset network's timing (as `flipwright chain`).
+pub const RESET_TIMING_SPREAD: f64 = 0.3;
+
+/// The loaded chain for a shape, with a line saying what it is.
+pub fn loaded_chain(
+    design: &StageDesign,
+    shape: ChainShape,
+) -> Result<(LoadedChain, String), ToleranceError> {
+    match shape {
+        ChainShape::Stages { stages } => {
+            let chain = LoadedChain::uniform(design, stages as usize)?;
+            Ok((chain, format!("a ripple chain of {stages} stage(s), each with the design's own loads")))
+        }
+        ChainShape::Divide { modulus, method } => {
+            let plan = plan_chain(&ChainRequest { modulus, natural_binary_code: false })
+                .map_err(|e| super::invalid("modulus", modulus, &e.to_string()))?;
+            let kind = method.unwrap_or(if modulus.is_power_of_two() {
+                MethodKind::PlainBinary
+            } else {
+                MethodKind::SkipFeedback
+            });
+            let method_plan = plan.method(kind).ok_or_else(|| {
+                super::invalid(
+                    "method",
+                    kind.name(),
+                    "a method the plan for this ratio has (plain binary only for a power of two)",
+                )
+            })?;
+            let reset = if kind == MethodKind::ResetOnCount {
+                let report = analyse(design)
+                    .map_err(|e| ToleranceError::StageAnalysis { stage: 0, reason: e.to_string() })?;
+                let timing = StageTiming::from_switching(&report.switching, RESET_TIMING_SPREAD);
+                Some(
+                    design_reset_for_stage(&plan, design, &timing)
+                        .map_err(|e| ToleranceError::InvalidChain { reason: e.to_string() })?,
+                )
+            } else {
+                None
+            };
+            let chain = LoadedChain::from_plan(design, method_plan, reset.as_ref())?;
+            let stages = chain.stage_count();
+            Ok((chain, format!("the divide-by-{modulus} chain ({}, {stages} stages) with the loads its plan puts on each stage", kind.name())))
+        }
+    }
 }

@@ -18,7 +18,9 @@ pub mod temperature;
 
 use serde::{Deserialize, Serialize};
 
-pub use self::chain::{chain_worst_case, ChainMarginWorst, ChainWorstCase, LoadedChain};
+pub use self::chain::{
+    chain_worst_case, loaded_chain, ChainMarginWorst, ChainShape, ChainWorstCase, LoadedChain,
+};
 pub use self::kernel::{Capacitors, DcMargins, MarginKernel, ThermalPoint};
 pub use self::monte_carlo::{monte_carlo_yield, MonteCarloOptions, YieldReport};
 pub use self::temperature::{margins_against_temperature, TemperatureSweep};

@@ -1,6 +1,6 @@
 //! Seeded random draws for Monte Carlo: a PCG generator (`rand_pcg::Pcg64`, seeded through
-//! `SeedableRng::seed_from_u64`), uniform numbers from its 53 high bits, and a Box–Muller
-//! normal through `libm`, so a seed gives the same sequence natively and in wasm.
+//! `SeedableRng::seed_from_u64`), uniform numbers from its 53 high bits, and a polar
+//! Box–Muller normal through `libm`, so a seed gives the same sequence natively and in wasm.
 
 use rand_core::{Rng, SeedableRng};
 use rand_pcg::Pcg64;
@@ -33,18 +33,25 @@ impl Sampler {
         2.0 * self.unit() - 1.0
     }
 
-    /// Standard normal by the Box–Muller transform (G. E. P. Box, M. E. Muller, *A note on
-    /// the generation of random normal deviates*, Ann. Math. Stat. 29, 1958), both values of
-    /// each pair used.
+    /// Standard normal by Marsaglia's polar form of the Box–Muller transform (G. Marsaglia,
+    /// T. A. Bray, *A convenient method for generating normal variables*, SIAM Review 6,
+    /// 1964): no trigonometry, both values of each pair used. The rejection loop is bounded;
+    /// its chance of running out is (1 − π/4)^64.
     pub fn standard_normal(&mut self) -> f64 {
         if let Some(z) = self.spare_normal.take() {
             return z;
         }
-        // 1 − U is in (0, 1], so the logarithm is finite.
-        let radius = (-2.0 * libm::log(1.0 - self.unit())).sqrt();
-        let angle = 2.0 * core::f64::consts::PI * self.unit();
-        self.spare_normal = Some(radius * libm::sin(angle));
-        radius * libm::cos(angle)
+        for _ in 0..MAX_REDRAWS {
+            let u = self.symmetric();
+            let v = self.symmetric();
+            let s = u * u + v * v;
+            if s > 0.0 && s < 1.0 {
+                let factor = (-2.0 * libm::log(s) / s).sqrt();
+                self.spare_normal = Some(v * factor);
+                return u * factor;
+            }
+        }
+        0.0
     }
 
     /// A position within a tolerance band, −1 (low edge) to +1 (high edge).
