@@ -13,7 +13,6 @@ pub mod kernel;
 pub mod monte_carlo;
 pub mod sampling;
 pub mod statistics;
-pub mod target;
 pub mod temperature;
 
 use serde::{Deserialize, Serialize};

@@ -1,1 +1,0 @@
-//! Synthesis for a yield target: placeholder, filled in below.
