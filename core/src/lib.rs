@@ -11,6 +11,7 @@ pub mod numeric;
 pub mod physics;
 pub mod stage;
 pub mod table;
+pub mod tolerance;
 pub mod transient;
 pub mod units;
 pub mod verify;

@@ -16,6 +16,10 @@ use flipwright::stage::analysis::{analyse, StageReport};
 use flipwright::stage::synthesis::{synthesise, SynthesisOutcome};
 use flipwright::stage::{FieldError, StageDesign};
 use flipwright::table::{component_table, to_csv, ComponentRow};
+use flipwright::tolerance::{
+    chain_worst_case, loaded_chain, margins_against_temperature, monte_carlo_yield, ChainShape,
+    ChainWorstCase, LoadedChain, MonteCarloOptions, TemperatureSweep, ToleranceError, YieldReport,
+};
 use flipwright::verify::{
     self, in_real_polarity, BuiltCircuit, CountCheck, InputPulse, Progress, RunAccuracy, SearchSettings,
     SimulationCorner, StageVerification, VerifyOptions,
@@ -439,6 +443,169 @@ pub fn timing_diagram_svg(diagram: JsValue, width: u32, height: u32) -> Result<S
     plots::timing_diagram_svg(&diagram, width, height).map_err(|e| JsError::new(&e))
 }
 
+/// Largest seed the page can hold exactly (a JS number is exact up to 2^53 − 1).
+pub const MAX_PAGE_SEED: u64 = (1 << 53) - 1;
+
+/// A tolerance request's parts, read from the page: the design (with values), the chain
+/// (`{"kind": "stages", "stages": 10}` or `{"kind": "divide", "modulus": 10, "method":
+/// "reset_on_count"}`) and, for Monte Carlo, the options.
+fn tolerance_chain(design_json: &str, chain_json: &str) -> Result<(LoadedChain, String), Outcome<()>> {
+    let (_, design) = DesignFile::load(design_json).map_err(|errors| Outcome::Invalid { errors })?;
+    let shape: ChainShape = serde_json::from_str(chain_json).map_err(|e| Outcome::Invalid {
+        errors: vec![FieldError {
+            path: "chain".to_string(),
+            message: format!(
+                "is not a chain: {e}; give {{\"kind\": \"stages\", \"stages\": N}} or {{\"kind\": \"divide\", \"modulus\": N}}"
+            ),
+        }],
+    })?;
+    loaded_chain(&design, shape).map_err(tolerance_outcome)
+}
+
+fn tolerance_outcome<T: Serialize>(error: ToleranceError) -> Outcome<T> {
+    match error {
+        ToleranceError::InvalidOption { field, value, expected } => Outcome::Invalid {
+            errors: vec![FieldError {
+                path: format!("options.{field}"),
+                message: format!("must be {expected}, got {value}"),
+            }],
+        },
+        other => Outcome::Failed { message: other.to_string() },
+    }
+}
+
+fn reshape<T: Serialize>(outcome: Outcome<()>) -> Outcome<T> {
+    match outcome {
+        Outcome::Ok(()) => Outcome::Failed { message: "no result".to_string() },
+        Outcome::Invalid { errors } => Outcome::Invalid { errors },
+        Outcome::Failed { message } => Outcome::Failed { message },
+    }
+}
+
+/// The chain's worst case as the page shows it.
+#[derive(Serialize)]
+pub struct ChainWorstCaseView {
+    /// What chain was analysed, in words.
+    pub chain: String,
+    /// Per margin: nominal and worst (smallest over the stages), required, pass, the
+    /// limiting stage (0 takes the input) and parameter, the worst corner.
+    pub worst_case: ChainWorstCase,
+}
+
+/// A Monte Carlo run as the page shows it.
+#[derive(Serialize)]
+pub struct YieldView {
+    pub chain: String,
+    /// Yield with its Wilson interval and lower bound, per-margin statistics with histograms
+    /// (bin edges and counts of the tightest stage's value per trial), the most frequent
+    /// failure, the seed (in `options`) and the run's digest.
+    pub report: YieldReport,
+}
+
+/// Margins against temperature as the page shows it.
+#[derive(Serialize)]
+pub struct TemperatureView {
+    pub chain: String,
+    /// `temperatures_c`, and per margin the nominal and worst curves with the stage of each
+    /// worst point.
+    pub sweep: TemperatureSweep,
+}
+
+fn chain_worst_case_text(design_json: &str, chain_json: &str) -> Outcome<ChainWorstCaseView> {
+    let (chain, description) = match tolerance_chain(design_json, chain_json) {
+        Ok(pair) => pair,
+        Err(outcome) => return reshape(outcome),
+    };
+    match chain_worst_case(&chain) {
+        Ok(worst_case) => Outcome::Ok(ChainWorstCaseView { chain: description, worst_case }),
+        Err(e) => tolerance_outcome(e),
+    }
+}
+
+fn yield_options(text: &str) -> Result<MonteCarloOptions, Vec<FieldError>> {
+    let bad = |path: &str, message: String| vec![FieldError { path: path.to_string(), message }];
+    let options: MonteCarloOptions = if text.trim().is_empty() {
+        MonteCarloOptions::default()
+    } else {
+        serde_json::from_str(text).map_err(|e| {
+            bad(
+                "options",
+                format!("is not Monte Carlo options: {e}; fields trials, seed, distribution (\"uniform\" | \"normal\"), confidence, histogram_bins, half_width"),
+            )
+        })?
+    };
+    if options.seed > MAX_PAGE_SEED {
+        return Err(bad(
+            "options.seed",
+            format!(
+                "must be a whole number from 0 to {MAX_PAGE_SEED} so the page can hold it exactly, got {}",
+                options.seed
+            ),
+        ));
+    }
+    Ok(options)
+}
+
+fn monte_carlo_text(design_json: &str, chain_json: &str, options_json: &str) -> Outcome<YieldView> {
+    let options = match yield_options(options_json) {
+        Ok(options) => options,
+        Err(errors) => return Outcome::Invalid { errors },
+    };
+    let (chain, description) = match tolerance_chain(design_json, chain_json) {
+        Ok(pair) => pair,
+        Err(outcome) => return reshape(outcome),
+    };
+    match monte_carlo_yield(&chain, &options) {
+        Ok(report) => Outcome::Ok(YieldView { chain: description, report }),
+        Err(e) => tolerance_outcome(e),
+    }
+}
+
+fn temperature_text(design_json: &str, chain_json: &str, points: u32) -> Outcome<TemperatureView> {
+    let (chain, description) = match tolerance_chain(design_json, chain_json) {
+        Ok(pair) => pair,
+        Err(outcome) => return reshape(outcome),
+    };
+    match margins_against_temperature(&chain, points) {
+        Ok(sweep) => Outcome::Ok(TemperatureView { chain: description, sweep }),
+        Err(e) => tolerance_outcome(e),
+    }
+}
+
+/// Worst case of every margin over every stage of a chain (`chain_json` as in
+/// `monte_carlo_yield`). Runs the stage worst case once per distinct loaded stage: tens of
+/// milliseconds per stage; call it from a worker.
+#[wasm_bindgen]
+pub fn chain_worst_case_design(design_json: &str, chain_json: &str) -> Result<JsValue, JsError> {
+    to_js(&chain_worst_case_text(design_json, chain_json))
+}
+
+/// Monte Carlo yield of a chain. `chain_json`: `{"kind": "stages", "stages": N}` or
+/// `{"kind": "divide", "modulus": N, "method": "plain_binary" | "reset_on_count" |
+/// "skip_feedback"}` (method optional). `options_json`: any of `{"trials": 10000, "seed": 1,
+/// "distribution": "uniform" | "normal", "confidence": 0.95, "histogram_bins": 24,
+/// "half_width": 0.01}` (empty text: all defaults). The same seed gives the same `digest`
+/// as the command line. 10 000 trials of ten stages take a few hundred milliseconds in wasm.
+#[wasm_bindgen]
+pub fn monte_carlo_yield_design(
+    design_json: &str,
+    chain_json: &str,
+    options_json: &str,
+) -> Result<JsValue, JsError> {
+    to_js(&monte_carlo_text(design_json, chain_json, options_json))
+}
+
+/// Every DC margin at `points` temperatures from t_min to t_max, nominal and worst over the
+/// other parameters (41 points is a good chart).
+#[wasm_bindgen]
+pub fn margins_against_temperature_design(
+    design_json: &str,
+    chain_json: &str,
+    points: u32,
+) -> Result<JsValue, JsError> {
+    to_js(&temperature_text(design_json, chain_json, points))
+}
+
 /// The bridge's version, shown in the page footer and printout.
 #[wasm_bindgen]
 pub fn version() -> String {
@@ -548,6 +715,32 @@ mod tests {
         let lanes: Vec<&str> = view.diagram.run.traces.iter().map(|t| t.label.as_str()).collect();
         assert_eq!(lanes, ["input", "stage 1 · bit 0", "stage 2 · bit 1"]);
         assert_eq!(view.diagram.edge_times_s.len(), 5);
+    }
+
+    #[test]
+    fn tolerance_exports_answer_ok_invalid_and_failed_without_panicking() {
+        let design = demo_with_values();
+        let chain = r#"{"kind": "stages", "stages": 3}"#;
+        let Outcome::Ok(view) = monte_carlo_text(&design, chain, r#"{"trials": 200, "seed": 5}"#) else {
+            unreachable!("the demo runs")
+        };
+        assert_eq!(view.report.options.seed, 5);
+        assert_eq!(view.report.digest.len(), 16);
+        let Outcome::Invalid { errors } = monte_carlo_text(&design, chain, r#"{"trials": 0}"#) else {
+            unreachable!("zero trials is refused")
+        };
+        assert_eq!(errors.first().map(|e| e.path.as_str()), Some("options.trials"));
+        let Outcome::Invalid { errors } = monte_carlo_text(&design, chain, r#"{"seed": 9007199254740992}"#)
+        else {
+            unreachable!("a seed the page cannot hold is refused")
+        };
+        assert_eq!(errors.first().map(|e| e.path.as_str()), Some("options.seed"));
+        assert!(matches!(monte_carlo_text(&design, "{}", ""), Outcome::Invalid { .. }));
+        let Outcome::Ok(sweep) = temperature_text(&design, chain, 5) else { unreachable!("sweep") };
+        assert_eq!(sweep.sweep.temperatures_c.len(), 5);
+        assert!(matches!(temperature_text(&design, chain, 1), Outcome::Invalid { .. }));
+        let Outcome::Ok(worst) = chain_worst_case_text(&design, chain) else { unreachable!("worst case") };
+        assert_eq!(worst.worst_case.stage_count, 3);
     }
 
     fn check_outcome(text: &str) -> Option<Vec<String>> {

@@ -196,11 +196,11 @@ pub struct WorstCaseReport {
 }
 
 /// Worst value, the off-nominal settings there, the limiting parameters, evaluations used.
-type SearchResult = (f64, Vec<(Parameter, Setting)>, Vec<(Parameter, f64)>, usize);
+pub(crate) type SearchResult = (f64, Vec<(Parameter, Setting)>, Vec<(Parameter, f64)>, usize);
 
 /// Generic search: `evaluate` gives the margin (larger is better) at a corner, or `None`
 /// when it cannot be evaluated there (treated as no information).
-fn search(
+pub(crate) fn search(
     params: &[Parameter],
     sensitivities: &[(Option<f64>, Option<f64>)],
     nominal: f64,

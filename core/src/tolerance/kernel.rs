@@ -1,0 +1,459 @@
+//! The fast DC margin kernel: the piecewise (handbook) model's two stable states and the eight
+//! DC margins of `stage::margins` in closed form, without allocation, for Monte Carlo.
+//!
+//! The piecewise network of one state has at most three free nodes (the OFF collector, the
+//! OFF base and, in self bias, the common emitter); the ON transistor pins its base and
+//! collector to the emitter. With the emitter voltage E as a parameter every node and both ON
+//! currents are affine in E, and the emitter's own balance `E·(1/RE) = IB + IC` fixes E. This
+//! is the same linear network `StageNetwork::solve_piecewise` solves by LU (including the
+//! GMIN conductance on every node), so the two agree to rounding; a test checks it at nominal
+//! and at corners. Transcendental functions use `libm`, so results are bit-identical natively
+//! and in wasm.
+
+use serde::Serialize;
+
+use crate::device::Material;
+use crate::physics::{kelvin, BOLTZMANN_J_PER_K, ELEMENTARY_CHARGE_C, REFERENCE_TEMPERATURE_C};
+use crate::stage::margins::{max_junction_temperature_c, DC_MARGINS};
+use crate::stage::network::Corner;
+use crate::stage::{BiasScheme, Load, StageDesign, Steering};
+
+/// Number of DC margins the kernel evaluates, in the order of [`DC_MARGINS`].
+pub const MARGIN_COUNT: usize = DC_MARGINS.len();
+
+/// The eight DC margins of one stage (larger is better), in the order of [`DC_MARGINS`].
+pub type DcMargins = [f64; MARGIN_COUNT];
+
+/// Same value as the stage network's node conductance to ground, so both solve one network.
+const GMIN_S: f64 = 1e-12;
+
+/// Capacitor values of one built stage, per side (C1 across the cross resistor from that
+/// side's collector; Ct on that side's steering input). They enter only the transient
+/// estimate of the reverse base–emitter voltage.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Capacitors {
+    pub commutating_f: [f64; 2],
+    pub trigger_f: [f64; 2],
+}
+
+/// Everything that depends only on the temperature (shared by every stage of a build, which
+/// sits at one ambient temperature).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ThermalPoint {
+    pub temperature_c: f64,
+    /// Multiplies the 25 °C hFE (the linear tempco with the floor of `hfe_at`).
+    pub hfe_factor: f64,
+    /// VBE(sat) and cut-off shift from 25 °C, V.
+    pub vbe_shift_v: f64,
+    pub icbo_a: f64,
+    /// Steering diode: saturation current and n·VT at this temperature.
+    pub diode_saturation_a: f64,
+    pub diode_n_vt_v: f64,
+    pub derated_ptot_w: f64,
+}
+
+fn thermal_voltage(temperature_c: f64) -> f64 {
+    BOLTZMANN_J_PER_K * kelvin(temperature_c) / ELEMENTARY_CHARGE_C
+}
+
+/// Piecewise values of one transistor at a spread point.
+#[derive(Debug, Clone, Copy)]
+struct Device {
+    hfe: f64,
+    vce_sat_v: f64,
+    vbe_sat_v: f64,
+    vbe_cutoff_v: f64,
+}
+
+fn interpolate(low: f64, typ: f64, high: f64, position: f64) -> f64 {
+    if position < 0.0 {
+        typ + (typ - low) * position
+    } else {
+        typ + (high - typ) * position
+    }
+}
+
+/// A load on one collector at a corner, as conductance to a return plus a drawn current.
+#[derive(Debug, Clone, Copy)]
+struct LoadTerms {
+    conductance_s: f64,
+    return_v: f64,
+    drawn_a: f64,
+}
+
+/// One state by the piecewise model, only what the margins need.
+#[derive(Debug, Clone, Copy)]
+struct State {
+    on_side: usize,
+    ic: f64,
+    ib: f64,
+    overdrive: f64,
+    cutoff_margin_v: f64,
+    swing_v: f64,
+    off_vbe_v: f64,
+    off_vce_v: f64,
+    on_dissipation_w: f64,
+    off_dissipation_w: f64,
+}
+
+/// The per-design constants of the kernel; build once, evaluate many corners.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MarginKernel {
+    bias: BiasScheme,
+    loads: [Load; 2],
+    steering: Option<Steering>,
+    nominal_capacitors: Capacitors,
+    trigger_amplitude_v: Option<f64>,
+    hfe: [f64; 3],
+    vce_sat: [f64; 3],
+    vbe_sat: [f64; 3],
+    vbe_cutoff_v: f64,
+    vbe_tempco_v_per_c: f64,
+    hfe_tempco_per_c: f64,
+    icbo_25c_a: f64,
+    icbo_doubling_c: f64,
+    material: Material,
+    ptot_w: f64,
+    base_capacitance_f: f64,
+    vebo_v: f64,
+    vceo_v: f64,
+    vcbo_v: f64,
+    ic_max_a: f64,
+    diode_saturation_25c_a: f64,
+    diode_emission: f64,
+    diode_band_gap_ev: f64,
+}
+
+impl MarginKernel {
+    pub fn new(design: &StageDesign) -> MarginKernel {
+        let sheet = design.transistor();
+        let diode = design.diode();
+        let values = design.values();
+        let trigger_f = values.trigger.map_or(0.0, |t| t.trigger_capacitor_f);
+        let n = diode.emission_coefficient;
+        let vt25 = thermal_voltage(REFERENCE_TEMPERATURE_C);
+        let diode_saturation_25c_a =
+            diode.forward_test_current_a / (libm::exp(diode.forward_voltage_v / (n * vt25)) - 1.0);
+        MarginKernel {
+            bias: values.bias,
+            loads: design.input().loads,
+            steering: values.trigger.map(|t| t.steering),
+            nominal_capacitors: Capacitors {
+                commutating_f: [values.commutating_capacitor_f; 2],
+                trigger_f: [trigger_f; 2],
+            },
+            trigger_amplitude_v: design.input().requirements.trigger_amplitude_v,
+            hfe: [sheet.hfe_min, sheet.hfe_typ, sheet.hfe_max],
+            vce_sat: [0.5 * sheet.vce_sat_typ_v, sheet.vce_sat_typ_v, sheet.vce_sat_max_v],
+            vbe_sat: [sheet.vbe_sat_min_v, sheet.vbe_sat_typ_v, sheet.vbe_sat_max_v],
+            vbe_cutoff_v: sheet.vbe_cutoff_v,
+            vbe_tempco_v_per_c: sheet.vbe_tempco_v_per_c,
+            hfe_tempco_per_c: sheet.hfe_tempco_per_c,
+            icbo_25c_a: sheet.icbo_25c_a,
+            icbo_doubling_c: sheet.icbo_doubling_c,
+            material: sheet.material,
+            ptot_w: sheet.ptot_w,
+            base_capacitance_f: sheet.cib_f + sheet.cob_f,
+            vebo_v: sheet.vebo_v,
+            vceo_v: sheet.vceo_v,
+            vcbo_v: sheet.vcbo_v,
+            ic_max_a: sheet.ic_max_a,
+            diode_saturation_25c_a,
+            diode_emission: n,
+            diode_band_gap_ev: diode.material.band_gap_ev(),
+        }
+    }
+
+    /// The design's own capacitor values.
+    pub fn nominal_capacitors(&self) -> Capacitors {
+        self.nominal_capacitors
+    }
+
+    /// The temperature-dependent data (same laws as `TransistorDatasheet::piecewise_at`,
+    /// `DiodeDatasheet::saturation_current_a` and `margins::derated_ptot`, through `libm`).
+    pub fn thermal_point(&self, temperature_c: f64) -> ThermalPoint {
+        let delta_t = temperature_c - REFERENCE_TEMPERATURE_C;
+        let factor = 1.0 + self.hfe_tempco_per_c * delta_t;
+        let t0 = kelvin(REFERENCE_TEMPERATURE_C);
+        let t = kelvin(temperature_c);
+        let n = self.diode_emission;
+        let vt0 = thermal_voltage(REFERENCE_TEMPERATURE_C);
+        let diode_saturation_a = self.diode_saturation_25c_a
+            * libm::pow(t / t0, 3.0 / n)
+            * libm::exp((self.diode_band_gap_ev / (n * vt0)) * (1.0 - t0 / t));
+        let t_max = max_junction_temperature_c(self.material);
+        let derated_ptot_w = if temperature_c <= 25.0 {
+            self.ptot_w
+        } else {
+            (self.ptot_w * (t_max - temperature_c) / (t_max - 25.0)).max(0.0)
+        };
+        ThermalPoint {
+            temperature_c,
+            hfe_factor: factor.max(0.1),
+            vbe_shift_v: self.vbe_tempco_v_per_c * delta_t,
+            icbo_a: self.icbo_25c_a * libm::pow(2.0, delta_t / self.icbo_doubling_c),
+            diode_saturation_a,
+            diode_n_vt_v: n * thermal_voltage(temperature_c),
+            derated_ptot_w,
+        }
+    }
+
+    /// Margins at a corner with the design's capacitors, at the corner's temperature.
+    pub fn evaluate_corner(&self, corner: &Corner) -> DcMargins {
+        self.evaluate(corner, &self.nominal_capacitors, &self.thermal_point(corner.temperature_c))
+    }
+
+    /// Margins at a corner; the temperature is the thermal point's (`corner.temperature_c`
+    /// is not read). Non-finite results (a corner with no usable state) come out as NaN or
+    /// infinities, which fail every threshold.
+    pub fn evaluate(&self, corner: &Corner, capacitors: &Capacitors, thermal: &ThermalPoint) -> DcMargins {
+        let devices = [self.device(corner, 0, thermal), self.device(corner, 1, thermal)];
+        let states = [self.state(corner, thermal, &devices, 0), self.state(corner, thermal, &devices, 1)];
+        let mut overdrive = f64::INFINITY;
+        let mut cutoff = f64::INFINITY;
+        let mut swing = f64::INFINITY;
+        let mut reverse_be = 0.0f64;
+        let mut max_vce = 0.0f64;
+        let mut max_vcb = 0.0f64;
+        let mut max_ic = 0.0f64;
+        let mut max_dissipation = 0.0f64;
+        for state in &states {
+            let on = state.on_side;
+            let off = 1 - on;
+            let on_device = devices[on];
+            overdrive = overdrive.min(state.overdrive);
+            cutoff = cutoff.min(state.cutoff_margin_v);
+            swing = swing.min(state.swing_v);
+            // As in `margins::evaluate_corner`: the base of the transistor just turned off
+            // receives C1's step and, with base steering, the trigger's charge through Ct.
+            let c1 = capacitors.commutating_f[on];
+            let (trigger_charge, trigger_capacitance) = match self.steering {
+                Some(Steering::Base) => {
+                    let ct = capacitors.trigger_f[off];
+                    let amplitude = self.trigger_amplitude_v.unwrap_or(state.swing_v);
+                    let knee = thermal.diode_n_vt_v
+                        * libm::log((0.1 * state.ib).max(1e-9) / thermal.diode_saturation_a + 1.0);
+                    let gap = (knee - (on_device.vbe_sat_v - on_device.vce_sat_v)).max(0.0);
+                    ((amplitude - gap).max(0.0) * ct, ct)
+                }
+                _ => (0.0, 0.0),
+            };
+            let base_capacitance = self.base_capacitance_f + c1 + trigger_capacitance;
+            let injected = state.swing_v * c1 + trigger_charge;
+            let transient_reverse =
+                if base_capacitance > 0.0 { injected / base_capacitance - on_device.vbe_sat_v } else { 0.0 };
+            reverse_be = reverse_be.max(-state.off_vbe_v).max(transient_reverse);
+            max_vce = max_vce.max(state.off_vce_v);
+            max_vcb = max_vcb
+                .max(state.off_vce_v - state.off_vbe_v)
+                .max(state.off_vce_v + transient_reverse.max(0.0));
+            max_ic = max_ic.max(state.ic);
+            max_dissipation = max_dissipation.max(state.on_dissipation_w).max(state.off_dissipation_w);
+        }
+        [
+            overdrive,
+            cutoff,
+            swing,
+            self.vebo_v - reverse_be,
+            self.vceo_v - max_vce,
+            self.vcbo_v - max_vcb,
+            self.ic_max_a - max_ic,
+            thermal.derated_ptot_w - max_dissipation,
+        ]
+    }
+
+    fn device(&self, corner: &Corner, side: usize, thermal: &ThermalPoint) -> Device {
+        let spread = corner.spread[side];
+        let [h_low, h_typ, h_high] = self.hfe;
+        let [s_low, s_typ, s_high] = self.vce_sat;
+        let [b_low, b_typ, b_high] = self.vbe_sat;
+        Device {
+            hfe: interpolate(h_low, h_typ, h_high, spread.hfe) * thermal.hfe_factor,
+            vce_sat_v: interpolate(s_low, s_typ, s_high, spread.vce_sat),
+            vbe_sat_v: interpolate(b_low, b_typ, b_high, spread.vbe_sat) + thermal.vbe_shift_v,
+            vbe_cutoff_v: self.vbe_cutoff_v + thermal.vbe_shift_v,
+        }
+    }
+
+    fn load_terms(&self, corner: &Corner, side: usize) -> LoadTerms {
+        match self.loads[side] {
+            Load::None => LoadTerms { conductance_s: 0.0, return_v: 0.0, drawn_a: 0.0 },
+            Load::Resistance { resistance_ohm, return_v } => LoadTerms {
+                conductance_s: 1.0 / (resistance_ohm * corner.load_resistance_factor[side]),
+                return_v,
+                drawn_a: 0.0,
+            },
+            Load::Current { current_a } => {
+                LoadTerms { conductance_s: 0.0, return_v: 0.0, drawn_a: current_a }
+            }
+        }
+    }
+
+    /// Current of the ON side's base-steering diode in series with its Rt across
+    /// VBE(sat) − VCE(sat) (as `DiodeLaw::conduction_current`, bounded Newton).
+    fn steering_current(&self, voltage: f64, resistance_ohm: f64, thermal: &ThermalPoint) -> f64 {
+        let is = thermal.diode_saturation_a;
+        if !(voltage > 0.0 && resistance_ohm > 0.0 && is > 0.0) {
+            return 0.0;
+        }
+        let n_vt = thermal.diode_n_vt_v;
+        let mut current = voltage / resistance_ohm;
+        for _ in 0..60 {
+            let excess = n_vt * libm::log(current / is + 1.0) + current * resistance_ohm - voltage;
+            let slope = n_vt / (is + current) + resistance_ohm;
+            let next = (current - excess / slope).max(0.0);
+            let converged = (next - current).abs() <= 1e-12 * current.max(1e-18);
+            current = next;
+            if converged {
+                break;
+            }
+        }
+        if current.is_finite() {
+            current
+        } else {
+            0.0
+        }
+    }
+
+    fn state(&self, corner: &Corner, thermal: &ThermalPoint, devices: &[Device; 2], on: usize) -> State {
+        let off = 1 - on;
+        let on_device = devices[on];
+        let off_device = devices[off];
+        let vcc = corner.collector_supply_v;
+        let base_return_v = match self.bias {
+            BiasScheme::Fixed => -corner.bias_supply_v,
+            BiasScheme::SelfBias => 0.0,
+        };
+        let icbo = thermal.icbo_a;
+        let g_rc = [1.0 / corner.collector_resistor_ohm[0], 1.0 / corner.collector_resistor_ohm[1]];
+        // cross[k] runs from collector k to the other base.
+        let g_x = [1.0 / corner.cross_resistor_ohm[0], 1.0 / corner.cross_resistor_ohm[1]];
+        let g_r2 = [1.0 / corner.base_resistor_ohm[0], 1.0 / corner.base_resistor_ohm[1]];
+        let load = [self.load_terms(corner, 0), self.load_terms(corner, 1)];
+        let steering = match self.steering {
+            Some(Steering::Base) => self.steering_current(
+                on_device.vbe_sat_v - on_device.vce_sat_v,
+                corner.trigger_resistor_ohm[on],
+                thermal,
+            ),
+            _ => 0.0,
+        };
+        let vbe = on_device.vbe_sat_v;
+        let vce = on_device.vce_sat_v;
+        // Affine forms c0 + c1·E of the OFF collector and base.
+        let g_coff = g_rc[off] + g_x[off] + load[off].conductance_s + GMIN_S;
+        let c_off0 = (g_rc[off] * vcc + g_x[off] * vbe + load[off].conductance_s * load[off].return_v
+            - icbo
+            - load[off].drawn_a)
+            / g_coff;
+        let c_off1 = g_x[off] / g_coff;
+        let g_boff = g_x[on] + g_r2[off] + GMIN_S;
+        let b_off0 = (g_x[on] * vce + g_r2[off] * base_return_v + icbo) / g_boff;
+        let b_off1 = g_x[on] / g_boff;
+        // ON currents at emitter voltage E, as functions.
+        let base_current = |e: f64, c_off: f64| {
+            let b_on = e + vbe;
+            g_x[off] * (c_off - b_on) + g_r2[on] * (base_return_v - b_on) - GMIN_S * b_on - steering
+        };
+        let collector_current = |e: f64, b_off: f64| {
+            let c_on = e + vce;
+            g_rc[on] * (vcc - c_on)
+                + g_x[on] * (b_off - c_on)
+                + load[on].conductance_s * (load[on].return_v - c_on)
+                - GMIN_S * c_on
+                - load[on].drawn_a
+                + steering
+        };
+        let emitter_v = match self.bias {
+            BiasScheme::Fixed => 0.0,
+            BiasScheme::SelfBias => {
+                let g_re = 1.0 / corner.emitter_resistor_ohm;
+                let at_zero = base_current(0.0, c_off0) + collector_current(0.0, b_off0);
+                // d(IB + IC)/dE from the coefficients (negative: a higher emitter starves both).
+                let slope = g_x[off] * (c_off1 - 1.0) - g_r2[on] - GMIN_S
+                    + (-g_rc[on] + g_x[on] * (b_off1 - 1.0) - load[on].conductance_s - GMIN_S);
+                at_zero / (g_re + GMIN_S - slope)
+            }
+        };
+        let c_off_v = c_off0 + c_off1 * emitter_v;
+        let b_off_v = b_off0 + b_off1 * emitter_v;
+        let ib = base_current(emitter_v, c_off_v);
+        let ic = collector_current(emitter_v, b_off_v);
+        let c_on_v = emitter_v + vce;
+        let overdrive = if ic > 0.0 { on_device.hfe * ib / ic } else { 0.0 };
+        let off_vbe = b_off_v - emitter_v;
+        State {
+            on_side: on,
+            ic,
+            ib,
+            overdrive,
+            cutoff_margin_v: off_device.vbe_cutoff_v - off_vbe,
+            swing_v: c_off_v - c_on_v,
+            off_vbe_v: off_vbe,
+            off_vce_v: c_off_v - emitter_v,
+            on_dissipation_w: vce * ic + vbe * ib,
+            off_dissipation_w: (c_off_v - b_off_v).max(0.0) * icbo,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::stage::margins::{evaluate_corner, margin_value};
+    use crate::stage::worst_case::{corner_for, parameters};
+    use crate::tolerance::test_designs::variants;
+
+    /// Relative agreement the closed form must reach with the LU solve of the same network:
+    /// both are exact solutions of one linear system, so they differ by rounding (and
+    /// `libm` against the platform's `pow`/`exp`/`ln`, each within an ulp or so); 1e-9 of
+    /// the margin's scale leaves room for cancellation in differences such as VCEO − VCE.
+    const RELATIVE: f64 = 1e-9;
+
+    fn check_corner(design: &StageDesign, corner: &Corner, what: &str) {
+        let kernel = MarginKernel::new(design);
+        let fast = kernel.evaluate_corner(corner);
+        let (metrics, _) = evaluate_corner(design, corner).unwrap_or_else(|e| unreachable!("{what}: {e}"));
+        for (k, kind) in DC_MARGINS.iter().enumerate() {
+            let full = margin_value(*kind, &metrics, design).unwrap_or(f64::NAN);
+            let scale = full.abs().max(match kind.unit() {
+                "V" => 1.0,
+                "A" => 1e-3,
+                "W" => 1e-3,
+                _ => 1.0,
+            });
+            assert!(
+                (fast[k] - full).abs() <= RELATIVE * scale,
+                "{what}: {kind:?} kernel {} against stage::margins {}",
+                fast[k],
+                full
+            );
+        }
+    }
+
+    #[test]
+    fn kernel_margins_agree_with_the_stage_analysis_at_nominal_and_at_corners() {
+        for (name, design) in variants() {
+            let params = parameters(&design);
+            check_corner(&design, &corner_for(&design, &[]), &format!("{name} nominal"));
+            for &p in &params {
+                for s in [Setting::Low, Setting::High] {
+                    check_corner(&design, &corner_for(&design, &[(p, s)]), &format!("{name} {p:?} {s:?}"));
+                }
+            }
+            for s in [Setting::Low, Setting::High] {
+                let all: Vec<_> = params.iter().map(|&p| (p, s)).collect();
+                check_corner(&design, &corner_for(&design, &all), &format!("{name} all {s:?}"));
+            }
+            // Alternating ends, so the two halves differ.
+            let mixed: Vec<_> = params
+                .iter()
+                .enumerate()
+                .map(|(i, &p)| (p, if i % 2 == 0 { Setting::Low } else { Setting::High }))
+                .collect();
+            check_corner(&design, &corner_for(&design, &mixed), &format!("{name} mixed"));
+        }
+    }
+
+    use crate::stage::worst_case::Setting;
+}
