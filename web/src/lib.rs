@@ -38,12 +38,8 @@ pub fn start() {
 #[serde(tag = "status", rename_all = "snake_case")]
 pub enum Outcome<T: Serialize> {
     Ok(T),
-    Invalid {
-        errors: Vec<FieldError>,
-    },
-    Failed {
-        message: String,
-    },
+    Invalid { errors: Vec<FieldError> },
+    Failed { message: String },
 }
 
 /// Everything the page shows for one analysed stage.
