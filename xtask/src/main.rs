@@ -13,7 +13,9 @@ cargo xtask <command>
   test    run every check: formatting, lints, unit and cross-check tests, CLI tests,
           the IEC 60063 table cross-check against the PyPI package eseries, and the
           transient engine against scipy's stiff ODE solver (both installed into
-          target/xtask-venv on first use)
+          target/xtask-venv on first use), the long simulated chains (divide by 60,
+          100, 1000) and the browser tests
+  long-chains  only the long simulated chains (release CLI)
   bench   run the benchmarks (core, release build; the chain in wasm under Node; the page
           in Chromium) and print medians
   wasm-bench  only the chain benchmark in wasm under Node (compare with
@@ -169,6 +171,7 @@ fn test() -> Result<(), String> {
     run("cargo", &["test", "--workspace", "--quiet"])?;
     eseries_check()?;
     transient_ode_check()?;
+    long_chain_check()?;
     browser_tests()?;
     eprintln!("\nall checks passed");
     Ok(())
@@ -199,6 +202,44 @@ fn ensure_wasm_target() -> Result<(), String> {
     let installed = output("rustup", &["target", "list", "--installed"])?;
     if !installed.lines().any(|l| l.trim() == "wasm32-unknown-unknown") {
         run("rustup", &["target", "add", "wasm32-unknown-unknown"])?;
+    }
+    Ok(())
+}
+
+/// Division ratios whose chains are too long to simulate in the debug-profile tests (which
+/// cover 3, 5, 10 and 12): each is simulated by the release CLI over two output periods, by
+/// skip-state feedback and by reset on count, and must divide by exactly N.
+const LONG_CHAIN_RATIOS: [u32; 3] = [60, 100, 1000];
+
+fn long_chain_check() -> Result<(), String> {
+    run("cargo", &["build", "--release", "--quiet", "-p", "flipwright-cli"])?;
+    let dir = root().join("target/long-chain-check");
+    std::fs::create_dir_all(&dir).map_err(|e| format!("cannot create {}: {e}", dir.display()))?;
+    let (demo, designed) = (dir.join("demo.json"), dir.join("demo-designed.json"));
+    let cli = cli_path().to_string_lossy().into_owned();
+    run(&cli, &["demo", &demo.to_string_lossy()])?;
+    output(&cli, &["design", &demo.to_string_lossy(), "--out", &designed.to_string_lossy()])?;
+    for ratio in LONG_CHAIN_RATIOS {
+        for method in ["feedback", "reset"] {
+            let started = std::time::Instant::now();
+            let n = ratio.to_string();
+            let args = [
+                "simulate",
+                &designed.to_string_lossy(),
+                "--divide",
+                &n,
+                "--method",
+                method,
+                "--corners",
+                "nominal",
+            ];
+            let report = output(&cli, &args)
+                .map_err(|e| format!("divide by {ratio} by {method}: the simulated chain failed: {e}"))?;
+            if !report.contains("PASS: the count was right after every one") {
+                return Err(format!("divide by {ratio} by {method}: no PASS line in the report:\n{report}"));
+            }
+            eprintln!("divide by {ratio} by {method}: PASS ({:.1} s)", started.elapsed().as_secs_f64());
+        }
     }
     Ok(())
 }
@@ -410,6 +451,7 @@ fn main() -> ExitCode {
     let result = match args.first().map(String::as_str) {
         Some("demo") => demo(),
         Some("test") => test(),
+        Some("long-chains") => long_chain_check(),
         Some("bench") => bench(),
         Some("wasm-bench") => wasm_bench(),
         Some("page") => page(),
