@@ -67,7 +67,11 @@ pub fn wilson_lower_bound(successes: u64, trials: u64, confidence: f64) -> f64 {
 /// §4.4). At p = 0 or 1 the formula gives 0; use a p from a pilot run or 0.5 for the most
 /// conservative size. `None` for inputs outside (0, 1).
 pub fn sample_size(p: f64, half_width: f64, confidence: f64) -> Option<u64> {
-    if !(p >= 0.0 && p <= 1.0 && half_width > 0.0 && half_width < 1.0 && confidence > 0.0 && confidence < 1.0)
+    if !((0.0..=1.0).contains(&p)
+        && half_width > 0.0
+        && half_width < 1.0
+        && confidence > 0.0
+        && confidence < 1.0)
     {
         return None;
     }
