@@ -568,3 +568,63 @@ fn a_closed_output_pipe_ends_the_command_without_a_panic() {
     let message = stderr(&output);
     assert!(!message.contains("panicked"), "panic on a closed pipe: {message}");
 }
+
+/// `flipwright yield`: report on a demo chain, the same digest for the same seed in the JSON,
+/// a different one for another seed, and usage errors naming the flag.
+#[test]
+fn yield_reports_worst_case_and_yield_with_a_reproducible_digest() {
+    let scratch = Scratch::new("yield");
+    let design = demo_file(&scratch);
+    let design = design.to_str().expect("utf-8 path");
+    let text = run(&["yield", design, "--stages", "2", "--trials", "500"], &scratch.0);
+    check_exit(&text, 0, "yield on the demo");
+    let out = stdout(&text);
+    for needle in [
+        "Chain worst case",
+        "Monte Carlo yield",
+        "Wilson",
+        "trials for ±1 %",
+        "digest",
+        "Margins against temperature",
+    ] {
+        assert!(out.contains(needle), "missing {needle:?} in\n{out}");
+    }
+    let digest = |seed: &str, distribution: &str| {
+        let output = run(
+            &[
+                "yield",
+                design,
+                "--stages",
+                "2",
+                "--trials",
+                "300",
+                "--seed",
+                seed,
+                "--distribution",
+                distribution,
+                "--json",
+            ],
+            &scratch.0,
+        );
+        check_exit(&output, 0, "yield --json");
+        let json: Value = serde_json::from_str(&stdout(&output)).expect("JSON");
+        json["report"]["digest"].as_str().expect("digest").to_string()
+    };
+    assert_eq!(digest("7", "normal"), digest("7", "normal"));
+    assert_ne!(digest("7", "normal"), digest("8", "normal"));
+    assert_ne!(digest("7", "uniform"), digest("7", "normal"));
+    for (args, flag) in [
+        (vec!["--trials", "0"], "--trials"),
+        (vec!["--trials", "many"], "--trials"),
+        (vec!["--distribution", "flat"], "--distribution"),
+        (vec!["--stages", "2", "--divide", "10"], "--divide"),
+        (vec!["--stages", "0"], "--stages"),
+    ] {
+        let mut all = vec!["yield", design];
+        all.extend(args.iter());
+        let output = run(&all, &scratch.0);
+        check_exit(&output, 2, &format!("{args:?}"));
+        assert!(stderr(&output).contains(flag), "{args:?}: {}", stderr(&output));
+    }
+    check_exit(&run(&["yield", "missing.json"], &scratch.0), 3, "missing file");
+}

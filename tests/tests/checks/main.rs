@@ -11,6 +11,7 @@ mod physics;
 mod robustness;
 mod series;
 mod stage_models;
+mod tolerance;
 mod transient;
 mod units;
 mod verify;
