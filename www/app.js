@@ -391,8 +391,10 @@ async function compute() {
   if (auto) current.values = JSON.parse(view.design_json).values;
   try { localStorage.setItem(STORAGE_KEY, JSON.stringify(current)); } catch (_) { /* storage full or blocked */ }
   lastView = view;
+  const renderStarted = performance.now();
   render(view, auto ? result : null);
   if (auto) showValues(current.values);
+  document.body.dataset.lastRenderMs = (performance.now() - renderStarted).toFixed(2);
   document.body.dataset.ready = "true";
 }
 
