@@ -1057,7 +1057,7 @@ async function openFile(file) {
     banner(`Cannot open ${file.name}: ${list}. The current design is unchanged.`, "error");
     return;
   }
-  current = JSON.parse(result.Ok !== undefined ? result.Ok : JSON.stringify(JSON.parse(text)));
+  current = JSON.parse(result.design_json);
   $("auto-values").checked = current.values == null;
   showInForm(current);
   syncValueLock();

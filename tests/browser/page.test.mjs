@@ -271,8 +271,9 @@ test("printing after a verification carries its summary and the charts as vector
 
 // ---- counter chain: plan, validation, persistence, verification, print ----
 
-/** Enters a divide ratio and waits until the plan shows it. */
-async function planFor(page, n) {
+/** Enters a divide ratio (optionally choosing the method) and waits until the plan shows it. */
+async function planFor(page, n, { method = null } = {}) {
+  if (method !== null) await page.selectOption("#f-chain-method", method);
   await setField(page, "chain.divide_by", n);
   await page.waitForFunction((n) => /divide by (\d+)/.exec(document.querySelector("#plan-title").textContent)?.[1] === String(n)
     && !document.querySelector("#plan").hidden, n, { timeout: 30000 });
@@ -284,10 +285,12 @@ async function countTable(page) {
   return page.$$eval("#plan-count tbody tr", (rows) => rows.map((r) => [...r.cells].map((c) => c.textContent.trim())));
 }
 
-test("divide by 10 plans 4 stages counting 1…9, 0; 12 and 60 give ⌈log2 N⌉ stages", async () => {
+test("divide by 10 with reset on count plans 4 stages counting 1…9, 0; 12 and 60 give ⌈log2 N⌉ stages", async () => {
   const { page, problems, context } = await open();
   assert.equal(await page.isHidden("#plan"), true, "no plan before a divide ratio is entered");
-  await planFor(page, 10);
+  // The demo stage's reset network fails its own checks, so the recommendation is skip-state
+  // feedback (1…7, 14, 15, 0); the decade sequence is the reset-on-count method's.
+  await planFor(page, 10, { method: "reset_on_count" });
   assert.match(await page.textContent("#plan-summary"), /^4 binary stages/);
   const rows = await countTable(page);
   // A decade (mod-10) counter steps 0→1→…→9 and returns to 0 on the tenth pulse; this is the
@@ -368,7 +371,9 @@ test("verifying the planned chain for N = 5 simulates a count that matches the p
   const { page, problems, context } = await open();
   await planFor(page, 5);
   const planned = (await countTable(page)).filter((r) => Number(r[0]) >= 1).map((r) => r[1]);
-  assert.deepEqual(planned.map(Number), [1, 2, 3, 4, 0]);
+  assert.equal(planned.length, 5);
+  assert.equal(planned.at(-1), "0");
+  assert.equal(new Set(planned).size, 5, `five distinct states ${planned}`);
   await page.click("#plan-run");
   await page.waitForSelector("#chain-result:not([hidden])", { timeout: 180000 });
   assert.match(await page.textContent("#chain-title"), /Planned chain: divide by 5, 3 stages/);
@@ -393,7 +398,7 @@ function pageFill(file) {
 
 test("printing a chain plan carries the count table and the chain section, with no half-empty pages", async () => {
   const { page, problems, context } = await open();
-  await planFor(page, 10);
+  await planFor(page, 10, { method: "reset_on_count" });
   await page.click("#plan-run");
   await page.waitForSelector("#chain-result:not([hidden])", { timeout: 180000 });
   await page.emulateMedia({ media: "print" });
