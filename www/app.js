@@ -391,8 +391,10 @@ async function compute() {
   if (auto) current.values = JSON.parse(view.design_json).values;
   try { localStorage.setItem(STORAGE_KEY, JSON.stringify(current)); } catch (_) { /* storage full or blocked */ }
   lastView = view;
+  const renderStarted = performance.now();
   render(view, auto ? result : null);
   if (auto) showValues(current.values);
+  document.body.dataset.lastRenderMs = (performance.now() - renderStarted).toFixed(2);
   document.body.dataset.ready = "true";
 }
 
@@ -1055,7 +1057,7 @@ async function openFile(file) {
     banner(`Cannot open ${file.name}: ${list}. The current design is unchanged.`, "error");
     return;
   }
-  current = JSON.parse(result.Ok !== undefined ? result.Ok : JSON.stringify(JSON.parse(text)));
+  current = JSON.parse(result.design_json);
   $("auto-values").checked = current.values == null;
   showInForm(current);
   syncValueLock();

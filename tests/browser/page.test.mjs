@@ -268,3 +268,169 @@ test("printing after a verification carries its summary and the charts as vector
   assert.deepEqual(problems, []);
   await context.close();
 });
+
+// ---- counter chain: plan, validation, persistence, verification, print ----
+
+/** Enters a divide ratio (optionally choosing the method) and waits until the plan shows it. */
+async function planFor(page, n, { method = null } = {}) {
+  if (method !== null) await page.selectOption("#f-chain-method", method);
+  await setField(page, "chain.divide_by", n);
+  await page.waitForFunction((n) => /divide by (\d+)/.exec(document.querySelector("#plan-title").textContent)?.[1] === String(n)
+    && !document.querySelector("#plan").hidden, n, { timeout: 30000 });
+  await waitCompute(page);
+}
+
+/** The count table's data rows as [pulse, count] pairs. */
+async function countTable(page) {
+  return page.$$eval("#plan-count tbody tr", (rows) => rows.map((r) => [...r.cells].map((c) => c.textContent.trim())));
+}
+
+test("divide by 10 with reset on count plans 4 stages counting 1…9, 0; 12 and 60 give ⌈log2 N⌉ stages", async () => {
+  const { page, problems, context } = await open();
+  assert.equal(await page.isHidden("#plan"), true, "no plan before a divide ratio is entered");
+  // The demo stage's reset network fails its own checks, so the recommendation is skip-state
+  // feedback (1…7, 14, 15, 0); the decade sequence is the reset-on-count method's.
+  await planFor(page, 10, { method: "reset_on_count" });
+  assert.match(await page.textContent("#plan-summary"), /^4 binary stages/);
+  const rows = await countTable(page);
+  // A decade (mod-10) counter steps 0→1→…→9 and returns to 0 on the tenth pulse; this is the
+  // textbook sequence of a mod-10 ripple counter with reset (from memory: M. Morris Mano,
+  // "Digital Design", chapter on counters).
+  const afterPulses = rows.filter((r) => Number(r[0]) >= 1).map((r) => Number(r[1]));
+  assert.deepEqual(afterPulses, [1, 2, 3, 4, 5, 6, 7, 8, 9, 0], `count table ${JSON.stringify(rows)}`);
+  // The bit column matches the count in natural binary over 4 stages.
+  for (const r of rows.filter((r) => Number(r[0]) >= 1)) assert.equal(parseInt(r[2], 2), Number(r[1]), `bits ${r[2]} for ${r[1]}`);
+  assert.match(await page.textContent("#plan-run-label"), /divide by 10: 4 stages/);
+  await page.screenshot({ path: join(shots, "plan-10.png"), fullPage: true });
+  for (const [n, stages] of [[12, 4], [60, 6]]) {
+    await planFor(page, n);
+    assert.match(await page.textContent("#plan-summary"), new RegExp(`^${stages} binary stages`), `N = ${n}`);
+    assert.equal(Math.ceil(Math.log2(n)), stages);
+    const counts = (await countTable(page)).filter((r) => Number(r[0]) >= 1).map((r) => Number(r[1]));
+    assert.equal(counts.length, n, `N = ${n}: one row per pulse`);
+    assert.equal(counts.at(-1), 0, `N = ${n}: back to 0 after N pulses`);
+  }
+  const diagram = await canvasInk(page, "#plan-canvas");
+  assert.ok(diagram.ink > 0.01, `plan timing diagram nearly blank (${JSON.stringify(diagram)})`);
+  assert.ok(/R9\d\d|D9\d\d/.test(await page.textContent("#parts")) || /Feedback/.test(await page.textContent("#plan-network-title")),
+    "the correction network's parts are in the component table (or the chain uses feedback)");
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+test("an invalid divide ratio is flagged at its field and the last plan stays", async () => {
+  const { page, problems, context } = await open();
+  await planFor(page, 10);
+  const plan = await page.textContent("#plan");
+  const margins = await page.textContent("#margins");
+  const row = '.field.invalid[data-path="chain.divide_by"] .error';
+  let previous = "";
+  for (const bad of ["1", "5000", "abc"]) {
+    await setField(page, "chain.divide_by", bad);
+    // Wait for this entry's own message, not the one left from the entry before.
+    await page.waitForFunction(([sel, prev]) => { const e = document.querySelector(sel); return e && e.textContent !== prev; },
+      [row, previous], { timeout: 30000 });
+    await waitCompute(page);
+    const message = await page.textContent(row);
+    previous = message;
+    assert.ok(message.trim().length > 5, `"${bad}": message "${message}"`);
+    if (bad !== "abc") assert.match(message, /2|4096/, `"${bad}": the message names the range (${message})`);
+    assert.equal(await page.textContent("#plan"), plan, `"${bad}": the previous plan stays`);
+    assert.equal(await page.textContent("#margins"), margins, `"${bad}": the previous design stays`);
+    assert.equal(await page.isHidden("#plan"), false);
+  }
+  await planFor(page, 12);
+  assert.equal(await page.$(".field.invalid"), null, "error cleared after a valid entry");
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+test("the divide ratio survives reload (autosave) and save/open", async () => {
+  const { page, problems, context } = await open();
+  await planFor(page, 60);
+  await page.waitForFunction(() => String(window.flipwright.current?.chain?.divide_by) === "60", null, { timeout: 30000 });
+  await page.reload();
+  await page.waitForSelector("body[data-ready=true]", { timeout: 30000 });
+  assert.equal(await page.inputValue("#f-chain-divide_by"), "60");
+  await page.waitForFunction(() => /divide by 60/.test(document.querySelector("#plan-title").textContent), null, { timeout: 30000 });
+  const [download] = await Promise.all([page.waitForEvent("download"), page.click("#save-file")]);
+  const saved = join(shots, "saved-chain.json");
+  await download.saveAs(saved);
+  assert.equal(String(JSON.parse(readFileSync(saved, "utf8")).chain.divide_by), "60");
+  // Change it, then open the saved file: 60 comes back.
+  await planFor(page, 12);
+  await page.setInputFiles("#open-file", saved);
+  await page.waitForFunction(() => document.querySelector("#f-chain-divide_by").value === "60", null, { timeout: 30000 });
+  await page.waitForFunction(() => /divide by 60/.test(document.querySelector("#plan-title").textContent), null, { timeout: 30000 });
+  assert.match(await page.textContent("#plan-summary"), /^6 binary stages/);
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+test("verifying the planned chain for N = 5 simulates a count that matches the plan", async () => {
+  const { page, problems, context } = await open();
+  await planFor(page, 5);
+  const planned = (await countTable(page)).filter((r) => Number(r[0]) >= 1).map((r) => r[1]);
+  assert.equal(planned.length, 5);
+  assert.equal(planned.at(-1), "0");
+  assert.equal(new Set(planned).size, 5, `five distinct states ${planned}`);
+  await page.click("#plan-run");
+  await page.waitForSelector("#chain-result:not([hidden])", { timeout: 180000 });
+  assert.match(await page.textContent("#chain-title"), /Planned chain: divide by 5, 3 stages/);
+  assert.match(await page.textContent("#chain-verdict"), /^PASS/);
+  const simulated = (await page.textContent("#chain-counts")).trim().split(/\s+/);
+  assert.deepEqual(simulated, planned, "simulated count equals the plan's count table");
+  assert.equal(await page.$("#chain-counts .wrong"), null);
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+/** Per page of a PDF: the share of the usable text height that carries text, from
+ * `pdftotext -layout` (pages split at form feeds): the index of the last non-blank line divided
+ * by the line count of the fullest page. A chart without selectable text would count as empty
+ * space, so the charts here print as SVG with text labels. */
+function pageFill(file) {
+  const pages = execFileSync("pdftotext", ["-layout", file, "-"]).toString().split("\f").filter((p, i, all) => i < all.length - 1 || p.trim());
+  const used = pages.map((p) => { const lines = p.split("\n"); let last = lines.length - 1; while (last >= 0 && !lines[last].trim()) last--; return last + 1; });
+  const full = Math.max(...used);
+  return { pages: pages.length, used, fill: used.map((u) => u / full) };
+}
+
+test("printing a chain plan carries the count table and the chain section, with no half-empty pages", async () => {
+  const { page, problems, context } = await open();
+  await planFor(page, 10, { method: "reset_on_count" });
+  await page.click("#plan-run");
+  await page.waitForSelector("#chain-result:not([hidden])", { timeout: 180000 });
+  await page.emulateMedia({ media: "print" });
+  const file = join(shots, "print-chain-A4.pdf");
+  await page.pdf({ path: file, format: "A4", printBackground: true, preferCSSPageSize: true });
+  const text = execFileSync("pdftotext", ["-layout", file, "-"]).toString();
+  const network = (await page.textContent("#plan-network-title")).trim().split(/\s+/).slice(0, 2).join(" ");
+  for (const expected of ["Chain plan: divide by 10", "Count sequence", network, "Per-stage input rates",
+    "Loads each stage sees", "Logic timing of one output period", "Planned chain: divide by 10", "Component table", "Cautions"]) {
+    assert.ok(text.includes(expected), `PDF lacks "${expected}"`);
+  }
+  // The count table's rows 1…9, 0 with their bits.
+  for (const [pulse, count] of [[1, 1], [9, 9], [10, 0]]) {
+    const bits = count.toString(2).padStart(4, "0").split("").join("\\s?");
+    assert.match(text, new RegExp(`\\b${pulse}\\s+${count}\\s+${bits}\\b`), `PDF count table lacks pulse ${pulse}`);
+  }
+  assert.ok(!text.includes("Verify planned chain"), "controls are not printed");
+  const { pages, fill } = pageFill(file);
+  writeFileSync(join(shots, "print-chain-A4-fill.json"), JSON.stringify({ pages, fill }));
+  for (let i = 0; i < pages - 1; i++) {
+    assert.ok(fill[i] >= 0.4, `page ${i + 1} of ${pages} only ${(100 * fill[i]).toFixed(0)} % filled (${fill.map((f) => f.toFixed(2)).join(", ")})`);
+  }
+  // A heading never ends a page: the last text line of a page is not a section heading.
+  const squash = (t) => t.replace(/\s+/g, " ").trim();
+  const headings = await page.$$eval("#results h2, #results h3", (hs) => hs.filter((h) => h.offsetParent !== null)
+    .flatMap((h) => [h.textContent, h.firstChild?.textContent || ""]));
+  const headingSet = new Set(headings.map(squash).filter(Boolean));
+  for (const [i, p] of text.split("\f").slice(0, -1).entries()) {
+    const last = squash(p.split("\n").filter((l) => l.trim()).at(-1) || "");
+    assert.ok(!headingSet.has(last), `page ${i + 1} ends with the heading "${last}"`);
+  }
+  execFileSync("pdftoppm", ["-png", "-r", "50", file, join(shots, "print-chain-A4")]);
+  assert.deepEqual(problems, []);
+  await context.close();
+});

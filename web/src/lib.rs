@@ -341,7 +341,8 @@ pub fn synthesise_design(design_json: &str) -> Result<JsValue, JsError> {
 #[wasm_bindgen]
 pub fn check_design_file(design_json: &str) -> Result<JsValue, JsError> {
     let outcome = match DesignFile::parse(design_json) {
-        Ok(file) => Outcome::Ok(file.to_json()),
+        // A tagged enum cannot carry a bare string: wrap the normalised text in an object.
+        Ok(file) => Outcome::Ok(serde_json::json!({ "design_json": file.to_json() })),
         Err(errors) => Outcome::Invalid { errors },
     };
     to_js(&outcome)
