@@ -790,8 +790,10 @@ fn driven_reset_hold_grows_with_the_hold_capacitor_and_the_gate_load_falls_with_
     // diode's own capacitance, which does not scale).
     assert!((holds[2] / holds[1] - 2.0).abs() < 0.05, "{holds:?}");
     let sinks: Vec<f64> =
-        [1.0, 1.5, 2.0].iter().map(|k| with(v.hold_capacitor_f, k * v.pull_up_ohm).gate_sink_share).collect();
+        [0.8, 0.9, 1.0].iter().map(|k| with(v.hold_capacitor_f, k * v.pull_up_ohm).gate_sink_share).collect();
     assert!(sinks[0] > sinks[1] && sinks[1] > sinks[2], "{sinks:?}");
+    // Exactly inverse: 1/0.8 = 1.25 times the sink at 0.8·Rp.
+    assert!((sinks[0] / sinks[2] - 1.25).abs() < 1e-9, "{sinks:?}");
     // The race needs more hold when the stages store longer (the clear includes storage).
     let slow = StageTiming { reset_clear_s: timing.reset_clear_s + 100e-9, ..timing };
     let slower = evaluate_reset_driver(reset, &stage, &slow, &network.values).expect("evaluates");
@@ -858,10 +860,11 @@ proptest! {
     #[test]
     fn driven_reset_evaluation_never_panics(
         stage in any_reset_stage(),
-        timing in any_timing(),
-        (rp, rr, rx, ch) in (any_number(), any_number(), any_number(), any_number()),
-        (re, rs) in (any_number(), any_number()),
+        [rp, rr, rx, ch, re, rs] in prop::array::uniform6(any_number()),
     ) {
+        // Any timing is the design check's; with it here as well the strategy tree outgrows a
+        // test thread's stack in the debug profile.
+        let timing = fast_timing();
         let plan = plan(10);
         let values = DriverValues {
             pull_up_ohm: rp, divider_upper_ohm: rr, divider_lower_ohm: rx, hold_capacitor_f: ch,
