@@ -422,7 +422,7 @@ fn assert_reset_chain_counts_at_every_corner(modulus: u32) {
 }
 
 #[test]
-#[ignore = "long: about 30 s in release (cargo test --release -p flipwright-tests -- --ignored reset_divide_by_100)"]
+#[ignore = "long (debug: minutes); run: cargo test --release -p flipwright-checks -- --ignored --exact verify::reset_divide_by_100_counts_at_every_corner"]
 fn reset_divide_by_100_counts_at_every_corner() {
     // Seven stages, decoded 1100100 (the same text as above: cleared on reaching N). Failed at
     // the slow corner (count 8 after edge 100) while the hold capacitor was sized from the
@@ -432,7 +432,7 @@ fn reset_divide_by_100_counts_at_every_corner() {
 }
 
 #[test]
-#[ignore = "long: minutes in release (cargo test --release -p flipwright-tests -- --ignored reset_divide_by_1000)"]
+#[ignore = "long (release: several minutes); run: cargo test --release -p flipwright-checks -- --ignored --exact verify::reset_divide_by_1000_counts_at_every_corner"]
 fn reset_divide_by_1000_counts_at_every_corner() {
     // Ten stages, decoded 1111101000.
     assert_reset_chain_counts_at_every_corner(1000);
