@@ -352,10 +352,10 @@ fn render_planned(out: &mut String, verification: &verify::PlannedChainVerificat
         );
         let _ = writeln!(
             out,
-            "  closed form: reset pulse {} with the bus above the knee {} (full drive for {}), race {} ({} held of {} needed)",
-            format_quantity(reset.conduction_pulse_s, Unit::Second),
-            format_quantity(reset.levels.knee_v, Unit::Volt),
+            "  closed form (cold end): the decoded stages fire at a bus of {}; reset pulse {} with the bus above the knee {}; race {} ({} held after the gate's removal of {} needed)",
+            format_quantity(reset.bus_fire_v, Unit::Volt),
             format_quantity(reset.pulse_width_s, Unit::Second),
+            format_quantity(reset.levels.knee_v, Unit::Volt),
             if reset.race.won { "won" } else { "LOST" },
             format_quantity(reset.race.available_hold_s, Unit::Second),
             format_quantity(reset.race.required_hold_s, Unit::Second)
@@ -367,10 +367,15 @@ fn render_planned(out: &mut String, verification: &verify::PlannedChainVerificat
     for corner in &verification.corners {
         let c = &corner.corner;
         let pulses = corner.reset_pulses.as_ref().map_or_else(String::new, |p| {
+            let time = |t: Option<f64>| t.map_or_else(|| "-".to_string(), |w| format_quantity(w, Unit::Second));
             format!(
-                "; {} reset pulse(s), shortest {}",
+                "; {} reset pulse(s) above the knee {}, shortest {} (closed form {}), held after the gate's removal {} (closed form {})",
                 p.widths_s.len(),
-                p.shortest_s().map_or_else(|| "-".to_string(), |w| format_quantity(w, Unit::Second))
+                format_quantity(p.level_v, Unit::Volt),
+                time(p.shortest_s()),
+                time(p.closed_form_pulse_s),
+                time(p.shortest_hold_after_removal_s()),
+                time(p.closed_form_hold_after_removal_s)
             )
         });
         let _ = writeln!(

@@ -236,6 +236,7 @@ impl ChainPlan {
             problems: reset.problems.clone(),
             race_margin_s: reset.race.available_hold_s - reset.race.required_hold_s,
             driven: false,
+            gate_sink_share: reset.gate_sink_share,
         };
         recommend(&self.methods, self.request.natural_binary_code, Some(&verdict))
     }
@@ -247,6 +248,7 @@ impl ChainPlan {
             problems: reset.problems.clone(),
             race_margin_s: reset.race.available_hold_s - reset.race.required_hold_s,
             driven: true,
+            gate_sink_share: reset.gate_sink_share,
         };
         recommend(&self.methods, self.request.natural_binary_code, Some(&verdict))
     }
@@ -273,6 +275,8 @@ struct ResetVerdict {
     problems: Vec<String>,
     race_margin_s: f64,
     driven: bool,
+    /// Current a decoded stage sinks from the gate at rest over its collector current.
+    gate_sink_share: f64,
 }
 
 fn recommend(
@@ -315,9 +319,10 @@ fn recommend(
     if natural_binary_code {
         let race = match reset {
             Some(network) => format!(
-                "the {} reset wins its race with {:.3e} s to spare",
+                "the {} reset passes its checks: it wins its race with {:.3e} s to spare, and the gate loads a decoded stage with {:.0} % of its collector current at rest",
                 if network.driven { "driven" } else { "passive" },
-                network.race_margin_s
+                network.race_margin_s,
+                100.0 * network.gate_sink_share
             ),
             None => "its race margin is not yet known: design the reset network with the stages' timing"
                 .to_string(),
@@ -341,9 +346,10 @@ fn recommend(
     ];
     if let Some(network) = reset {
         reasons.push(format!(
-            "the {} reset would also work (race margin {:.3e} s) if natural binary outputs are wanted",
+            "the {} reset passes its checks too (race margin {:.3e} s, gate load {:.0} % of a decoded stage's collector current): feedback is preferred only for its fewer parts and its lack of a race; ask for natural binary outputs to get the reset",
             if network.driven { "driven" } else { "passive" },
-            network.race_margin_s
+            network.race_margin_s,
+            100.0 * network.gate_sink_share
         ));
     }
     Recommendation { method: MethodKind::SkipFeedback, reasons }

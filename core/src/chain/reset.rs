@@ -48,6 +48,11 @@ pub const RESET_DIVIDER_RATIO_MAX: f64 = 0.9;
 /// Current at which the diodes' forward drop is taken (our choice).
 pub const RESET_DIODE_CURRENT_A: f64 = 1e-3;
 
+/// Current at which a reset diode counts as conducting when the reset pulse is measured at a
+/// corner (our choice: a tenth of the design point `RESET_DIODE_CURRENT_A`, a small share of
+/// the reset current a base gets).
+pub const CONDUCTION_THRESHOLD_CURRENT_A: f64 = 1e-4;
+
 /// Device values the reset is designed with (worst-case ends chosen by the caller).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct ResetDevices {
@@ -98,6 +103,49 @@ impl ResetStage {
             },
             resistor_series: input.requirements.resistor_series,
             capacitor_series: input.requirements.capacitor_series,
+        }
+    }
+
+    /// The stage at one point of its tolerance space rather than at its worst ends: devices at
+    /// `temperature_c` and hFE position `hfe_spread` (−1 … +1, VCE(sat) and VBE(sat) typical),
+    /// the diodes' drop at [`CONDUCTION_THRESHOLD_CURRENT_A`] (so the knee is where a reset
+    /// diode begins to conduct at that temperature, not the 1 mA design point),
+    /// supplies and stage resistors multiplied by their factors, no further tolerance. This is
+    /// what a simulation corner holds, so the closed form can be put beside its measurement.
+    pub fn at_point(
+        design: &StageDesign,
+        temperature_c: f64,
+        hfe_spread: f64,
+        supply_factor: f64,
+        resistor_factor: f64,
+    ) -> ResetStage {
+        let worst = ResetStage::from_design(design);
+        let sheet = design.transistor();
+        let point =
+            sheet.piecewise_at(temperature_c, SpreadPoint { hfe: hfe_spread, vce_sat: 0.0, vbe_sat: 0.0 });
+        let mut values = worst.values;
+        values.collector_resistor_ohm *= resistor_factor;
+        values.cross_resistor_ohm *= resistor_factor;
+        values.base_resistor_ohm *= resistor_factor;
+        values.emitter_resistor_ohm *= resistor_factor;
+        let mut supplies = worst.supplies;
+        supplies.collector_supply_v *= supply_factor;
+        supplies.bias_supply_v *= supply_factor;
+        supplies.tolerance = 0.0;
+        ResetStage {
+            values,
+            supplies,
+            devices: ResetDevices {
+                vce_sat_v: point.vce_sat_v,
+                vbe_sat_v: point.vbe_sat_v,
+                hfe_min: point.hfe,
+                diode_forward_v: design
+                    .diode()
+                    .forward_voltage_at(CONDUCTION_THRESHOLD_CURRENT_A, temperature_c),
+                resistor_tolerance: 0.0,
+                ..worst.devices
+            },
+            ..worst
         }
     }
 }

@@ -45,13 +45,24 @@ pub const DRIVER_DRIVE_SAFETY: f64 = 2.0;
 /// Current in the driver's emitter resistor at assertion, as a share of the reset current
 /// (our choice: enough to define the bus at rest, little waste).
 pub const DRIVER_EMITTER_SHARE: f64 = 0.1;
-/// Drop of the driver's base current across the divider (Rr ∥ Rx), as a share of the bus
-/// headroom above the knee (our choice: a stiff divider without needless current).
-pub const DRIVER_DIVIDER_DROP_SHARE: f64 = 0.2;
+/// Drops of the driver's base current across the divider (Rr ∥ Rx), as shares of the bus
+/// headroom above the knee, tried in order until the gate's load on a decoded stage at rest is
+/// within `RESET_SINK_SHARE_MAX` (our choice, from simulation: 0.2 made the demo decade's
+/// decoded outputs sink 112 % of their collector current; 0.6 cut it to 36–48 % and every
+/// corner still counted right).
+pub const DRIVER_DIVIDER_DROP_SHARES: [f64; 5] = [0.6, 0.7, 0.8, 0.85, 0.9];
 /// The driver's base–emitter voltage at its rest current, as a share of VBE(sat) (our choice:
 /// 0.7 puts a silicon device at about 0.5 V, a germanium one at about 0.2 V; a low value
 /// places the bus higher at rest, which is the safe side for the rest margin).
 pub const DRIVER_CUT_IN_SHARE: f64 = 0.7;
+
+/// Share of the lift drop Rs·I(lift) by which the bus is taken to rise above the knee before
+/// the decoded stages fire (our choice, from simulation, on the conservative side: a decoded
+/// stage regenerates before its Q2 base reaches the datasheet's VBE(sat), and at the cold end
+/// the piecewise VBE(sat) overstates the base level; with 1.0 the closed form held the slow
+/// corner of the demo decade 26 % longer than the simulation, with 0.6 it holds every corner
+/// shorter for N = 3 … 60 and within 10 % at the slow corner of N = 100).
+pub const DRIVER_FIRE_LIFT_SHARE: f64 = 0.6;
 
 /// Component values of the driven reset network.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
@@ -107,16 +118,14 @@ pub struct DrivenResetNetwork {
     /// The reset bus level at which every stage gets exactly its reset current, V: the
     /// threshold at which the reset pulse is measured.
     pub bus_drive_v: f64,
-    /// Time the bus drives every stage with at least its reset current, s (from the drive
-    /// becoming sufficient to its end: gate removal plus the hold).
+    /// The bus level at which the decoded stages fire (their OFF Q2 bases lifted to VBE(sat)
+    /// and given what R1 and R2 take there), V.
+    pub bus_fire_v: f64,
+    /// The reset pulse in closed form: the time the bus stays above the knee (the reset diodes
+    /// conduct into the bases), s: from the bus passing the knee, through the decoded stages'
+    /// firing and the gate's removal, to the release. This is the pulse the simulation
+    /// measures on the bus (at each corner's own knee).
     pub pulse_width_s: f64,
-    /// Time the bus stays above the knee (the reset diodes conduct into the bases), s: from
-    /// H passing the conduction level, through the gate's removal, to the release. This is the
-    /// pulse the simulation measures (on the bus, at `levels.knee_v`). Known to be far too
-    /// long: on the demo decade it gives about 0.86 µs where the simulated bus stays above the
-    /// knee for about 0.15 µs (the linear hold model misses how fast the driver lets go once
-    /// the stages' bases stop taking current); `pulse_width_s` is the figure that agrees.
-    pub conduction_pulse_s: f64,
     /// Emitter current of the driver at assertion, and its base current at hFE(min), A.
     pub driver_current_a: f64,
     pub driver_base_current_a: f64,
@@ -212,7 +221,8 @@ fn driver_device(stage: &ResetStage) -> (f64, f64) {
 /// (`RESET_HEADROOM_SHARE`) between where the reset diodes begin to conduct and the gate's
 /// ceiling; Rs for `DRIVER_DRIVE_SAFETY` times each stage's reset current at the bus level
 /// that H gives, Re for `DRIVER_EMITTER_SHARE` more; Rr from the driver's base current at
-/// hFE(min) so that it drops `DRIVER_DIVIDER_DROP_SHARE` of the headroom; Rp to hold H there;
+/// hFE(min) so that it drops the first of `DRIVER_DIVIDER_DROP_SHARES` of the headroom that keeps
+/// the gate's load within `RESET_SINK_SHARE_MAX`; Rp to hold H there;
 /// Ch, the smallest preferred value that wins the race. Resistors are rounded down in the
 /// preferred series (more drive), Re up; then the network is evaluated as built.
 pub fn design_reset_driver(
@@ -256,14 +266,6 @@ pub fn design_reset_driver(
     let reset_current = n * DRIVER_DRIVE_SAFETY * need;
     let emitter_current = (1.0 + DRIVER_EMITTER_SHARE) * reset_current;
     let base_current = emitter_current / (beta + 1.0);
-    let drop = DRIVER_DIVIDER_DROP_SHARE * headroom;
-    let rr = drop / (ratio * base_current);
-    let rx = rr * ratio / (1.0 - ratio);
-    let bus = unloaded_base - drop - vbe;
-    let rs = (bus - knee) / (DRIVER_DRIVE_SAFETY * need);
-    let re = (bus - ret) / (DRIVER_EMITTER_SHARE * reset_current);
-    let hold_current = (asserted - (unloaded_base - drop)) / rr;
-    let rp = (levels.supply_min_v - forward - asserted) / hold_current;
     let series_r = stage.resistor_series;
     let round = |value: f64, field: &str, up: bool| {
         let rounded = if up { series_r.next_up(value) } else { series_r.next_down(value) };
@@ -273,14 +275,34 @@ pub fn design_reset_driver(
             ))
         })
     };
-    let mut values = DriverValues {
-        pull_up_ohm: round(rp, "Rp", false)?,
-        divider_upper_ohm: round(rr, "Rr", false)?,
-        divider_lower_ohm: round(rx, "Rx", false)?,
-        hold_capacitor_f: 0.0,
-        emitter_resistor_ohm: round(re, "Re", true)?,
-        series_resistor_ohm: round(rs, "Rs", false)?,
+    // The values for one divider drop: the softer the divider (the larger its drop), the less
+    // standing current H must be fed through Rp, so the higher Rp and the lighter the gate's
+    // load on the decoded stages at rest.
+    let values_for = |drop_share: f64| -> Result<DriverValues, ChainError> {
+        let drop = drop_share * headroom;
+        let rr = drop / (ratio * base_current);
+        let rx = rr * ratio / (1.0 - ratio);
+        let bus = unloaded_base - drop - vbe;
+        let rs = (bus - knee) / (DRIVER_DRIVE_SAFETY * need);
+        let re = (bus - ret) / (DRIVER_EMITTER_SHARE * reset_current);
+        let hold_current = (asserted - (unloaded_base - drop)) / rr;
+        let rp = (levels.supply_min_v - forward - asserted) / hold_current;
+        Ok(DriverValues {
+            pull_up_ohm: round(rp, "Rp", false)?,
+            divider_upper_ohm: round(rr, "Rr", false)?,
+            divider_lower_ohm: round(rx, "Rx", false)?,
+            hold_capacitor_f: 0.0,
+            emitter_resistor_ohm: round(re, "Re", true)?,
+            series_resistor_ohm: round(rs, "Rs", false)?,
+        })
     };
+    let mut values = values_for(DRIVER_DIVIDER_DROP_SHARES[0])?;
+    for &share in &DRIVER_DIVIDER_DROP_SHARES {
+        values = values_for(share)?;
+        if gate_sink(&values, &levels, stage).1 <= RESET_SINK_SHARE_MAX {
+            break;
+        }
+    }
     let race_with = |capacitor_f: f64| {
         let trial = DriverValues { hold_capacitor_f: capacitor_f, ..values };
         timeline(&trial, &levels, stage, stage_count, timing).map(|(_, race, _)| race)
@@ -291,11 +313,7 @@ pub fn design_reset_driver(
                 .to_string(),
         ));
     };
-    let target_s = if race_small.most_hold_s > race_small.required_hold_s {
-        race_small.required_hold_s
-    } else {
-        race_small.gate_removal_s + 0.9 * (race_small.most_hold_s - race_small.gate_removal_s)
-    };
+    let target_s = race_small.required_hold_s;
     let shortfall = |log_c: f64| race_with(10f64.powf(log_c)).map_or(-1.0, |r| r.available_hold_s - target_s);
     let exact_c = if race_small.available_hold_s >= target_s {
         HOLD_CAPACITOR_MIN_F
@@ -313,6 +331,21 @@ pub fn design_reset_driver(
     evaluate_reset_driver(plan, stage, timing, &values)
 }
 
+/// The current a decoded ON collector sinks from Rp at rest (supply high, Rp at its low
+/// tolerance), A, and that over the stage's nominal ON collector current.
+fn gate_sink(values: &DriverValues, levels: &ResetLevels, stage: &ResetStage) -> (f64, f64) {
+    let forward = stage.devices.diode_forward_v;
+    let low = 1.0 - stage.devices.resistor_tolerance;
+    let current =
+        ((levels.supply_max_v - forward - levels.on_collector_v) / (values.pull_up_ohm * low)).max(0.0);
+    let share = if levels.on_collector_current_a > 0.0 {
+        current / levels.on_collector_current_a
+    } else {
+        f64::INFINITY
+    };
+    (current, share)
+}
+
 const HOLD_CAPACITOR_MIN_F: f64 = 1e-13;
 const HOLD_CAPACITOR_MAX_F: f64 = 1e-5;
 const HOLD_SEARCH_ITERATIONS: usize = 80;
@@ -320,13 +353,33 @@ const HOLD_SEARCH_ITERATIONS: usize = 80;
 /// What the timeline gives beside the shared structs: the bus drive level and pulse width.
 struct Extra {
     bus_drive_v: f64,
+    bus_fire_v: f64,
     pulse_width_s: f64,
-    conduction_pulse_s: f64,
     driver_current_a: f64,
     driver_base_current_a: f64,
 }
 
 /// Times one reset with given values; `None` when the values cannot drive the reset at all.
+///
+/// The phases follow what the circuit does (seen in the transient simulation of the demo):
+/// 1. every decoded output is high: Rp charges Ch; the bus rises and, through the reset
+///    diodes, lifts the OFF Q2 bases of the decoded stages along with it (so the stage's own
+///    turn-on delay, charging its OFF base from its own network, is spent here);
+/// 2. the decoded stages fire when the bus has lifted their Q2 bases to conduction and gives
+///    them the current their R1 and R2 take there: bus = knee + s·Rs·I(lift), I(lift) =
+///    (VBE − VCE)/R1 + (VE + VBE − V(return))/R2, s = `DRIVER_FIRE_LIFT_SHARE`. The stage
+///    regenerates, and its Q falls within one transition (rise and C1 commutation), which
+///    removes the gate;
+/// 3. Ch alone keeps the driver on while H decays through Rr into the driver and the divider;
+///    the reset diodes conduct (the bases are held at 0) while the bus stays above the knee.
+///
+/// The race: after the gate's removal the bus must stay above the knee until the decoded
+/// stages' falling edges have passed their neighbours (one transition) and every stage those
+/// edges pushed, and every decoded stage, has latched in 0 (Q1's storage and fall and the
+/// transition that latches: `reset_clear_s − reset_output_fall_s` is storage + fall of the
+/// stage's estimate, `propagation_delay_s` its transition). After its edge a trigger network
+/// draws from the ON base only through Rt from a low collector, well under the reset current,
+/// so the trigger's decay (`trigger_pulse_s`) is not part of the race.
 fn timeline(
     values: &DriverValues,
     levels: &ResetLevels,
@@ -347,10 +400,13 @@ fn timeline(
     let on = idle.hold_for_bus(knee);
     let bus_drive_v = knee + values.series_resistor_ohm * need;
     let drive = driving.hold_for_bus(bus_drive_v);
+    let bus_fire_v =
+        knee + DRIVER_FIRE_LIFT_SHARE * values.series_resistor_ohm * lift_current_a(stage, levels);
+    let fire = driving.hold_for_bus(bus_fire_v);
     let asserted = driving.fed_level(source_v, rp).min(ceiling);
     let idle_target = idle.fed_level(source_v, rp);
     let asymptote = driving.asymptote();
-    if !(asserted > drive && idle_target > on && drive > on && drive > asymptote) {
+    if !(asserted > fire && asserted > drive && idle_target > on && fire > on && fire > asymptote) {
         return None;
     }
     let capacitance = values.hold_capacitor_f + stage.devices.diode_capacitance_f;
@@ -358,18 +414,16 @@ fn timeline(
     let tau_charge = capacitance / (1.0 / rp + driving.slope());
     let tau_hold = capacitance / driving.slope();
     let to_conduction = if rest < on { time_to(rest, idle_target, on, tau_idle)? } else { 0.0 };
-    let to_drive = time_to(on.max(rest), asserted, drive, tau_charge)?;
-    let assert_s = to_conduction + to_drive;
-    let gate_removal_s = timing.fastest(timing.reset_output_fall_s);
-    let at_removal = asserted - (asserted - drive) * (-gate_removal_s / tau_charge).exp();
+    let to_fire = time_to(on.max(rest), asserted, fire, tau_charge)?;
+    let assert_s = to_conduction + to_fire;
+    let gate_removal_s = timing.fastest(timing.propagation_delay_s);
+    let at_removal = asserted - (asserted - fire) * (-gate_removal_s / tau_charge).exp();
+    let release_after_removal_s = time_to(at_removal, asymptote, on, tau_hold).unwrap_or(0.0);
     let hold_after_removal_s = time_to(at_removal, asymptote, drive, tau_hold).unwrap_or(0.0);
-    let release_after_removal_s =
-        time_to(at_removal, asymptote, on.max(asymptote + 1e-9), tau_hold).unwrap_or(hold_after_removal_s);
-    let needed = timing.slowest(timing.reset_clear_s) + timing.slowest(timing.trigger_pulse_s);
+    let storage_and_fall = (timing.reset_clear_s - timing.reset_output_fall_s).max(0.0);
+    let needed = timing.slowest(2.0 * timing.propagation_delay_s + storage_and_fall);
     let required_hold_s = RESET_RACE_SAFETY * needed;
-    let available_hold_s = gate_removal_s + hold_after_removal_s;
-    let most_hold_s = gate_removal_s
-        * (1.0 + (1.0 + 1.0 / (rp * driving.slope())) * (asserted - drive) / (drive - asymptote));
+    let available_hold_s = release_after_removal_s;
     // At rest the driver conducts only Re's current, at about its cut-in voltage.
     let rest_bus = idle.base(rest) - DRIVER_CUT_IN_SHARE * vbe;
     let rest_reverse_margin_v = levels.off_base_max_v + forward - rest_bus;
@@ -377,6 +431,7 @@ fn timeline(
     let drive_ratio = (bus_asserted - knee) / values.series_resistor_ohm / need;
     let driver_current_a = f64::from(stage_count) * (bus_asserted - knee) / values.series_resistor_ohm
         + (bus_asserted - levels.base_return_v) / values.emitter_resistor_ohm;
+    let conduction_pulse_s = to_fire + gate_removal_s + release_after_removal_s;
     Some((
         ResetTimeline {
             rest_hold_v: rest,
@@ -389,27 +444,39 @@ fn timeline(
             hold_at_removal_v: at_removal,
             hold_after_removal_s,
             release_after_removal_s,
-            reset_cycle_s: assert_s + (gate_removal_s + release_after_removal_s).max(needed),
+            reset_cycle_s: assert_s + gate_removal_s + release_after_removal_s.max(needed),
             recovery_time_constant_s: tau_idle,
         },
         RaceCheck {
             gate_removal_s,
             required_hold_s,
             available_hold_s,
-            most_hold_s,
+            // The gate fires at a bus level, not at a time, so the hold grows with Ch (at the
+            // cost of a slower assertion): the most is the largest Ch the planner would fit.
+            most_hold_s: release_after_removal_s * (HOLD_CAPACITOR_MAX_F + stage.devices.diode_capacitance_f)
+                / capacitance,
             won: available_hold_s >= required_hold_s && rest_reverse_margin_v > 0.0,
             condition: format!(
-                "t(fall, fastest decoded) + t(hold by Ch through the driver) ≥ {RESET_RACE_SAFETY} × (t(clear, slowest) + t(trigger pulse, slowest)): the gate removes itself when the first decoded output falls, and Ch must keep the driver driving every stage until the slowest has latched in 0 and the edges its clearing sends on have passed"
+                "t(bus above the knee after the gate's removal) ≥ {RESET_RACE_SAFETY} × (2·t(transition) + t(storage) + t(fall)), slowest stage: the decoded stages fire when the bus has lifted their Q2 bases, the first decoded output to fall removes the gate, and Ch must keep the reset diodes conducting until that edge has passed the next stage and every stage it pushed has latched in 0 again"
             ),
         },
         Extra {
             bus_drive_v,
-            pulse_width_s: available_hold_s,
-            conduction_pulse_s: to_drive + gate_removal_s + release_after_removal_s,
+            bus_fire_v,
+            pulse_width_s: conduction_pulse_s,
             driver_current_a,
             driver_base_current_a: driver_current_a / (beta + 1.0),
         },
     ))
+}
+
+/// Current an OFF Q2 base takes from a reset diode once lifted to VBE(sat): what R1 carries
+/// to the ON Q1's collector and R2 to the base return (the stage's own divider at that level).
+fn lift_current_a(stage: &ResetStage, levels: &ResetLevels) -> f64 {
+    let v = &stage.values;
+    let d = &stage.devices;
+    ((d.vbe_sat_v - d.vce_sat_v) / v.cross_resistor_ohm).max(0.0)
+        + ((levels.emitter_v + d.vbe_sat_v - levels.base_return_v) / v.base_resistor_ohm).max(0.0)
 }
 
 /// Checks given driver values against a plan, a stage and its timing: the levels, the
@@ -439,14 +506,7 @@ pub fn evaluate_reset_driver(
         ));
     };
     let forward = stage.devices.diode_forward_v;
-    let low = 1.0 - stage.devices.resistor_tolerance;
-    let gate_sink_current_a =
-        ((levels.supply_max_v - forward - levels.on_collector_v) / (values.pull_up_ohm * low)).max(0.0);
-    let gate_sink_share = if levels.on_collector_current_a > 0.0 {
-        gate_sink_current_a / levels.on_collector_current_a
-    } else {
-        f64::INFINITY
-    };
+    let (gate_sink_current_a, gate_sink_share) = gate_sink(values, &levels, stage);
     let mut problems = Vec::new();
     if gate_sink_share > RESET_SINK_SHARE_MAX {
         problems.push(format!(
@@ -456,7 +516,7 @@ pub fn evaluate_reset_driver(
     }
     if !(race.available_hold_s >= race.required_hold_s) {
         problems.push(format!(
-            "the race is lost: the reset holds {:.3e} s of the {:.3e} s needed (at most {:.3e} s with this Rp); lower Rp, shorten the stages' storage or the trigger pulse, or use the feedback method",
+            "the race is lost: after the gate's removal the bus stays above the knee for {:.3e} s of the {:.3e} s needed: raise Ch (up to {:.3e} s with the largest), shorten the stages' storage, or use the feedback method",
             race.available_hold_s, race.required_hold_s, race.most_hold_s
         ));
     }
@@ -473,12 +533,16 @@ pub fn evaluate_reset_driver(
     }
     let notes = vec![
         format!(
-            "design choices: stage drive ×{DRIVER_DRIVE_SAFETY}, emitter resistor {:.0} % of the reset current, divider drop {:.0} % of the bus headroom, driver cut-in {DRIVER_CUT_IN_SHARE} × VBE(sat), race safety ×{RESET_RACE_SAFETY}",
+            "design choices: stage drive ×{DRIVER_DRIVE_SAFETY}, emitter resistor {:.0} % of the reset current, divider drop the first of {:?} of the bus headroom that keeps the gate's load within {:.0} % of a stage's collector current, driver cut-in {DRIVER_CUT_IN_SHARE} × VBE(sat), race safety ×{RESET_RACE_SAFETY}",
             100.0 * DRIVER_EMITTER_SHARE,
-            100.0 * DRIVER_DIVIDER_DROP_SHARE
+            DRIVER_DIVIDER_DROP_SHARES,
+            100.0 * RESET_SINK_SHARE_MAX
         ),
         "the driver is the stages' own transistor at its cold end (lowest hFE, highest VBE); a typical device holds the reset longer".to_string(),
-        "t(fall) comes from the stage's own base drive: the reset drives Q2 harder, so the gate is removed sooner than computed; the simulation measures it".to_string(),
+        format!(
+            "the decoded stages fire when the bus reaches {:.3} V (their Q2 bases lifted to VBE(sat) against R1 and R2), not at full drive; Ch then holds the bus above the knee {:.3} V",
+            extra.bus_fire_v, levels.knee_v
+        ),
     ];
     let parts = reset_parts(decoded_stages, stage_count, values, &levels, &extra, forward);
     Ok(DrivenResetNetwork {
@@ -495,8 +559,8 @@ pub fn evaluate_reset_driver(
         timeline,
         race,
         bus_drive_v: extra.bus_drive_v,
+        bus_fire_v: extra.bus_fire_v,
         pulse_width_s: extra.pulse_width_s,
-        conduction_pulse_s: extra.conduction_pulse_s,
         driver_current_a: extra.driver_current_a,
         driver_base_current_a: extra.driver_base_current_a,
         parts,

@@ -316,8 +316,9 @@ pub struct PlannedChainOptions {
 }
 
 /// The reset pulses seen on the reset bus of one run: the spans where it stays at or above
-/// the knee (the level at which the reset diodes conduct into the bases, the planner's
-/// `levels.knee_v`), to compare with the planner's `conduction_pulse_s`.
+/// the corner's own knee (where the reset diodes conduct into the ON bases: VE + VBE(sat) +
+/// VF at the corner's temperature and hFE position), beside the planner's closed form
+/// evaluated at the same corner.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct MeasuredResetPulses {
     pub level_v: f64,
@@ -325,12 +326,53 @@ pub struct MeasuredResetPulses {
     /// (dips shorter than `RESET_PULSE_MERGE_SHARE` of a period merged), s; a pulse still high
     /// at the end of the run is left out.
     pub widths_s: Vec<f64>,
+    /// For each pulse, the time from the gate's removal (the gate node falling below the hold
+    /// node, so the hold diode blocks) to the pulse's end, s; `None` where no removal was seen.
+    pub holds_after_removal_s: Vec<Option<f64>>,
+    /// The closed form at this corner (devices, supplies and parts at the corner's values, no
+    /// spread): the pulse width and the hold after the gate's removal, s; `None` when the
+    /// closed form cannot time the network at this corner.
+    pub closed_form_pulse_s: Option<f64>,
+    pub closed_form_hold_after_removal_s: Option<f64>,
 }
 
 impl MeasuredResetPulses {
     pub fn shortest_s(&self) -> Option<f64> {
         self.widths_s.iter().copied().reduce(f64::min)
     }
+    pub fn shortest_hold_after_removal_s(&self) -> Option<f64> {
+        self.holds_after_removal_s.iter().flatten().copied().reduce(f64::min)
+    }
+}
+
+/// The driven reset's closed form at one simulation corner: the stage and its devices at the
+/// corner's temperature, hFE position, supply and resistor factors, the reset parts scaled as
+/// the circuit builder scales them, the stage times without spread.
+pub fn reset_closed_form_at_corner(
+    design: &StageDesign,
+    plan: &MethodPlan,
+    values: &DriverValues,
+    corner: &SimulationCorner,
+) -> Result<DrivenResetNetwork, VerifyError> {
+    let report = analyse(design).map_err(|e| VerifyError::Analysis(e.to_string()))?;
+    let timing = StageTiming::from_switching(&report.switching, 0.0);
+    let stage = ResetStage::at_point(
+        design,
+        corner.temperature_c,
+        corner.hfe_spread,
+        corner.supply_factor,
+        corner.resistor_factor,
+    );
+    let r = corner.resistor_factor;
+    let scaled = DriverValues {
+        pull_up_ohm: values.pull_up_ohm * r,
+        divider_upper_ohm: values.divider_upper_ohm * r,
+        divider_lower_ohm: values.divider_lower_ohm * r,
+        hold_capacitor_f: values.hold_capacitor_f * corner.capacitor_factor,
+        emitter_resistor_ohm: values.emitter_resistor_ohm * r,
+        series_resistor_ohm: values.series_resistor_ohm * r,
+    };
+    evaluate_reset_driver(plan, &stage, &timing, &scaled).map_err(|e| VerifyError::Reset(e.to_string()))
 }
 
 /// The count check at one corner.
@@ -359,6 +401,14 @@ pub struct PlannedChainVerification {
 /// spans closer together than `merge_gap_s` count as one (a reset bus dips briefly while the
 /// stages it drives change state, which is one reset pulse, not two).
 pub fn pulse_widths_above(times: &[f64], values: &[f64], level_v: f64, merge_gap_s: f64) -> Vec<f64> {
+    pulse_spans_above(times, values, level_v, merge_gap_s)
+        .into_iter()
+        .map(|(start, end)| end - start)
+        .collect()
+}
+
+/// The spans (start, end) behind [`pulse_widths_above`], s.
+pub fn pulse_spans_above(times: &[f64], values: &[f64], level_v: f64, merge_gap_s: f64) -> Vec<(f64, f64)> {
     let mut spans: Vec<(f64, f64)> = Vec::new();
     let mut rise: Option<f64> = None;
     let cross = |i: usize| {
@@ -384,7 +434,20 @@ pub fn pulse_widths_above(times: &[f64], values: &[f64], level_v: f64, merge_gap
             }
         }
     }
-    spans.into_iter().map(|(start, end)| end - start).collect()
+    spans
+}
+
+/// For each span, the time from the first sample inside it where `gate` is below `hold` (the
+/// hold diode blocks: the gate has removed itself) to the span's end, s.
+fn holds_after_removal(times: &[f64], gate: &[f64], hold: &[f64], spans: &[(f64, f64)]) -> Vec<Option<f64>> {
+    spans
+        .iter()
+        .map(|&(start, end)| {
+            let first = times.partition_point(|&t| t < start);
+            let last = times.partition_point(|&t| t <= end);
+            (first..last.min(gate.len()).min(hold.len())).find(|&i| gate[i] < hold[i]).map(|i| end - times[i])
+        })
+        .collect()
 }
 
 /// Verifies a planned chain for any N by simulation at every corner of `options`: plain
@@ -455,15 +518,30 @@ pub fn verify_planned_chain_at_corners(
         };
         let (check, result) = count::run_and_check_against(&built, options.edges, &options.accuracy, &cycle)?;
         let reset_pulses = match (&built.reset, &reset) {
-            (Some(nodes), Some(network)) => result.voltage(&nodes.bus).map(|bus| MeasuredResetPulses {
-                level_v: network.levels.knee_v,
-                widths_s: pulse_widths_above(
-                    &result.time_s,
-                    bus,
-                    network.levels.knee_v,
-                    RESET_PULSE_MERGE_SHARE * options.pulse.period_s(),
-                ),
-            }),
+            (Some(nodes), Some(network)) => {
+                let at_corner =
+                    reset_closed_form_at_corner(design, plan, &network.values, &named.corner).ok();
+                let level_v = at_corner.as_ref().map_or(network.levels.knee_v, |n| n.levels.knee_v);
+                result.voltage(&nodes.bus).map(|bus| {
+                    let spans = pulse_spans_above(
+                        &result.time_s,
+                        bus,
+                        level_v,
+                        RESET_PULSE_MERGE_SHARE * options.pulse.period_s(),
+                    );
+                    let holds = match (result.voltage(&nodes.gate), result.voltage(&nodes.hold)) {
+                        (Some(gate), Some(hold)) => holds_after_removal(&result.time_s, gate, hold, &spans),
+                        _ => vec![None; spans.len()],
+                    };
+                    MeasuredResetPulses {
+                        level_v,
+                        widths_s: spans.iter().map(|(start, end)| end - start).collect(),
+                        holds_after_removal_s: holds,
+                        closed_form_pulse_s: at_corner.as_ref().map(|n| n.pulse_width_s),
+                        closed_form_hold_after_removal_s: at_corner.as_ref().map(|n| n.race.available_hold_s),
+                    }
+                })
+            }
             _ => None,
         };
         corners.push(CornerCount { name: named.name.clone(), corner: named.corner, check, reset_pulses });

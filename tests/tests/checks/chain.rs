@@ -8,7 +8,11 @@ use std::collections::VecDeque;
 use flipwright::chain::loads::{chain_stage_loads, combine_loads, stage_design_with_loads};
 use flipwright::chain::reset::{
     design_reset_for_stage, design_reset_network, evaluate_reset_network, ResetDevices, ResetNetwork,
-    ResetStage, ResetValues,
+    ResetStage, ResetValues, RESET_SINK_SHARE_MAX,
+};
+use flipwright::chain::reset_driver::{
+    design_reset_driver, design_reset_driver_for_stage, evaluate_reset_driver, DrivenResetNetwork,
+    DriverValues,
 };
 use flipwright::chain::timing::{chain_timing, ripple_delay_s, ripple_max_input_rate_hz, StageTiming};
 use flipwright::chain::{
@@ -725,5 +729,147 @@ proptest! {
             _ => Load::Current { current_a: x },
         };
         let _ = combine_loads(make(kinds.0, a, b), make(kinds.1, c, d));
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// The driven reset network (driver transistor): design rules, monotone behaviour, no panic.
+// ---------------------------------------------------------------------------------------------
+
+fn demo_driven(modulus: u32, natural: bool) -> (ChainPlan, DrivenResetNetwork) {
+    let design = demo_design();
+    let timing = demo_timing(&design);
+    let plan = plan_chain(&ChainRequest { modulus, natural_binary_code: natural }).expect("in range");
+    let network = design_reset_driver_for_stage(&plan, &design, &timing)
+        .unwrap_or_else(|e| panic!("N = {modulus}: {e}"));
+    (plan, network)
+}
+
+#[test]
+fn driven_reset_keeps_the_gate_load_within_the_rule_for_short_demo_chains() {
+    // Design rule (our choice, `RESET_SINK_SHARE_MAX`): a decoded ON collector sinks at most
+    // half its collector current from the gate at rest. Gate sink = (VCC(max) − VF − VCE(sat))
+    // / Rp(min) by Ohm's law, recomputed here from the values the planner chose.
+    for modulus in [3u32, 5, 10, 12] {
+        let (_, network) = demo_driven(modulus, true);
+        let l = &network.levels;
+        let forward_v = ResetStage::from_design(&demo_design()).devices.diode_forward_v;
+        let rp_min = network.values.pull_up_ohm * (1.0 - demo_design().input().conditions.resistor_tolerance);
+        let sink = (l.supply_max_v - forward_v - l.on_collector_v) / rp_min;
+        assert!((sink / network.gate_sink_current_a - 1.0).abs() < 1e-9, "N = {modulus}");
+        assert!(
+            network.gate_sink_share <= RESET_SINK_SHARE_MAX,
+            "N = {modulus}: {}",
+            network.gate_sink_share
+        );
+        assert!(network.passes, "N = {modulus}: {:?}", network.problems);
+    }
+}
+
+#[test]
+fn driven_reset_hold_grows_with_the_hold_capacitor_and_the_gate_load_falls_with_rp() {
+    // After the gate's removal H decays as a first-order RC (standard circuit theory): the time
+    // to a fixed level is τ·ln(ratio) with τ ∝ Ch, so the hold grows with Ch; the gate's sink is
+    // Ohm's law through Rp, so it falls as Rp rises.
+    let design = demo_design();
+    let timing = demo_timing(&design);
+    let stage = ResetStage::from_design(&design);
+    let (plan, network) = demo_driven(10, true);
+    let reset = method(&plan, MethodKind::ResetOnCount);
+    let with = |ch: f64, rp: f64| {
+        let values = DriverValues { hold_capacitor_f: ch, pull_up_ohm: rp, ..network.values };
+        evaluate_reset_driver(reset, &stage, &timing, &values).expect("evaluates")
+    };
+    let v = network.values;
+    let holds: Vec<f64> = [1.0, 2.0, 4.0]
+        .iter()
+        .map(|k| with(k * v.hold_capacitor_f, v.pull_up_ohm).race.available_hold_s)
+        .collect();
+    assert!(holds[0] < holds[1] && holds[1] < holds[2], "{holds:?}");
+    // Doubling a first-order time constant doubles the time to the same level (within the
+    // diode's own capacitance, which does not scale).
+    assert!((holds[2] / holds[1] - 2.0).abs() < 0.05, "{holds:?}");
+    let sinks: Vec<f64> =
+        [0.8, 0.9, 1.0].iter().map(|k| with(v.hold_capacitor_f, k * v.pull_up_ohm).gate_sink_share).collect();
+    assert!(sinks[0] > sinks[1] && sinks[1] > sinks[2], "{sinks:?}");
+    // Exactly inverse: 1/0.8 = 1.25 times the sink at 0.8·Rp.
+    assert!((sinks[0] / sinks[2] - 1.25).abs() < 1e-9, "{sinks:?}");
+    // The race needs more hold when the stages store longer (the clear includes storage).
+    let slow = StageTiming { reset_clear_s: timing.reset_clear_s + 100e-9, ..timing };
+    let slower = evaluate_reset_driver(reset, &stage, &slow, &network.values).expect("evaluates");
+    assert!(slower.race.required_hold_s > network.race.required_hold_s);
+    // And the planner answers a longer storage with a larger hold capacitor.
+    let redesigned = design_reset_driver(reset, &stage, &slow).expect("designable");
+    assert!(redesigned.values.hold_capacitor_f > network.values.hold_capacitor_f);
+    assert!(redesigned.race.won, "{:?}", redesigned.problems);
+}
+
+#[test]
+fn driven_reset_recommendation_gives_its_reasons() {
+    // The demo decade's driven reset now passes its closed-form checks, so asking for natural
+    // binary outputs gets the reset; without that, feedback is kept for fewer parts and no race,
+    // and the text says the reset would pass.
+    let (plan, network) = demo_driven(10, true);
+    assert!(network.race.won && network.passes, "{:?}", network.problems);
+    let natural = plan.recommend_with_driven_reset(&network);
+    assert_eq!(natural.method, MethodKind::ResetOnCount);
+    assert!(natural.reasons.iter().any(|r| r.contains("passes its checks")), "{:?}", natural.reasons);
+    let (plan, network) = demo_driven(10, false);
+    let free = plan.recommend_with_driven_reset(&network);
+    assert_eq!(free.method, MethodKind::SkipFeedback);
+    assert!(free.reasons.iter().any(|r| r.contains("passes its checks too")), "{:?}", free.reasons);
+    // A network that fails (Rr a hundred times too large starves the driver) sends it to
+    // feedback with the problem stated.
+    let design = demo_design();
+    let reset = method(&plan, MethodKind::ResetOnCount);
+    let starved =
+        DriverValues { divider_upper_ohm: 100.0 * network.values.divider_upper_ohm, ..network.values };
+    let evaluated =
+        evaluate_reset_driver(reset, &ResetStage::from_design(&design), &demo_timing(&design), &starved);
+    assert!(matches!(evaluated, Err(ChainError::ResetUnbuildable { .. })), "{evaluated:?}");
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 64, failure_persistence: None, ..ProptestConfig::default() })]
+
+    #[test]
+    fn driven_reset_design_never_panics_and_gives_usable_values(
+        stage in any_reset_stage(),
+        timing in any_timing(),
+        modulus in prop_oneof![3u32..40, 40u32..=65_535],
+    ) {
+        let plan = plan(modulus);
+        if let Some(reset) = plan.method(MethodKind::ResetOnCount) {
+            if let Ok(network) = design_reset_driver(reset, &stage, &timing) {
+                let v = network.values;
+                for value in [v.pull_up_ohm, v.divider_upper_ohm, v.divider_lower_ohm, v.hold_capacitor_f,
+                    v.emitter_resistor_ohm, v.series_resistor_ohm] {
+                    prop_assert!(value.is_finite() && value > 0.0, "{v:?}");
+                }
+                let r = &network.race;
+                for time in [r.gate_removal_s, r.required_hold_s, r.available_hold_s, r.most_hold_s, network.pulse_width_s] {
+                    prop_assert!(time.is_finite() && time >= 0.0, "{r:?}");
+                }
+                prop_assert!(network.gate_sink_share.is_finite() && network.gate_sink_share >= 0.0);
+                prop_assert!(network.driver_current_a.is_finite() && network.driver_current_a > 0.0);
+                prop_assert_eq!(network.passes, network.problems.is_empty());
+            }
+        }
+    }
+
+    #[test]
+    fn driven_reset_evaluation_never_panics(
+        stage in any_reset_stage(),
+        [rp, rr, rx, ch, re, rs] in prop::array::uniform6(any_number()),
+    ) {
+        // Any timing is the design check's; with it here as well the strategy tree outgrows a
+        // test thread's stack in the debug profile.
+        let timing = fast_timing();
+        let plan = plan(10);
+        let values = DriverValues {
+            pull_up_ohm: rp, divider_upper_ohm: rr, divider_lower_ohm: rx, hold_capacitor_f: ch,
+            emitter_resistor_ohm: re, series_resistor_ohm: rs,
+        };
+        let _ = evaluate_reset_driver(method(&plan, MethodKind::ResetOnCount), &stage, &timing, &values);
     }
 }

@@ -347,19 +347,95 @@ fn reset_decade_divides_by_ten_at_the_worst_corners() {
     assert!(verification.all_correct);
 }
 
+/// Most the closed form may exceed the simulated pulse and hold at any corner, and least share
+/// of them it must reach (our choice: the closed form is meant conservative, so mostly below;
+/// a little above is allowed for the cold end, where the piecewise VBE(sat) overstates the
+/// bases; below a fifth it would be too pessimistic to size anything with).
+const CLOSED_FORM_OVER_MEASURED_MAX: f64 = 1.25;
+const CLOSED_FORM_OVER_MEASURED_MIN: f64 = 0.2;
+
 #[test]
-fn reset_pulse_width_matches_the_closed_form_at_nominal() {
-    // The planner's closed-form width of full drive (gate removal plus the hold of Ch through the
-    // driver, first-order RC phases: standard circuit theory) against the width the simulated bus
-    // stays above the knee, at nominal. Tolerance ±30 %: the closed form takes the cold, minimum-hFE
-    // device and the stage's own turn-on for the gate's removal; measured on the demo 147 ns
-    // against 136 ns (our measurement, recorded in the issue notes).
-    let (verification, _) = simulate_reset_chain(10, nominal_only(), None);
+fn reset_pulse_and_hold_match_the_closed_form_at_every_corner() {
+    // The planner's closed form (first-order RC phases of the hold node through the driver:
+    // standard circuit theory), evaluated at each corner's own devices, supply and part values,
+    // against the simulated bus: the pulse above that corner's knee, and the hold from the
+    // gate's removal (gate node below the hold node) to the pulse's end. Our measurement on
+    // the demo decade: nominal 414 / 299 ns against 155 / 112 ns, slow 450 / 301 against
+    // 273 / 180, fast 408 / 309 against 118 / 90 (pulse / hold, measured against closed form).
+    let corners = flipwright::verify::chain_corners(demo_design());
+    let (verification, _) = simulate_reset_chain(10, corners, None);
     let reset = verification.reset.as_ref().expect("reset network");
-    let measured =
-        verification.corners[0].reset_pulses.as_ref().and_then(|p| p.shortest_s()).expect("pulses seen");
-    let estimate = reset.pulse_width_s;
-    assert!((measured / estimate - 1.0).abs() < 0.3, "measured {measured:e} s, estimate {estimate:e} s");
+    for corner in &verification.corners {
+        let pulses = corner.reset_pulses.as_ref().expect("the bus is measured");
+        let measured = pulses.shortest_s().expect("pulses seen");
+        let hold = pulses.shortest_hold_after_removal_s().expect("the gate's removal seen");
+        let estimate = pulses.closed_form_pulse_s.expect("the closed form times this corner");
+        let estimate_hold = pulses.closed_form_hold_after_removal_s.expect("and its hold");
+        for (what, closed, simulated) in [("pulse", estimate, measured), ("hold", estimate_hold, hold)] {
+            let ratio = closed / simulated;
+            assert!(
+                (CLOSED_FORM_OVER_MEASURED_MIN..=CLOSED_FORM_OVER_MEASURED_MAX).contains(&ratio),
+                "{}: {what} closed form {closed:e} s, simulated {simulated:e} s",
+                corner.name
+            );
+        }
+        // The hold the planner requires (at the cold end, with its safety) is there at every
+        // corner in the simulation.
+        assert!(
+            hold >= reset.race.required_hold_s,
+            "{}: held {hold:e} s of {:e} s",
+            corner.name,
+            reset.race.required_hold_s
+        );
+        // Each corner's knee follows its temperature: VBE and VF fall by about 2 mV/°C each
+        // (Sedra & Smith; common practice), so the hot corner's knee is lowest.
+        assert!(pulses.level_v < reset.levels.knee_v, "{}: {} V", corner.name, pulses.level_v);
+    }
+    let level = |name: &str| {
+        let corner = verification.corners.iter().find(|c| c.name == name).expect("corner run");
+        corner.reset_pulses.as_ref().map(|p| p.level_v).expect("measured")
+    };
+    let (cold, room, hot) = (level("slow"), level("nominal"), level("fast"));
+    let slope = (cold - hot) / 60.0;
+    assert!(cold > room && room > hot, "{cold} {room} {hot}");
+    assert!((slope - 4e-3).abs() < 2e-3, "knee falls {slope} V/°C (two junctions, about 2 mV/°C each)");
+}
+
+/// Runs the planner's reset chain for `modulus` over two output periods at all three corners
+/// and asserts the count after every edge at each.
+fn assert_reset_chain_counts_at_every_corner(modulus: u32) {
+    let corners = flipwright::verify::chain_corners(demo_design());
+    let (verification, _) = simulate_reset_chain(modulus, corners, None);
+    for corner in &verification.corners {
+        let check = &corner.check;
+        let expected: Vec<Option<u64>> =
+            (1..=2 * u64::from(modulus)).map(|k| Some(k % u64::from(modulus))).collect();
+        assert_eq!(check.observed, expected, "N = {modulus}, {}", corner.name);
+        let pulses = corner.reset_pulses.as_ref().expect("the bus is measured");
+        assert_eq!(
+            pulses.widths_s.len(),
+            2,
+            "N = {modulus}, {}: one reset pulse per output period",
+            corner.name
+        );
+    }
+}
+
+#[test]
+#[ignore = "long (debug: minutes); run: cargo test --release -p flipwright-checks -- --ignored --exact verify::reset_divide_by_100_counts_at_every_corner"]
+fn reset_divide_by_100_counts_at_every_corner() {
+    // Seven stages, decoded 1100100 (the same text as above: cleared on reaching N). Failed at
+    // the slow corner (count 8 after edge 100) while the hold capacitor was sized from the
+    // stage's own turn-on time: the neighbour of the last decoded stage was toggled by its
+    // clearing edge and the reset had already let go.
+    assert_reset_chain_counts_at_every_corner(100);
+}
+
+#[test]
+#[ignore = "long (release: several minutes); run: cargo test --release -p flipwright-checks -- --ignored --exact verify::reset_divide_by_1000_counts_at_every_corner"]
+fn reset_divide_by_1000_counts_at_every_corner() {
+    // Ten stages, decoded 1111101000.
+    assert_reset_chain_counts_at_every_corner(1000);
 }
 
 #[test]
