@@ -430,8 +430,8 @@ fn timeline(
 }
 
 /// Bounds of the hold-capacitor search, F.
-const HOLD_CAPACITOR_MIN_F: f64 = 1e-13;
-const HOLD_CAPACITOR_MAX_F: f64 = 1e-5;
+pub(super) const HOLD_CAPACITOR_MIN_F: f64 = 1e-13;
+pub(super) const HOLD_CAPACITOR_MAX_F: f64 = 1e-5;
 const HOLD_SEARCH_ITERATIONS: usize = 80;
 
 /// Designs the reset of a reset-on-count plan for chains of identical stages.
@@ -512,21 +512,31 @@ pub fn design_reset_network(
         // Cannot be won: come within a tenth of the limit (more Ch only lengthens the cycle).
         race_small.gate_removal_s + 0.9 * (race_small.most_hold_s - race_small.gate_removal_s)
     };
-    let shortfall = |log_c: f64| available(10f64.powf(log_c)).map_or(-1.0, |r| r.available_hold_s - target_s);
-    let exact_c = if race_small.available_hold_s >= target_s {
-        HOLD_CAPACITOR_MIN_F
-    } else {
-        bisect(
-            shortfall,
-            HOLD_CAPACITOR_MIN_F.log10(),
-            HOLD_CAPACITOR_MAX_F.log10(),
-            1e-4,
-            HOLD_SEARCH_ITERATIONS,
-        )
-        .map_or(HOLD_CAPACITOR_MAX_F, |log_c| 10f64.powf(log_c))
-    };
+    let exact_c = smallest_hold_capacitor(&race_small, target_s, available);
     values.hold_capacitor_f = stage.capacitor_series.next_up(exact_c).unwrap_or(exact_c);
     evaluate_reset_network(plan, stage, timing, &values)
+}
+
+/// The smallest hold capacitor (between the search bounds, by bisection in log space) whose
+/// race gives at least `target_s` of hold; `race_small` is the race at the smallest one and
+/// `race_with` the race at any capacitance (`None` where the network cannot be worked out).
+pub(super) fn smallest_hold_capacitor(
+    race_small: &RaceCheck,
+    target_s: f64,
+    race_with: impl Fn(f64) -> Option<RaceCheck>,
+) -> f64 {
+    if race_small.available_hold_s >= target_s {
+        return HOLD_CAPACITOR_MIN_F;
+    }
+    let shortfall = |log_c: f64| race_with(10f64.powf(log_c)).map_or(-1.0, |r| r.available_hold_s - target_s);
+    bisect(
+        shortfall,
+        HOLD_CAPACITOR_MIN_F.log10(),
+        HOLD_CAPACITOR_MAX_F.log10(),
+        1e-4,
+        HOLD_SEARCH_ITERATIONS,
+    )
+    .map_or(HOLD_CAPACITOR_MAX_F, |log_c| 10f64.powf(log_c))
 }
 
 /// Checks given reset values against a plan, a stage and its timing: the levels, the

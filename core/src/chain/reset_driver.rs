@@ -31,12 +31,12 @@
 use serde::{Deserialize, Serialize};
 
 use super::reset::{
-    reset_levels, RaceCheck, ResetLevels, ResetStage, ResetTimeline, RESET_DIVIDER_RATIO_MAX,
-    RESET_HEADROOM_SHARE, RESET_RACE_SAFETY, RESET_REST_MARGIN_V, RESET_SINK_SHARE_MAX,
+    reset_levels, smallest_hold_capacitor, RaceCheck, ResetLevels, ResetStage, ResetTimeline,
+    HOLD_CAPACITOR_MAX_F, HOLD_CAPACITOR_MIN_F, RESET_DIVIDER_RATIO_MAX, RESET_HEADROOM_SHARE,
+    RESET_RACE_SAFETY, RESET_REST_MARGIN_V, RESET_SINK_SHARE_MAX,
 };
 use super::timing::StageTiming;
 use super::{check_range, ChainError, ChainPlan, Method, MethodKind, MethodPlan};
-use crate::numeric::bisect;
 use crate::stage::{Load, StageDesign};
 
 /// Reset current each stage gets at assertion over what it needs (our choice, as for the
@@ -314,19 +314,7 @@ pub fn design_reset_driver(
         ));
     };
     let target_s = race_small.required_hold_s;
-    let shortfall = |log_c: f64| race_with(10f64.powf(log_c)).map_or(-1.0, |r| r.available_hold_s - target_s);
-    let exact_c = if race_small.available_hold_s >= target_s {
-        HOLD_CAPACITOR_MIN_F
-    } else {
-        bisect(
-            shortfall,
-            HOLD_CAPACITOR_MIN_F.log10(),
-            HOLD_CAPACITOR_MAX_F.log10(),
-            1e-4,
-            HOLD_SEARCH_ITERATIONS,
-        )
-        .map_or(HOLD_CAPACITOR_MAX_F, |log_c| 10f64.powf(log_c))
-    };
+    let exact_c = smallest_hold_capacitor(&race_small, target_s, race_with);
     values.hold_capacitor_f = stage.capacitor_series.next_up(exact_c).unwrap_or(exact_c);
     evaluate_reset_driver(plan, stage, timing, &values)
 }
@@ -345,10 +333,6 @@ fn gate_sink(values: &DriverValues, levels: &ResetLevels, stage: &ResetStage) ->
     };
     (current, share)
 }
-
-const HOLD_CAPACITOR_MIN_F: f64 = 1e-13;
-const HOLD_CAPACITOR_MAX_F: f64 = 1e-5;
-const HOLD_SEARCH_ITERATIONS: usize = 80;
 
 /// What the timeline gives beside the shared structs: the bus drive level and pulse width.
 struct Extra {
