@@ -396,6 +396,11 @@ async function compute() {
   if (auto) showValues(current.values);
   document.body.dataset.lastRenderMs = (performance.now() - renderStarted).toFixed(2);
   document.body.dataset.ready = "true";
+  // From the start of the recompute to the next frame on screen: layout, the charts drawn in
+  // that frame, and paint included.
+  requestAnimationFrame(() => setTimeout(() => {
+    document.body.dataset.lastPaintMs = (performance.now() - started).toFixed(2);
+  }, 0));
 }
 
 function renderVerdictFromLast() {
@@ -554,7 +559,7 @@ function renderPlan(outcome) {
   if (!outcome) {
     box.hidden = true;
     runLabel.textContent = "enter a divide ratio to plan a chain";
-    drawCharts();
+    scheduleDraw();
     return;
   }
   box.hidden = false;
@@ -643,7 +648,7 @@ function renderPlan(outcome) {
   notes.textContent = "";
   for (const x of plan.notes) { const li = document.createElement("li"); li.textContent = x; notes.appendChild(li); }
   $("plan-canvas").style.height = chainHeight(n) + "px";
-  drawCharts();
+  scheduleDraw();
   $("plan-svg").innerHTML = printChart("timing_diagram_svg", plan.diagram, 600, Math.round(0.8 * chainHeight(n)));
 }
 
@@ -1006,6 +1011,15 @@ function printChart(exportName, data, width, height) {
     showStatus("Cannot draw the chart for print: " + error.message, "error");
     return "";
   }
+}
+
+// Charts are drawn in the next animation frame, once the browser lays the page out anyway,
+// so reading the canvas sizes does not force an extra layout in the middle of rendering.
+let drawPending = false;
+function scheduleDraw() {
+  if (drawPending) return;
+  drawPending = true;
+  requestAnimationFrame(() => { drawPending = false; drawCharts(); });
 }
 
 function drawCharts() {

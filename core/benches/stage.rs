@@ -52,6 +52,9 @@ fn main() {
     time("worst case of every margin (DC + loop gain)", 400, || {
         worst_case::analyse(&design, &derivation.model)
     });
+    time("DC worst case on the closed-form kernel (screening)", 400, || {
+        flipwright::tolerance::kernel::worst_dc_margins(&design)
+    });
     time("full analysis (states, exact, worst case)", 400, || analyse(&design));
     time("synthesis from requirements", 10, || synthesise(&input));
 }

@@ -149,7 +149,22 @@ fn envelope(run: &DecimatedRun, trace: &DecimatedTrace, columns: usize, time_fac
         points.push((right_s * time_factor, second));
         previous = Some(second);
     }
-    points
+    without_flat_interiors(points)
+}
+
+/// Drops the inner points of every run of three or more points at one level: the line drawn
+/// is the same, and a logic trace (long flat stretches) costs far fewer canvas calls.
+fn without_flat_interiors(points: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
+    let mut kept: Vec<(f64, f64)> = Vec::with_capacity(points.len());
+    for point in points {
+        if let [.., before, last] = kept.as_slice() {
+            if before.1 == last.1 && last.1 == point.1 {
+                kept.pop();
+            }
+        }
+        kept.push(point);
+    }
+    kept
 }
 
 /// Tick labels with as few digits as a tick spacing of `step` needs.
@@ -417,6 +432,30 @@ mod tests {
         assert!(points.iter().any(|&(_, v)| v == 9.0) && points.iter().any(|&(_, v)| v == 0.1));
         assert!(points.windows(2).all(|w| w[0].0 <= w[1].0), "time runs forward");
         assert!(points.len() <= 20, "at most two points per column: {}", points.len());
+    }
+
+    /// Every dropped point must lie on the kept line: between its kept neighbours in time, at
+    /// their common level.
+    #[test]
+    fn flat_runs_keep_only_their_ends_and_the_line_is_unchanged() {
+        let full: Vec<(f64, f64)> =
+            [(0.0, 0.0), (1.0, 0.0), (2.0, 0.0), (3.0, 1.0), (4.0, 1.0), (5.0, 1.0), (6.0, 1.0), (7.0, 0.5)]
+                .to_vec();
+        let kept = without_flat_interiors(full.clone());
+        assert_eq!(kept, vec![(0.0, 0.0), (2.0, 0.0), (3.0, 1.0), (6.0, 1.0), (7.0, 0.5)]);
+        for point in full.iter().filter(|p| !kept.contains(p)) {
+            let on_line = kept
+                .windows(2)
+                .any(|w| w[0].0 <= point.0 && point.0 <= w[1].0 && w[0].1 == point.1 && w[1].1 == point.1);
+            assert!(on_line, "{point:?} dropped off the line");
+        }
+        // Ideal logic levels (minimum = maximum in every bucket), four flat stretches.
+        let mut run = square_run();
+        let levels: Vec<f64> = (0..100).map(|i| f64::from(i / 25 % 2 == 0)).collect();
+        run.traces[0].min_v = levels.clone();
+        run.traces[0].max_v = levels;
+        let logic = envelope(&run, &run.traces[0], 100, 1e6);
+        assert_eq!(logic.len(), 8, "a square wave keeps the two ends of each level: {logic:?}");
     }
 
     #[test]

@@ -12,12 +12,13 @@ use serde::Serialize;
 
 use super::analysis::{analyse, AnalysisError, StageReport};
 use super::handbook::{refined_procedure, ProcedureInput};
-use super::margins::{evaluate_corner, required_value, MarginKind};
+use super::margins::{evaluate_corner, required_value, MarginKind, DC_MARGINS};
 use super::network::Corner;
 use super::switching::fit_capacitors;
 use super::worst_case::{self, nominal_temperature_c};
 use super::{BiasScheme, FieldError, StageDesign, StageInput, StageValues};
 use crate::device::ebers_moll::EbersMoll;
+use crate::tolerance::kernel::worst_dc_margins;
 use crate::units::{format_quantity, Unit};
 
 /// Why synthesis could not produce any design.
@@ -325,10 +326,11 @@ fn neighbourhood_search(
                     candidate_input.values = values;
                     let Ok(design) = StageDesign::new(candidate_input) else { continue };
                     candidates += 1;
-                    let Some(score) = dc_score(&design, base_model) else { continue };
                     // Prefer passing candidates near the first cut: small penalty per step.
-                    let distance = (drc.abs() + dr1.abs() + dr2.abs() + dre.abs()) as f64;
-                    let adjusted = score.min(1.0) - 0.002 * distance;
+                    let penalty = 0.002 * (drc.abs() + dr1.abs() + dr2.abs() + dre.abs()) as f64;
+                    let to_beat = best.as_ref().map_or(f64::NEG_INFINITY, |(s, _)| *s + penalty);
+                    let Some(score) = dc_score(&design, base_model, to_beat) else { continue };
+                    let adjusted = score.min(1.0) - penalty;
                     if best.as_ref().is_none_or(|(s, _)| adjusted > *s) {
                         best = Some((adjusted, values));
                     }
@@ -342,27 +344,43 @@ fn neighbourhood_search(
     }
 }
 
-/// Smallest normalised worst-case DC margin (≥ 0 means every DC margin passes).
-fn dc_score(design: &StageDesign, base_model: &EbersMoll) -> Option<f64> {
-    let report = worst_case::analyse(design, base_model).ok()?;
-    let sheet = design.transistor();
+/// Smallest normalised worst-case margin of the DC margins and the loop gain (≥ 0 means all
+/// pass). The DC margins come from the closed-form kernel's worst case; the loop gain (exact
+/// model, the costly part) is searched only when the DC score, capped at 1 as the caller caps
+/// it, beats `to_beat`: otherwise the candidate loses whatever its loop gain, and the DC score
+/// alone is returned.
+fn dc_score(design: &StageDesign, base_model: &EbersMoll, to_beat: f64) -> Option<f64> {
+    let worst = worst_dc_margins(design);
     let mut score = f64::INFINITY;
-    for wc in &report.margins {
-        let required = required_value(wc.kind, design);
-        let scale = match wc.kind {
-            MarginKind::Overdrive | MarginKind::LoopGain => required.max(1.0),
-            MarginKind::Cutoff => required.max(0.1),
-            MarginKind::OutputSwing => required.max(0.5),
-            MarginKind::ReverseBaseEmitter => sheet.vebo_v,
-            MarginKind::CollectorEmitterVoltage => sheet.vceo_v,
-            MarginKind::CollectorBaseVoltage => sheet.vcbo_v,
-            MarginKind::CollectorCurrent => sheet.ic_max_a,
-            MarginKind::TransistorDissipation => sheet.ptot_w,
-            MarginKind::ToggleRate | MarginKind::TriggerAmplitude => 1.0,
-        };
-        score = score.min((wc.worst - required) / scale);
+    for (kind, value) in DC_MARGINS.iter().zip(worst) {
+        score = score.min(normalised_room(*kind, value, design));
     }
+    if !score.is_finite() || score.min(1.0) <= to_beat {
+        return score.is_finite().then_some(score);
+    }
+    let params = worst_case::parameters(design);
+    let nominal_corner = Corner::nominal(design, nominal_temperature_c(design));
+    let (gain, _) = worst_case::loop_gain_worst_case(design, base_model, &params, &nominal_corner);
+    score = score.min(normalised_room(MarginKind::LoopGain, gain.worst, design));
     score.is_finite().then_some(score)
+}
+
+/// A margin's worst value less its requirement, on a scale that makes margins comparable.
+fn normalised_room(kind: MarginKind, worst: f64, design: &StageDesign) -> f64 {
+    let sheet = design.transistor();
+    let required = required_value(kind, design);
+    let scale = match kind {
+        MarginKind::Overdrive | MarginKind::LoopGain => required.max(1.0),
+        MarginKind::Cutoff => required.max(0.1),
+        MarginKind::OutputSwing => required.max(0.5),
+        MarginKind::ReverseBaseEmitter => sheet.vebo_v,
+        MarginKind::CollectorEmitterVoltage => sheet.vceo_v,
+        MarginKind::CollectorBaseVoltage => sheet.vcbo_v,
+        MarginKind::CollectorCurrent => sheet.ic_max_a,
+        MarginKind::TransistorDissipation => sheet.ptot_w,
+        MarginKind::ToggleRate | MarginKind::TriggerAmplitude => 1.0,
+    };
+    (worst - required) / scale
 }
 
 /// Self-bias first cut: emitter level VE raised until the OFF base clears cut-off by the

@@ -420,59 +420,9 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
                 .set(transistor_dissipation.get().max(metrics.max_transistor_dissipation_w));
         }
     }
-    // Loop gain with the exact model.
-    if let Some(nominal_gain) = loop_gain_at(design, base_model, &nominal_corner) {
-        let nominal = nominal_gain.loop_gain;
-        // The saturation-voltage spreads belong to the piecewise model only.
-        let params: Vec<Parameter> = params
-            .iter()
-            .copied()
-            .filter(|p| !matches!(p, Parameter::VceSat(_) | Parameter::VbeSat(_)))
-            .collect();
-        let sensitivities: Vec<(Option<f64>, Option<f64>)> = params
-            .iter()
-            .map(|&p| {
-                let at = |s: Setting| {
-                    loop_gain_at(design, base_model, &corner_for(design, &[(p, s)])).map(|g| g.loop_gain)
-                };
-                (at(Setting::Low), at(Setting::High))
-            })
-            .collect();
-        total_evaluations += 2 * params.len();
-        let mut gain_cache: std::collections::HashMap<Vec<Setting>, Option<f64>> =
-            std::collections::HashMap::new();
-        let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
-            let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
-            // No middle equilibrium found at a corner counts as no regeneration there.
-            *gain_cache.entry(key).or_insert_with(|| {
-                Some(
-                    loop_gain_at(design, base_model, &corner_for(design, assignment))
-                        .map_or(0.0, |g| g.loop_gain),
-                )
-            })
-        });
-        let temperature_c = corner_for(design, &corner).temperature_c;
-        total_evaluations += evaluations;
-        margins.push(WorstCase {
-            kind: MarginKind::LoopGain,
-            nominal,
-            worst,
-            corner,
-            temperature_c,
-            limiting,
-            evaluations,
-        });
-    } else {
-        margins.push(WorstCase {
-            kind: MarginKind::LoopGain,
-            nominal: 0.0,
-            worst: 0.0,
-            corner: Vec::new(),
-            temperature_c: nominal_corner.temperature_c,
-            limiting: Vec::new(),
-            evaluations: 1,
-        });
-    }
+    let (loop_gain_worst, evaluations) = loop_gain_worst_case(design, base_model, &params, &nominal_corner);
+    total_evaluations += evaluations;
+    margins.push(loop_gain_worst);
     Ok(WorstCaseReport {
         margins,
         resistor_dissipation_w: dissipation,
@@ -480,6 +430,68 @@ pub fn analyse(design: &StageDesign, base_model: &EbersMoll) -> Result<WorstCase
         transistor_dissipation_w: transistor_dissipation.get(),
         total_evaluations,
     })
+}
+
+/// The worst case of the loop gain (exact model) over `params` except the saturation-voltage
+/// spreads, which belong to the piecewise model only; with the evaluations used. No middle
+/// equilibrium at a corner counts as no regeneration there (gain 0).
+pub fn loop_gain_worst_case(
+    design: &StageDesign,
+    base_model: &EbersMoll,
+    params: &[Parameter],
+    nominal_corner: &Corner,
+) -> (WorstCase, usize) {
+    let Some(nominal_gain) = loop_gain_at(design, base_model, nominal_corner) else {
+        let none = WorstCase {
+            kind: MarginKind::LoopGain,
+            nominal: 0.0,
+            worst: 0.0,
+            corner: Vec::new(),
+            temperature_c: nominal_corner.temperature_c,
+            limiting: Vec::new(),
+            evaluations: 1,
+        };
+        return (none, 0);
+    };
+    let nominal = nominal_gain.loop_gain;
+    // The saturation-voltage spreads belong to the piecewise model only.
+    let params: Vec<Parameter> = params
+        .iter()
+        .copied()
+        .filter(|p| !matches!(p, Parameter::VceSat(_) | Parameter::VbeSat(_)))
+        .collect();
+    let sensitivities: Vec<(Option<f64>, Option<f64>)> = params
+        .iter()
+        .map(|&p| {
+            let at = |s: Setting| {
+                loop_gain_at(design, base_model, &corner_for(design, &[(p, s)])).map(|g| g.loop_gain)
+            };
+            (at(Setting::Low), at(Setting::High))
+        })
+        .collect();
+    let mut gain_cache: std::collections::HashMap<Vec<Setting>, Option<f64>> =
+        std::collections::HashMap::new();
+    let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
+        let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
+        // No middle equilibrium found at a corner counts as no regeneration there.
+        *gain_cache.entry(key).or_insert_with(|| {
+            Some(
+                loop_gain_at(design, base_model, &corner_for(design, assignment))
+                    .map_or(0.0, |g| g.loop_gain),
+            )
+        })
+    });
+    let temperature_c = corner_for(design, &corner).temperature_c;
+    let worst_case = WorstCase {
+        kind: MarginKind::LoopGain,
+        nominal,
+        worst,
+        corner,
+        temperature_c,
+        limiting,
+        evaluations,
+    };
+    (worst_case, 2 * params.len() + evaluations)
 }
 
 /// Exhaustive search over every low/high combination (and, for temperature, also nominal),

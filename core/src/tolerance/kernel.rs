@@ -10,12 +10,15 @@
 //! and at corners. Transcendental functions use `libm`, so results are bit-identical natively
 //! and in wasm.
 
+use std::collections::HashMap;
+
 use serde::Serialize;
 
 use crate::device::Material;
 use crate::physics::{kelvin, BOLTZMANN_J_PER_K, ELEMENTARY_CHARGE_C, REFERENCE_TEMPERATURE_C};
 use crate::stage::margins::{max_junction_temperature_c, DC_MARGINS};
 use crate::stage::network::Corner;
+use crate::stage::worst_case::{corner_for, parameters, search, Parameter, Setting};
 use crate::stage::{BiasScheme, Load, StageDesign, Steering};
 
 /// Number of DC margins the kernel evaluates, in the order of [`DC_MARGINS`].
@@ -397,11 +400,88 @@ impl MarginKernel {
     }
 }
 
+/// The worst value of each DC margin (order of [`DC_MARGINS`]) over the design's tolerances,
+/// supplies, device spread and temperature: the start from one-at-a-time sensitivities and
+/// the coordinate search of `worst_case::analyse`, with every corner evaluated by the kernel
+/// (each corner once, shared by the eight margins). It screens many candidate designs cheaply
+/// (synthesis); the report of the chosen design still comes from `worst_case::analyse`, which
+/// finds the same values within the kernel's agreement (a test checks it). A corner with no
+/// usable state counts as failing (−∞), as it does there.
+pub fn worst_dc_margins(design: &StageDesign) -> DcMargins {
+    let kernel = MarginKernel::new(design);
+    let params = parameters(design);
+    // Each corner once: keyed by its settings, two bits per parameter (a design has at most
+    // 20 parameters, so a u64 holds them; a longer list just goes uncached).
+    let key_of = |assignment: &[(Parameter, Setting)]| -> Option<u64> {
+        (assignment.len() <= 32).then(|| {
+            assignment.iter().enumerate().fold(0u64, |key, (i, (_, s))| {
+                key | (match s {
+                    Setting::Low => 1u64,
+                    Setting::Nominal => 0,
+                    Setting::High => 2,
+                } << (2 * i))
+            })
+        })
+    };
+    // The design's corners sit at three temperatures at most: their thermal points once.
+    let mut thermal_points: Vec<ThermalPoint> = Vec::with_capacity(3);
+    let capacitors = kernel.nominal_capacitors();
+    let mut cache: HashMap<u64, DcMargins> = HashMap::new();
+    let mut at = |assignment: &[(Parameter, Setting)]| -> DcMargins {
+        let key = key_of(assignment);
+        if let Some(hit) = key.and_then(|k| cache.get(&k)) {
+            return *hit;
+        }
+        let corner = corner_for(design, assignment);
+        let thermal = match thermal_points.iter().find(|t| t.temperature_c == corner.temperature_c) {
+            Some(point) => *point,
+            None => {
+                let point = kernel.thermal_point(corner.temperature_c);
+                thermal_points.push(point);
+                point
+            }
+        };
+        let margins = kernel.evaluate(&corner, &capacitors, &thermal).map(|m| {
+            if m.is_nan() {
+                f64::NEG_INFINITY
+            } else {
+                m
+            }
+        });
+        if let Some(k) = key {
+            cache.insert(k, margins);
+        }
+        margins
+    };
+    let nominal_assignment: Vec<(Parameter, Setting)> =
+        params.iter().map(|&p| (p, Setting::Nominal)).collect();
+    let one_at_a_time: Vec<(DcMargins, DcMargins)> = (0..params.len())
+        .map(|i| {
+            let mut pair = [nominal_assignment.clone(), nominal_assignment.clone()];
+            for (assignment, setting) in pair.iter_mut().zip([Setting::Low, Setting::High]) {
+                if let Some(slot) = assignment.get_mut(i) {
+                    slot.1 = setting;
+                }
+            }
+            (at(&pair[0]), at(&pair[1]))
+        })
+        .collect();
+    let nominal = at(&nominal_assignment);
+    let mut worst = nominal;
+    for (k, slot) in worst.iter_mut().enumerate() {
+        let sensitivities: Vec<(Option<f64>, Option<f64>)> =
+            one_at_a_time.iter().map(|(low, high)| (Some(low[k]), Some(high[k]))).collect();
+        let (value, _, _, _) =
+            search(&params, &sensitivities, nominal[k], |assignment| Some(at(assignment)[k]));
+        *slot = value;
+    }
+    worst
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use crate::stage::margins::{evaluate_corner, margin_value};
-    use crate::stage::worst_case::{corner_for, parameters};
     use crate::tolerance::test_designs::variants;
 
     /// Relative agreement the closed form must reach with the LU solve of the same network:
@@ -431,6 +511,33 @@ mod tests {
         }
     }
 
+    /// The screening worst case runs the same search as `worst_case::analyse` on corners
+    /// that agree within `RELATIVE`, so it must land on the same worst values.
+    #[test]
+    fn kernel_worst_case_matches_the_stage_worst_case_search() {
+        for (name, design) in variants() {
+            let Some(model) = crate::device::ebers_moll::EbersMoll::from_datasheet(design.transistor())
+            else {
+                unreachable!("{name}: no Ebers–Moll model")
+            };
+            let report = crate::stage::worst_case::analyse(&design, &model.model)
+                .unwrap_or_else(|e| unreachable!("{name}: {e}"));
+            let fast = worst_dc_margins(&design);
+            for (k, kind) in DC_MARGINS.iter().enumerate() {
+                let Some(full) = report.margins.iter().find(|m| m.kind == *kind) else {
+                    unreachable!("{name}: {kind:?} missing from the report")
+                };
+                let scale = full.worst.abs().max(1e-3);
+                assert!(
+                    (fast[k] - full.worst).abs() <= RELATIVE * scale,
+                    "{name}: {kind:?} screening worst {} against analyse {}",
+                    fast[k],
+                    full.worst
+                );
+            }
+        }
+    }
+
     #[test]
     fn kernel_margins_agree_with_the_stage_analysis_at_nominal_and_at_corners() {
         for (name, design) in variants() {
@@ -454,6 +561,4 @@ mod tests {
             check_corner(&design, &corner_for(&design, &mixed), &format!("{name} mixed"));
         }
     }
-
-    use crate::stage::worst_case::Setting;
 }
