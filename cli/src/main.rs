@@ -63,11 +63,12 @@ USAGE
                                       sequence, duty cycle, start-up, glitch states, the
                                       recommended method; with DESIGN also ripple timing,
                                       per-stage toggle rates and the reset network's race
-  flipwright yield DESIGN [--stages N | --divide N] [--trials K] [--seed S]
-                   [--distribution uniform|normal] [--json]
+  flipwright yield DESIGN [--stages N | --divide N [--method binary|feedback|reset]]
+                   [--trials K] [--seed S] [--distribution uniform|normal] [--json]
                                       tolerances of a chain of the design's stages (default
                                       one stage; --divide N the planned chain with its
-                                      loads): the worst case of every DC margin with its
+                                      loads, by the method named or, when none is, binary
+                                      for a power of two and feedback otherwise): the worst case of every DC margin with its
                                       limiting stage and parameter, the Monte Carlo yield
                                       over K builds (default 10000, seed 1) with its 95 %
                                       Wilson interval and lower bound, trials needed for

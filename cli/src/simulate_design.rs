@@ -126,15 +126,7 @@ impl DesignRequest {
                 "--method and --corners choose how a planned chain runs: give --divide N with them",
             ));
         }
-        self.method = match method {
-            None => None,
-            Some("binary") => Some(MethodKind::PlainBinary),
-            Some("feedback") => Some(MethodKind::SkipFeedback),
-            Some("reset") => Some(MethodKind::ResetOnCount),
-            Some(other) => {
-                return Err(usage(format!("--method wants binary, feedback or reset, got \"{other}\"")))
-            }
-        };
+        self.method = method.map(method_kind).transpose()?;
         self.corners = match corners {
             None | Some("nominal") => CornerChoice::Nominal,
             Some("worst") => CornerChoice::Worst,
@@ -546,5 +538,15 @@ fn render_timings(out: &mut String, verification: &verify::StageVerification) {
             format_quantity(period, Unit::Second),
             100.0 * duty
         );
+    }
+}
+
+/// The word of `--method` (binary, feedback or reset) as the planned method it names.
+pub fn method_kind(word: &str) -> Result<MethodKind, Failure> {
+    match word {
+        "binary" => Ok(MethodKind::PlainBinary),
+        "feedback" => Ok(MethodKind::SkipFeedback),
+        "reset" => Ok(MethodKind::ResetOnCount),
+        other => Err(usage(format!("--method wants binary, feedback or reset, got \"{other}\""))),
     }
 }

@@ -44,16 +44,21 @@ fn number<T: std::str::FromStr>(
 }
 
 pub fn run(args: &[String]) -> Result<u8, Failure> {
-    let options = parse_options(args, &["stages", "divide", "trials", "seed", "distribution"], &["json"])?;
+    let options =
+        parse_options(args, &["stages", "divide", "method", "trials", "seed", "distribution"], &["json"])?;
     let path = options.one_file("yield")?;
     let stages: Option<u32> = number(&options, "stages", "a stage count from 1 to 64 (e.g. --stages 4)")?;
     let divide: Option<u32> =
         number(&options, "divide", "a division ratio from 2 to 4096 (e.g. --divide 10)")?;
+    let method = options.value("method").map(crate::simulate_design::method_kind).transpose()?;
+    if method.is_some() && divide.is_none() {
+        return Err(usage("--method chooses how a planned chain is built: give --divide N with it"));
+    }
     let shape = match (stages, divide) {
         (Some(_), Some(_)) => {
             return Err(usage("give --stages N or --divide N, not both"));
         }
-        (None, Some(modulus)) => ChainShape::Divide { modulus, method: None },
+        (None, Some(modulus)) => ChainShape::Divide { modulus, method },
         (Some(stages), None) => ChainShape::Stages { stages },
         (None, None) => ChainShape::Stages { stages: 1 },
     };

@@ -14,8 +14,10 @@ cargo xtask <command>
           the IEC 60063 table cross-check against the PyPI package eseries, and the
           transient engine against scipy's stiff ODE solver (both installed into
           target/xtask-venv on first use), the long simulated chains (divide by 60,
-          100, 1000) and the browser tests
+          100, 1000), the Monte Carlo digests native against wasm, and the browser tests
   long-chains  only the long simulated chains (release CLI)
+  wasm-digest  only the Monte Carlo digests: the release CLI against the wasm bridge
+          under Node, on the same seeds
   bench   run the benchmarks (core, release build; the chain in wasm under Node; the page
           in Chromium) and print medians
   wasm-bench  only the chain benchmark in wasm under Node (compare with
@@ -172,6 +174,7 @@ fn test() -> Result<(), String> {
     eseries_check()?;
     transient_ode_check()?;
     long_chain_check()?;
+    wasm_digest_check()?;
     browser_tests()?;
     eprintln!("\nall checks passed");
     Ok(())
@@ -240,6 +243,113 @@ fn long_chain_check() -> Result<(), String> {
             }
             eprintln!("divide by {ratio} by {method}: PASS ({:.1} s)", started.elapsed().as_secs_f64());
         }
+    }
+    Ok(())
+}
+
+/// Monte Carlo cases for the native-against-wasm check: (CLI arguments, chain shape and
+/// options as the bridge takes them). A ripple chain, a feedback decade-of-six and a reset
+/// decade, both distributions.
+const DIGEST_CASES: [(&[&str], &str, &str); 3] = [
+    (
+        &["--stages", "10", "--trials", "2000", "--seed", "1", "--distribution", "uniform"],
+        r#"{"kind": "stages", "stages": 10}"#,
+        r#"{"trials": 2000, "seed": 1, "distribution": "uniform"}"#,
+    ),
+    (
+        &[
+            "--divide",
+            "60",
+            "--method",
+            "feedback",
+            "--trials",
+            "1000",
+            "--seed",
+            "20261202",
+            "--distribution",
+            "normal",
+        ],
+        r#"{"kind": "divide", "modulus": 60, "method": "skip_feedback"}"#,
+        r#"{"trials": 1000, "seed": 20261202, "distribution": "normal"}"#,
+    ),
+    (
+        &[
+            "--divide",
+            "10",
+            "--method",
+            "reset",
+            "--trials",
+            "1000",
+            "--seed",
+            "3",
+            "--distribution",
+            "uniform",
+        ],
+        r#"{"kind": "divide", "modulus": 10, "method": "reset_on_count"}"#,
+        r#"{"trials": 1000, "seed": 3, "distribution": "uniform"}"#,
+    ),
+];
+
+/// Same seed, same result natively and in wasm: every case's digest (FNV-1a over every
+/// margin of every trial) and pass count from the release CLI must equal the wasm bridge's
+/// under Node. Fails, never skips, when either side cannot run.
+fn wasm_digest_check() -> Result<(), String> {
+    run("cargo", &["build", "--release", "--quiet", "-p", "flipwright-cli"])?;
+    let glue = build_wasm_bench()?;
+    let dir = root().join("target/wasm-digest-check");
+    std::fs::create_dir_all(&dir).map_err(|e| format!("cannot create {}: {e}", dir.display()))?;
+    let (demo, designed) = (dir.join("demo.json"), dir.join("demo-designed.json"));
+    let cli = cli_path().to_string_lossy().into_owned();
+    run(&cli, &["demo", &demo.to_string_lossy()])?;
+    output(&cli, &["design", &demo.to_string_lossy(), "--out", &designed.to_string_lossy()])?;
+    let parse = |text: &str, what: &str| {
+        serde_json::from_str::<serde_json::Value>(text).map_err(|e| format!("{what} is not JSON: {e}"))
+    };
+    let mut native = Vec::new();
+    for (args, _, _) in DIGEST_CASES {
+        let mut full =
+            vec!["yield", &*designed.to_string_lossy()].into_iter().map(str::to_string).collect::<Vec<_>>();
+        full.extend(args.iter().map(|a| a.to_string()));
+        full.push("--json".to_string());
+        let borrowed: Vec<&str> = full.iter().map(String::as_str).collect();
+        // Exit 1 means a margin fails at worst case; the report is still printed.
+        let report =
+            Command::new(&cli).args(&borrowed).output().map_err(|e| format!("cannot start {cli}: {e}"))?;
+        let value =
+            parse(&String::from_utf8_lossy(&report.stdout), &format!("flipwright {}", borrowed.join(" ")))?;
+        native.push((value["report"]["digest"].clone(), value["report"]["passed"].clone()));
+    }
+    let cases = format!(
+        "[{}]",
+        DIGEST_CASES
+            .iter()
+            .map(|(_, chain, options)| format!(r#"{{"chain": {chain}, "options": {options}}}"#))
+            .collect::<Vec<_>>()
+            .join(", ")
+    );
+    eprintln!("$ node tests/browser/wasm-digest.mjs");
+    let wasm = Command::new("node")
+        .args(["wasm-digest.mjs", &designed.to_string_lossy(), &cases])
+        .current_dir(root().join("tests/browser"))
+        .env("FLIPWRIGHT_WASM_GLUE", &glue)
+        .output()
+        .map_err(|e| format!("cannot start node: {e}"))?;
+    if !wasm.status.success() {
+        return Err(format!(
+            "the wasm Monte Carlo failed under Node:\n{}",
+            String::from_utf8_lossy(&wasm.stderr)
+        ));
+    }
+    let wasm = parse(&String::from_utf8_lossy(&wasm.stdout), "the Node script's output")?;
+    for (k, ((digest, passed), (args, _, _))) in native.iter().zip(DIGEST_CASES).enumerate() {
+        let (w_digest, w_passed) = (&wasm[k]["digest"], &wasm[k]["passed"]);
+        if !digest.is_string() || digest != w_digest || passed != w_passed {
+            return Err(format!(
+                "Monte Carlo {}: native digest {digest}, {passed} passed; wasm digest {w_digest}, {w_passed} passed",
+                args.join(" ")
+            ));
+        }
+        eprintln!("Monte Carlo {}: digest {digest} and {passed} passed, native = wasm", args.join(" "));
     }
     Ok(())
 }
@@ -452,6 +562,7 @@ fn main() -> ExitCode {
         Some("demo") => demo(),
         Some("test") => test(),
         Some("long-chains") => long_chain_check(),
+        Some("wasm-digest") => wasm_digest_check(),
         Some("bench") => bench(),
         Some("wasm-bench") => wasm_bench(),
         Some("page") => page(),
