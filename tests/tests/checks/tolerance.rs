@@ -5,13 +5,16 @@
 use flipwright::chain::loads::StageLoads;
 use flipwright::design_file::DesignFile;
 use flipwright::device::ebers_moll::EbersMoll;
-use flipwright::stage::margins::MarginKind;
+use flipwright::device::SpreadPoint;
+use flipwright::stage::margins::{MarginKind, DC_MARGINS};
+use flipwright::stage::network::Corner;
 use flipwright::stage::synthesis::synthesise;
 use flipwright::stage::worst_case;
 use flipwright::stage::{Load, StageDesign};
 use flipwright::tolerance::statistics::{sample_size, wilson_interval, wilson_two_sided};
 use flipwright::tolerance::{
-    chain_worst_case, monte_carlo_yield, Distribution, LoadedChain, MonteCarloOptions, ToleranceError,
+    chain_worst_case, monte_carlo_yield, Distribution, LoadedChain, MarginKernel, MonteCarloOptions,
+    ToleranceError,
 };
 use proptest::prelude::*;
 
@@ -199,6 +202,92 @@ proptest! {
             }
             Err(ToleranceError::InvalidOption { .. }) => {}
             Err(other) => prop_assert!(false, "unexpected error {other:?}"),
+        }
+    }
+}
+
+/// The demo stage with every spread removed except the VCE(sat) of its two transistors: no
+/// component or supply tolerance, one temperature, hFE and VBE(sat) pinned to their typical
+/// values, no loads. The output-swing requirement is set to the swing the stage has when
+/// VCE(sat) sits at `position` of its band (−1 the low end, 0 typical, +1 the maximum).
+fn only_saturation_voltage_varies(position: f64) -> StageDesign {
+    let mut input = demo().input().clone();
+    input.supplies.tolerance = 0.0;
+    input.conditions.resistor_tolerance = 0.0;
+    input.conditions.capacitor_tolerance = 0.0;
+    input.conditions.t_min_c = 25.0;
+    input.conditions.t_max_c = 25.0;
+    let sheet = &mut input.transistor;
+    sheet.hfe_min = sheet.hfe_typ;
+    sheet.hfe_max = sheet.hfe_typ;
+    sheet.vbe_sat_min_v = sheet.vbe_sat_typ_v;
+    sheet.vbe_sat_max_v = sheet.vbe_sat_typ_v;
+    input.loads = [Load::None, Load::None];
+    let probe = StageDesign::new(input.clone()).expect("pinned design validates");
+    let kernel = MarginKernel::new(&probe);
+    let swing_index = DC_MARGINS.iter().position(|k| *k == MarginKind::OutputSwing).expect("swing margin");
+    let mut corner = Corner::nominal(&probe, 25.0);
+    for side in 0..2 {
+        corner.spread[side].vce_sat = position;
+    }
+    input.requirements.min_output_swing_v = kernel.evaluate_corner(&corner)[swing_index];
+    StageDesign::new(input).expect("design with the swing requirement validates")
+}
+
+/// A margin at a tolerance edge (analytic expectation; probability, common practice). In the
+/// piecewise model the ON collector sits at VCE(sat), so each state's output swing falls as
+/// its ON transistor's VCE(sat) rises and nothing else here varies. With the requirement at
+/// the swing for VCE(sat) at band position x, a stage passes when both transistors' positions
+/// are ≤ x: probability ((1 + x)/2)² for positions uniform on [−1, 1], and ¼ at x = 0 for any
+/// distribution symmetric about the typical value; a chain of k stages passes with that to
+/// the k-th power. At x = +1 (the tolerance edge itself) every build passes. The observed
+/// yield must hold the expectation inside its 99.9 % Wilson interval (20 000 trials).
+#[test]
+fn yield_at_a_tolerance_edge_follows_the_analytic_expectation() {
+    // Precondition: the swing is linear in VCE(sat) with slope −1 (so the threshold is a
+    // band position), and every other margin passes at the worst case.
+    let edge = only_saturation_voltage_varies(1.0);
+    let kernel = MarginKernel::new(&edge);
+    let swing_index = DC_MARGINS.iter().position(|k| *k == MarginKind::OutputSwing).expect("swing margin");
+    let sheet = edge.transistor();
+    let at = |position: f64| {
+        let mut corner = Corner::nominal(&edge, 25.0);
+        corner.spread = [SpreadPoint { hfe: 0.0, vce_sat: position, vbe_sat: 0.0 }; 2];
+        kernel.evaluate_corner(&corner)[swing_index]
+    };
+    let drop = at(0.0) - at(1.0);
+    assert!((drop - (sheet.vce_sat_max_v - sheet.vce_sat_typ_v)).abs() < 1e-9, "swing drop {drop} V");
+    let worst = chain_worst_case(&LoadedChain::uniform(&edge, 1).expect("chain")).expect("worst case");
+    assert!(worst.all_pass, "every margin passes at the edge: {:?}", worst.margins);
+    let cases = [
+        (0.0, 1, Distribution::Uniform, 0.25),
+        (0.0, 1, Distribution::Normal, 0.25),
+        (0.0, 2, Distribution::Uniform, 0.0625),
+        (0.5, 1, Distribution::Uniform, 0.5625),
+        (-0.5, 3, Distribution::Uniform, 0.25f64.powi(6)),
+        (1.0, 4, Distribution::Uniform, 1.0),
+        (1.0, 4, Distribution::Normal, 1.0),
+    ];
+    for (position, stages, distribution, expected) in cases {
+        let design = only_saturation_voltage_varies(position);
+        let chain = LoadedChain::uniform(&design, stages).expect("chain");
+        let run = monte_carlo_yield(&chain, &options(20_000, 7, distribution)).expect("run");
+        let interval = wilson_two_sided(u64::from(run.passed), 20_000, 0.999);
+        let analytic = ((1.0 + position) / 2.0).powi(2 * stages as i32);
+        eprintln!(
+            "x = {position}, {stages} stage(s), {distribution:?}: yield {} (expected {expected})",
+            run.yield_fraction
+        );
+        assert!((analytic - expected).abs() < 1e-12 || distribution == Distribution::Normal);
+        assert!(
+            interval.low <= expected && expected <= interval.high,
+            "x = {position}, {stages} stage(s), {distribution:?}: {} of 20000 passed, 99.9 % interval {:.4}…{:.4}, expected {expected}",
+            run.passed,
+            interval.low,
+            interval.high
+        );
+        if expected == 1.0 {
+            assert_eq!(run.passed, 20_000, "at the tolerance edge every build passes");
         }
     }
 }
