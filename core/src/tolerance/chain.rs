@@ -5,8 +5,8 @@
 use serde::Serialize;
 
 use super::ToleranceError;
-use crate::chain::loads::{chain_stage_loads, stage_design_with_loads, StageLoads};
-use crate::chain::reset::{design_reset_for_stage, ResetNetwork};
+use crate::chain::loads::{chain_stage_loads_with_decode, stage_design_with_loads, StageLoads};
+use crate::chain::reset_driver::design_reset_driver_for_stage;
 use crate::chain::timing::StageTiming;
 use crate::chain::{plan_chain, ChainRequest, MethodKind, MethodPlan};
 use crate::device::ebers_moll::EbersMoll;
@@ -38,13 +38,14 @@ impl LoadedChain {
         Ok(LoadedChain { distinct: vec![design.clone()], stage_to_distinct: vec![0; stages] })
     }
 
-    /// The stages of a planned chain with the loads the plan puts on each.
+    /// The stages of a planned chain with the loads the plan puts on each; a reset plan needs
+    /// its decoding gate's load on each decoded Q (`DrivenResetNetwork::decode_load`).
     pub fn from_plan(
         design: &StageDesign,
         plan: &MethodPlan,
-        reset: Option<&ResetNetwork>,
+        decode_load: Option<Load>,
     ) -> Result<LoadedChain, ToleranceError> {
-        let loads = chain_stage_loads(plan, design, reset)
+        let loads = chain_stage_loads_with_decode(plan, design, decode_load)
             .map_err(|e| ToleranceError::InvalidChain { reason: e.to_string() })?;
         LoadedChain::from_loads(design, &loads)
     }
@@ -254,18 +255,19 @@ pub fn loaded_chain(
                     "a method the plan for this ratio has (plain binary only for a power of two)",
                 )
             })?;
-            let reset = if kind == MethodKind::ResetOnCount {
+            // The driven reset network, as the chain design builds and the verification
+            // simulates it: its decoding gate's pull-up loads each decoded Q.
+            let decode_load = if kind == MethodKind::ResetOnCount {
                 let report = analyse(design)
                     .map_err(|e| ToleranceError::StageAnalysis { stage: 0, reason: e.to_string() })?;
                 let timing = StageTiming::from_switching(&report.switching, RESET_TIMING_SPREAD);
-                Some(
-                    design_reset_for_stage(&plan, design, &timing)
-                        .map_err(|e| ToleranceError::InvalidChain { reason: e.to_string() })?,
-                )
+                let network = design_reset_driver_for_stage(&plan, design, &timing)
+                    .map_err(|e| ToleranceError::InvalidChain { reason: e.to_string() })?;
+                Some(network.decode_load)
             } else {
                 None
             };
-            let chain = LoadedChain::from_plan(design, method_plan, reset.as_ref())?;
+            let chain = LoadedChain::from_plan(design, method_plan, decode_load)?;
             let stages = chain.stage_count();
             Ok((chain, format!("the divide-by-{modulus} chain ({}, {stages} stages) with the loads its plan puts on each stage", kind.name())))
         }

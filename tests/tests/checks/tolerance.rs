@@ -291,3 +291,35 @@ fn yield_at_a_tolerance_edge_follows_the_analytic_expectation() {
         }
     }
 }
+
+/// The tolerance analyses of a reset-on-count chain must load the decoded stages with the
+/// reset network the chain design builds and the verification simulates (the driven one),
+/// not with the passive gate the planner rejects (regression: the passive gate's pull-up
+/// made stage 2 of the demo decade fail every margin and the yield read 0.1 %).
+#[test]
+fn reset_chain_tolerances_use_the_driven_reset_network_loads() {
+    use flipwright::chain::design::design_chain;
+    use flipwright::chain::loads::combine_loads;
+    use flipwright::chain::{ChainRequest, MethodKind};
+    use flipwright::stage::analysis::analyse;
+    use flipwright::tolerance::{loaded_chain, ChainShape};
+    let design = demo();
+    let report = analyse(&design).expect("analysis");
+    let request = ChainRequest { modulus: 10, natural_binary_code: false };
+    let chain_design =
+        design_chain(&request, Some(MethodKind::ResetOnCount), &design, &report).expect("chain design");
+    let network = chain_design.reset.expect("the driven reset network");
+    let shape = ChainShape::Divide { modulus: 10, method: Some(MethodKind::ResetOnCount) };
+    let (chain, _) = loaded_chain(&design, shape).expect("loaded chain");
+    let own = design.input().loads[1];
+    let decoded_load = combine_loads(own, network.decode_load);
+    // Divide by 10 decodes 1010: stages 1 and 3 (0 takes the input).
+    for stage in [1usize, 3] {
+        let index = chain.stage_to_distinct[stage];
+        assert_eq!(chain.distinct[index].input().loads[1], decoded_load, "stage {stage}");
+    }
+    for stage in [0usize, 2] {
+        let index = chain.stage_to_distinct[stage];
+        assert_eq!(chain.distinct[index].input().loads[1], own, "stage {stage}");
+    }
+}
