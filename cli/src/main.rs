@@ -5,6 +5,7 @@ mod chain;
 mod report;
 mod simulate;
 mod simulate_design;
+mod yield_design;
 mod yield_report;
 
 use std::path::{Path, PathBuf};
@@ -32,6 +33,15 @@ USAGE
                                       choose every component value from the requirements
                                       in FILE; writes the completed design to OUT
                                       (default: FILE with .designed.json)
+  flipwright design FILE --min-yield Y [--confidence C] [--stages N | --divide N
+                    [--method binary|feedback|reset]] [--trials K] [--seed S]
+                    [--distribution uniform|normal] [--out OUT] [--json]
+                                      synthesis aimed at a Monte Carlo yield: the design
+                                      aims (target overdrive, divider current) are raised
+                                      step by step until the one-sided Wilson lower bound
+                                      of the yield over the chain reaches Y at confidence C
+                                      (default 0.95); prints every candidate and, when no
+                                      step gets there, why and what would. Exit 1 then
   flipwright parts FILE [--csv] [--stage N]
                                       print the component table (text or CSV)
   flipwright simulate FILE [--csv OUT] [--probe NAME,...] [--stop TIME]
@@ -219,6 +229,7 @@ fn run(args: &[String]) -> Result<u8, Failure> {
             }
             Ok(if report.all_pass { 0 } else { EXIT_MARGINS_FAIL })
         }
+        "design" if rest.iter().any(|a| a == "--min-yield") => yield_design::run(rest),
         "design" => {
             let options = parse_options(rest, &["out"], &["json"])?;
             let path = options.one_file("design")?;

@@ -30,7 +30,7 @@ struct YieldView {
     temperature: TemperatureSweep,
 }
 
-fn number<T: std::str::FromStr>(
+pub fn number<T: std::str::FromStr>(
     options: &crate::Options,
     flag: &str,
     what: &str,
@@ -43,13 +43,15 @@ fn number<T: std::str::FromStr>(
     }
 }
 
-pub fn run(args: &[String]) -> Result<u8, Failure> {
-    let options =
-        parse_options(args, &["stages", "divide", "method", "trials", "seed", "distribution"], &["json"])?;
-    let path = options.one_file("yield")?;
-    let stages: Option<u32> = number(&options, "stages", "a stage count from 1 to 64 (e.g. --stages 4)")?;
+/// The flags `yield` and `design --min-yield` share: which chain, and how its builds are drawn.
+pub const DRAW_FLAGS: [&str; 6] = ["stages", "divide", "method", "trials", "seed", "distribution"];
+
+/// The chain shape and the Monte Carlo draws (trials, seed, distribution) from the flags in
+/// [`DRAW_FLAGS`].
+pub fn shape_and_draws(options: &crate::Options) -> Result<(ChainShape, u32, u64, Distribution), Failure> {
+    let stages: Option<u32> = number(options, "stages", "a stage count from 1 to 64 (e.g. --stages 4)")?;
     let divide: Option<u32> =
-        number(&options, "divide", "a division ratio from 2 to 4096 (e.g. --divide 10)")?;
+        number(options, "divide", "a division ratio from 2 to 4096 (e.g. --divide 10)")?;
     let method = options.value("method").map(crate::simulate_design::method_kind).transpose()?;
     if method.is_some() && divide.is_none() {
         return Err(usage("--method chooses how a planned chain is built: give --divide N with it"));
@@ -62,13 +64,12 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
         (Some(stages), None) => ChainShape::Stages { stages },
         (None, None) => ChainShape::Stages { stages: 1 },
     };
-    let trials: u32 =
-        number(&options, "trials", &format!("a whole number of trials from 1 to {MAX_TRIALS}"))?
-            .unwrap_or(MonteCarloOptions::default().trials);
+    let trials: u32 = number(options, "trials", &format!("a whole number of trials from 1 to {MAX_TRIALS}"))?
+        .unwrap_or(MonteCarloOptions::default().trials);
     if !(1..=MAX_TRIALS).contains(&trials) {
         return Err(usage(format!("--trials wants a whole number from 1 to {MAX_TRIALS}, got {trials}")));
     }
-    let seed: u64 = number(&options, "seed", "a whole number from 0 to 18446744073709551615")?
+    let seed: u64 = number(options, "seed", "a whole number from 0 to 18446744073709551615")?
         .unwrap_or(MonteCarloOptions::default().seed);
     let distribution = match options.value("distribution") {
         None | Some("uniform") => Distribution::Uniform,
@@ -77,6 +78,13 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
             return Err(usage(format!("--distribution wants uniform or normal, got \"{other}\"")));
         }
     };
+    Ok((shape, trials, seed, distribution))
+}
+
+pub fn run(args: &[String]) -> Result<u8, Failure> {
+    let options = parse_options(args, &DRAW_FLAGS, &["json"])?;
+    let path = options.one_file("yield")?;
+    let (shape, trials, seed, distribution) = shape_and_draws(&options)?;
     let (_, design) = load_design(&path)?;
     let (chain, description) = loaded_chain(&design, shape).map_err(|e| match e {
         flipwright::tolerance::ToleranceError::InvalidOption { .. } => {

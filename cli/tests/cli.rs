@@ -628,3 +628,45 @@ fn yield_reports_worst_case_and_yield_with_a_reproducible_digest() {
     }
     check_exit(&run(&["yield", "missing.json"], &scratch.0), 3, "missing file");
 }
+
+/// `flipwright design --min-yield`: with wide tolerances the plain synthesis falls short of
+/// 99 % over four stages; the yield synthesis says which aim reached it, writes the design,
+/// and `flipwright yield` on the written file (same seed and trials) confirms the bound.
+#[test]
+fn design_for_a_yield_writes_a_design_whose_yield_reaches_the_goal() {
+    let scratch = Scratch::new("design-yield");
+    let demo = demo_file(&scratch);
+    let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&demo).expect("demo")).expect("JSON");
+    doc["supplies"]["tolerance"] = serde_json::json!(0.1);
+    doc["conditions"]["resistor_tolerance"] = serde_json::json!(0.1);
+    doc["conditions"]["t_min_c"] = serde_json::json!(-40.0);
+    doc["conditions"]["t_max_c"] = serde_json::json!(85.0);
+    doc["requirements"]["min_overdrive"] = serde_json::json!(1.5);
+    if let Some(map) = doc.as_object_mut() {
+        map.remove("values");
+    }
+    let input = write_json(&scratch, "wide.json", &doc);
+    let input = input.to_str().expect("utf-8 path");
+    let out = scratch.path("wide-yield.json");
+    let out = out.to_str().expect("utf-8 path");
+    let output = run(&["design", input, "--min-yield", "0.99", "--stages", "4", "--out", out], &scratch.0);
+    check_exit(&output, 0, "design --min-yield");
+    let text = stdout(&output);
+    for needle in ["the requirements as given", "reaches the goal", "Goal reached.", "digest"] {
+        assert!(text.contains(needle), "missing {needle:?} in\n{text}");
+    }
+    let check =
+        run(&["yield", out, "--stages", "4", "--trials", "10000", "--seed", "1", "--json"], &scratch.0);
+    let json: Value = serde_json::from_str(&stdout(&check)).expect("yield JSON");
+    let lower = json["report"]["lower_bound"].as_f64().expect("lower bound");
+    assert!(lower >= 0.99, "the written design's lower bound {lower}");
+    for (args, flag) in
+        [(vec!["--min-yield", "1.5"], "--min-yield"), (vec!["--min-yield", "most"], "--min-yield")]
+    {
+        let mut all = vec!["design", input];
+        all.extend(args.iter());
+        let output = run(&all, &scratch.0);
+        check_exit(&output, 2, &format!("{args:?}"));
+        assert!(stderr(&output).contains(flag), "{args:?}: {}", stderr(&output));
+    }
+}

@@ -20,6 +20,7 @@ use flipwright::tolerance::{
     chain_worst_case, loaded_chain, margins_against_temperature, monte_carlo_yield, ChainShape,
     ChainWorstCase, LoadedChain, MonteCarloOptions, TemperatureSweep, ToleranceError, YieldReport,
 };
+use flipwright::tolerance::{synthesise_for_yield, YieldGoal, YieldSynthesis};
 use flipwright::verify::{
     self, in_real_polarity, BuiltCircuit, CountCheck, InputPulse, Progress, RunAccuracy, SearchSettings,
     SimulationCorner, StageVerification, VerifyOptions,
@@ -603,6 +604,83 @@ pub fn margins_against_temperature_design(
     to_js(&temperature_text(design_json, chain_json, points))
 }
 
+/// Synthesis aimed at a yield, as the page shows it: the completed design (requirements with
+/// the chosen aims, and values) analysed, and the yield synthesis with every candidate.
+#[derive(Serialize)]
+pub struct YieldSynthesisView {
+    pub analysis: AnalysisView,
+    pub result: YieldSynthesis,
+}
+
+fn yield_synthesis_text(
+    design_json: &str,
+    goal_json: &str,
+    progress: &mut dyn FnMut(usize, usize) -> bool,
+) -> Outcome<YieldSynthesisView> {
+    let mut file = match DesignFile::parse(design_json) {
+        Ok(file) => file,
+        Err(errors) => return Outcome::Invalid { errors },
+    };
+    let input = match file.synthesis_input() {
+        Ok(input) => input,
+        Err(errors) => return Outcome::Invalid { errors },
+    };
+    let goal: YieldGoal = match serde_json::from_str(goal_json) {
+        Ok(goal) => goal,
+        Err(e) => {
+            return Outcome::Invalid {
+                errors: vec![FieldError {
+                    path: "goal".to_string(),
+                    message: format!(
+                        "is not a yield goal: {e}; fields min_yield, confidence, shape ({{\"kind\": \"stages\", \"stages\": N}} or {{\"kind\": \"divide\", \"modulus\": N}}), trials, seed, distribution"
+                    ),
+                }],
+            }
+        }
+    };
+    if goal.seed > MAX_PAGE_SEED {
+        return Outcome::Invalid {
+            errors: vec![FieldError {
+                path: "options.seed".to_string(),
+                message: format!("must be a whole number from 0 to {MAX_PAGE_SEED} so the page can hold it exactly, got {}", goal.seed),
+            }],
+        };
+    }
+    let result = match synthesise_for_yield(&input, &goal, progress) {
+        Ok(result) => result,
+        Err(e) => return tolerance_outcome(e),
+    };
+    file.requirements = result.input.requirements;
+    file.values = Some(result.synthesis.values);
+    let design = match file.stage_input(None).and_then(StageDesign::new) {
+        Ok(design) => design,
+        Err(errors) => return Outcome::Invalid { errors },
+    };
+    Outcome::Ok(YieldSynthesisView {
+        analysis: view(&file, &design, result.synthesis.report.clone()),
+        result,
+    })
+}
+
+/// Synthesis aimed at a Monte Carlo yield over a chain. `goal_json`: `{"min_yield": 0.99,
+/// "confidence": 0.95, "shape": {"kind": "divide", "modulus": 10}, "trials": 10000, "seed": 1,
+/// "distribution": "uniform"}` (any field may be left out). `progress(done, total)` after each
+/// candidate; returning `false` stops with the best so far. Seconds: call it from a worker.
+#[wasm_bindgen]
+pub fn synthesise_for_yield_design(
+    design_json: &str,
+    goal_json: &str,
+    progress: &js_sys::Function,
+) -> Result<JsValue, JsError> {
+    let mut report = |done: usize, total: usize| -> bool {
+        match progress.call2(&JsValue::NULL, &JsValue::from(done as u32), &JsValue::from(total as u32)) {
+            Ok(answer) => answer.as_bool() != Some(false),
+            Err(_) => false,
+        }
+    };
+    to_js(&yield_synthesis_text(design_json, goal_json, &mut report))
+}
+
 /// The bridge's version, shown in the page footer and printout.
 #[wasm_bindgen]
 pub fn version() -> String {
@@ -642,6 +720,39 @@ mod tests {
         match check_outcome(&text) {
             Some(paths) => assert!(paths.iter().any(|p| p == "supplies.collector_supply_v"), "{paths:?}"),
             None => unreachable!("expected field errors"),
+        }
+    }
+
+    /// The goal is read with defaults for what it leaves out, a bad goal is a field error,
+    /// and the result carries the completed design file with the aims that reached the goal.
+    #[test]
+    fn yield_synthesis_returns_the_completed_design_or_a_field_error() {
+        let text = demo_design()
+            .replace("\"tolerance\": 0.05", "\"tolerance\": 0.1")
+            .replace("\"resistor_tolerance\": 0.05", "\"resistor_tolerance\": 0.1")
+            .replace("\"t_min_c\": 0.0", "\"t_min_c\": -40.0")
+            .replace("\"t_max_c\": 60.0", "\"t_max_c\": 85.0")
+            .replace("\"min_overdrive\": 1.25", "\"min_overdrive\": 1.5");
+        let goal = r#"{"min_yield": 0.99, "shape": {"kind": "stages", "stages": 2}, "trials": 4000}"#;
+        let mut calls = 0;
+        let Outcome::Ok(view) = yield_synthesis_text(&text, goal, &mut |_, _| {
+            calls += 1;
+            true
+        }) else {
+            unreachable!("yield synthesis must run")
+        };
+        assert!(calls >= 1 && calls == view.result.candidates.len());
+        let file: serde_json::Value = serde_json::from_str(&view.analysis.design_json).unwrap_or_default();
+        let chosen = &view.result.candidates[view.result.chosen];
+        assert_eq!(file["requirements"]["target_overdrive"].as_f64(), Some(chosen.target_overdrive));
+        assert!(file["values"]["collector_resistor_ohm"].as_f64().is_some());
+        match yield_synthesis_text(&text, r#"{"min_yield": "high"}"#, &mut |_, _| true) {
+            Outcome::Invalid { errors } => assert_eq!(errors[0].path, "goal"),
+            _ => unreachable!("a bad goal must be a field error"),
+        }
+        match yield_synthesis_text(&text, r#"{"min_yield": 1.0}"#, &mut |_, _| true) {
+            Outcome::Invalid { errors } => assert_eq!(errors[0].path, "options.min_yield"),
+            _ => unreachable!("a yield of 1 must be a field error"),
         }
     }
 

@@ -14,6 +14,7 @@ pub mod monte_carlo;
 pub mod sampling;
 pub mod statistics;
 pub mod temperature;
+pub mod yield_synthesis;
 
 use serde::{Deserialize, Serialize};
 
@@ -23,6 +24,7 @@ pub use self::chain::{
 pub use self::kernel::{Capacitors, DcMargins, MarginKernel, ThermalPoint};
 pub use self::monte_carlo::{monte_carlo_yield, MonteCarloOptions, YieldReport};
 pub use self::temperature::{margins_against_temperature, TemperatureSweep};
+pub use self::yield_synthesis::{synthesise_for_yield, YieldGoal, YieldSynthesis};
 
 /// How a toleranced value is drawn.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]

@@ -323,3 +323,92 @@ fn reset_chain_tolerances_use_the_driven_reset_network_loads() {
         assert_eq!(chain.distinct[index].input().loads[1], own, "stage {stage}");
     }
 }
+
+/// The demo's requirements with wide tolerances (±10 % resistors and rails, −40 … 85 °C, a
+/// minimum overdrive of 1.5): a stage the worst case cannot pass, whose yield the design aims
+/// can raise. Values left for synthesis.
+fn wide_tolerance_requirements() -> flipwright::stage::StageInput {
+    let mut input = DesignFile::demo().synthesis_input().expect("demo input");
+    input.supplies.tolerance = 0.1;
+    input.conditions.resistor_tolerance = 0.1;
+    input.conditions.t_min_c = -40.0;
+    input.conditions.t_max_c = 85.0;
+    input.requirements.min_overdrive = 1.5;
+    input
+}
+
+/// Synthesis for a yield: the plain synthesis falls short of 99 % over a four-stage chain,
+/// the yield synthesis reaches it, and its claim holds when checked from outside: the design
+/// it returns, run again through the Monte Carlo with the same seed and trials, passes the
+/// same builds, and the one-sided Wilson lower bound of that count, by the closed form
+/// (Wilson 1927; z from the normal quantile), is at least the goal. Every candidate before
+/// the chosen one falls short (it takes the first that reaches the goal).
+#[test]
+fn yield_synthesis_reaches_a_goal_the_plain_synthesis_misses() {
+    use flipwright::tolerance::{synthesise_for_yield, ChainShape, YieldGoal};
+    let input = wide_tolerance_requirements();
+    let goal = YieldGoal { min_yield: 0.99, shape: ChainShape::Stages { stages: 4 }, ..YieldGoal::default() };
+    let result = synthesise_for_yield(&input, &goal, &mut |_, _| true).expect("yield synthesis");
+    assert!(result.met, "{:?}", result.explanation);
+    let first = &result.candidates[0];
+    assert_eq!(first.change, "the requirements as given");
+    assert!(first.lower_bound < 0.99, "the plain synthesis already reaches it: {first:?}");
+    assert!(result.chosen > 0);
+    assert!(result.candidates[..result.chosen].iter().all(|c| !c.reaches_goal));
+    // From outside: the returned design, its chain, the same draws.
+    let mut chosen = result.input.clone();
+    chosen.values = result.synthesis.values;
+    let design = StageDesign::new(chosen).expect("chosen design validates");
+    let chain = LoadedChain::uniform(&design, 4).expect("chain");
+    let run = monte_carlo_yield(&chain, &options(result.trials, goal.seed, goal.distribution)).expect("run");
+    assert_eq!(run.passed, result.candidates[result.chosen].passed);
+    assert_eq!(run.digest, result.report.digest);
+    // One-sided bound: the lower end of the two-sided interval at z for the one-sided level.
+    let z = flipwright::tolerance::statistics::normal_quantile(goal.confidence);
+    let (low, _) = wilson_by_formula(f64::from(run.passed), f64::from(result.trials), z);
+    assert!(low >= 0.99, "Wilson lower bound {low}");
+    assert!((low - result.candidates[result.chosen].lower_bound).abs() < 1e-12);
+}
+
+/// A goal no aim reaches is reported as not met, with the best candidate chosen and the
+/// reasons; a goal sampling cannot show, or a yield of 1, is a typed error naming min_yield;
+/// too few trials are raised to what the goal needs (n ≥ z²·y/(1 − y) for an all-pass
+/// Wilson bound, from the closed form above).
+#[test]
+fn unreachable_and_invalid_yield_goals_are_explained() {
+    use flipwright::tolerance::yield_synthesis::fewest_trials_for;
+    use flipwright::tolerance::{synthesise_for_yield, ChainShape, YieldGoal};
+    let mut input = wide_tolerance_requirements();
+    input.conditions.resistor_tolerance = 0.2;
+    input.supplies.tolerance = 0.2;
+    input.conditions.t_min_c = -55.0;
+    input.conditions.t_max_c = 125.0;
+    let goal = YieldGoal {
+        min_yield: 0.999,
+        trials: 1000,
+        shape: ChainShape::Stages { stages: 2 },
+        ..YieldGoal::default()
+    };
+    let result = synthesise_for_yield(&input, &goal, &mut |_, _| true).expect("runs");
+    assert!(!result.met);
+    assert!(f64::from(result.trials) >= fewest_trials_for(0.999, 0.95), "trials {}", result.trials);
+    let z = flipwright::tolerance::statistics::normal_quantile(0.95);
+    assert!((fewest_trials_for(0.999, 0.95) - z * z * 999.0).abs() < 1e-6);
+    let best = result.candidates.iter().map(|c| c.lower_bound).fold(f64::NEG_INFINITY, f64::max);
+    assert_eq!(result.candidates[result.chosen].lower_bound, best);
+    assert!(result.explanation.len() >= 2, "{:?}", result.explanation);
+    assert!(result.explanation[0].contains("99.90 %"), "{:?}", result.explanation);
+    for bad in [1.0, 0.0, 0.999_999_9, f64::NAN] {
+        let goal = YieldGoal { min_yield: bad, ..YieldGoal::default() };
+        match synthesise_for_yield(&input, &goal, &mut |_, _| true) {
+            Err(ToleranceError::InvalidOption { field, .. }) => assert_eq!(field, "min_yield", "{bad}"),
+            other => panic!("min_yield {bad}: {other:?}"),
+        }
+    }
+    // Cancelling after the first candidate returns it, not met.
+    let goal = YieldGoal { min_yield: 0.99, shape: ChainShape::Stages { stages: 4 }, ..YieldGoal::default() };
+    let cancelled = synthesise_for_yield(&wide_tolerance_requirements(), &goal, &mut |_, _| false)
+        .expect("cancelled run");
+    assert_eq!(cancelled.candidates.len(), 1);
+    assert!(!cancelled.met);
+}
