@@ -163,6 +163,9 @@ pub fn simulate_design_file(
     }
     let mut out = String::new();
     let mut what = String::from("one stage");
+    // The temperature of the run whose waveforms are written (a worst corner's, when the
+    // nominal one is not run).
+    let mut shown_temperature_c = corner.temperature_c;
     let (check, result, built) = if request.stages == 1 && request.divide.is_none() {
         let options = VerifyOptions {
             nominal_edges: request.edges.unwrap_or(8),
@@ -287,11 +290,12 @@ pub fn simulate_design_file(
                     let _ = write!(stderr, "\r{:<30}\r", "");
                 }
                 render_planned(&mut out, &verification);
-                let check = verification
-                    .corners
-                    .first()
-                    .map(|c| c.check.clone())
-                    .ok_or_else(|| usage("--corners: no corner was run"))?;
+                let shown = verification.corners.first().ok_or_else(|| usage("--corners: no corner was run"))?;
+                if shown.name != "nominal" {
+                    what = format!("{what}, the {} corner's run", shown.name);
+                }
+                shown_temperature_c = shown.corner.temperature_c;
+                let check = shown.check.clone();
                 let mut check = check;
                 check.correct = verification.all_correct;
                 (check, result, built)
@@ -303,7 +307,7 @@ pub fn simulate_design_file(
     let table = to_csv(&result, &probes).map_err(|e| usage(e.to_string()))?;
     write(csv, &table)?;
     let mut head = String::new();
-    render_run(&mut head, &what, &design, &built, &check, corner.temperature_c);
+    render_run(&mut head, &what, &design, &built, &check, shown_temperature_c);
     let _ = writeln!(
         head,
         "Wrote {} ({} time points, {} probe(s)).",

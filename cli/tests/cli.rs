@@ -507,6 +507,12 @@ fn simulate_divide_by_five_by_reset_at_every_corner() {
         assert!(text.contains(corner), "{corner}: {text}");
     }
     assert!(text.contains("reset pulse(s)"), "{text}");
+    // Without the nominal run the waveforms are the slow corner's, at the cold end (0 °C in
+    // the demo), and the header says so.
+    let worst = run(&["simulate", path, "--divide", "3", "--corners", "worst"], &scratch.0);
+    check_exit(&worst, 0, "divide by three at the worst corners");
+    let text = stdout(&worst);
+    assert!(text.contains("the slow corner's run at 0.0 °C"), "{text}");
     for (args, says) in [
         (vec!["--divide", "5", "--method", "skip"], "--method wants binary, feedback or reset"),
         (vec!["--divide", "8", "--method", "reset"], "--method: 8 is a power of two"),
