@@ -290,7 +290,8 @@ pub fn simulate_design_file(
                     let _ = write!(stderr, "\r{:<30}\r", "");
                 }
                 render_planned(&mut out, &verification);
-                let shown = verification.corners.first().ok_or_else(|| usage("--corners: no corner was run"))?;
+                let shown =
+                    verification.corners.first().ok_or_else(|| usage("--corners: no corner was run"))?;
                 if shown.name != "nominal" {
                     what = format!("{what}, the {} corner's run", shown.name);
                 }
