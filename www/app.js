@@ -649,7 +649,9 @@ function renderPlan(outcome) {
   for (const x of plan.notes) { const li = document.createElement("li"); li.textContent = x; notes.appendChild(li); }
   $("plan-canvas").style.height = chainHeight(n) + "px";
   scheduleDraw();
-  $("plan-svg").innerHTML = printChart("timing_diagram_svg", plan.diagram, 600, Math.round(0.8 * chainHeight(n)));
+  schedulePrintChart("plan", () => {
+    $("plan-svg").innerHTML = printChart("timing_diagram_svg", plan.diagram, 600, Math.round(0.8 * chainHeight(n)));
+  });
 }
 
 // ---- simulation worker ----
@@ -1004,6 +1006,21 @@ function drawOn(canvas, exportName, data) {
 }
 
 /** The chart as SVG for the printout (vector, with selectable text). */
+// The print-only (SVG) copies of charts that change on every edit are built just after the
+// next frame, off the edit's path to the screen; printing builds any still pending first.
+const printJobs = new Map();
+function schedulePrintChart(key, job) {
+  const first = printJobs.size === 0;
+  printJobs.set(key, job);
+  if (first) requestAnimationFrame(() => setTimeout(flushPrintCharts, 0));
+}
+function flushPrintCharts() {
+  const jobs = [...printJobs.values()];
+  printJobs.clear();
+  for (const job of jobs) job();
+}
+window.addEventListener("beforeprint", flushPrintCharts);
+
 function printChart(exportName, data, width, height) {
   try {
     return callNow(exportName, data, width, height) || "";
