@@ -6,6 +6,7 @@ mod bench;
 pub mod chain;
 pub mod plots;
 mod schematic;
+pub mod tolerance_plots;
 pub mod traces;
 
 use serde::Serialize;
@@ -26,6 +27,7 @@ use flipwright::verify::{
 };
 
 use plots::{Panel, Pen, TimingDiagram, WaveformChart};
+use tolerance_plots::{HistogramChart, TemperatureChart};
 
 #[wasm_bindgen(start)]
 pub fn start() {
@@ -497,6 +499,8 @@ pub struct YieldView {
     /// (bin edges and counts of the tightest stage's value per trial), the most frequent
     /// failure, the seed (in `options`) and the run's digest.
     pub report: YieldReport,
+    /// The histograms again, in the form the drawing exports take back.
+    pub histograms: HistogramChart,
 }
 
 /// Margins against temperature as the page shows it.
@@ -506,6 +510,8 @@ pub struct TemperatureView {
     /// `temperatures_c`, and per margin the nominal and worst curves with the stage of each
     /// worst point.
     pub sweep: TemperatureSweep,
+    /// The curves again, in the form the drawing exports take back.
+    pub chart: TemperatureChart,
 }
 
 fn chain_worst_case_text(design_json: &str, chain_json: &str) -> Outcome<ChainWorstCaseView> {
@@ -553,7 +559,11 @@ fn monte_carlo_text(design_json: &str, chain_json: &str, options_json: &str) -> 
         Err(outcome) => return reshape(outcome),
     };
     match monte_carlo_yield(&chain, &options) {
-        Ok(report) => Outcome::Ok(YieldView { chain: description, report }),
+        Ok(report) => Outcome::Ok(YieldView {
+            chain: description,
+            histograms: HistogramChart::from_report(&report),
+            report,
+        }),
         Err(e) => tolerance_outcome(e),
     }
 }
@@ -564,7 +574,11 @@ fn temperature_text(design_json: &str, chain_json: &str, points: u32) -> Outcome
         Err(outcome) => return reshape(outcome),
     };
     match margins_against_temperature(&chain, points) {
-        Ok(sweep) => Outcome::Ok(TemperatureView { chain: description, sweep }),
+        Ok(sweep) => Outcome::Ok(TemperatureView {
+            chain: description,
+            chart: TemperatureChart::from_sweep(&sweep),
+            sweep,
+        }),
         Err(e) => tolerance_outcome(e),
     }
 }
@@ -601,6 +615,46 @@ pub fn margins_against_temperature_design(
     points: u32,
 ) -> Result<JsValue, JsError> {
     to_js(&temperature_text(design_json, chain_json, points))
+}
+
+/// Draws the margins-against-temperature chart (`TemperatureView.chart`) on a canvas sized
+/// CSS size × `scale`. Main thread only.
+#[wasm_bindgen]
+pub fn draw_temperature_chart(
+    canvas: web_sys::HtmlCanvasElement,
+    chart: JsValue,
+    scale: f64,
+) -> Result<(), JsError> {
+    let chart: TemperatureChart = from_js(chart, "temperature chart")?;
+    let root = plotters::prelude::IntoDrawingArea::into_drawing_area(canvas_backend(canvas)?);
+    tolerance_plots::draw_temperature_chart(&root, &chart, scale).map_err(|e| JsError::new(&e))
+}
+
+/// The temperature chart as SVG text, for print.
+#[wasm_bindgen]
+pub fn temperature_chart_svg(chart: JsValue, width: u32, height: u32) -> Result<String, JsError> {
+    let chart: TemperatureChart = from_js(chart, "temperature chart")?;
+    tolerance_plots::temperature_chart_svg(&chart, width, height).map_err(|e| JsError::new(&e))
+}
+
+/// Draws a Monte Carlo run's histograms (`YieldView.histograms`) on a canvas sized CSS size ×
+/// `scale`. Main thread only.
+#[wasm_bindgen]
+pub fn draw_yield_histograms(
+    canvas: web_sys::HtmlCanvasElement,
+    chart: JsValue,
+    scale: f64,
+) -> Result<(), JsError> {
+    let chart: HistogramChart = from_js(chart, "histogram chart")?;
+    let root = plotters::prelude::IntoDrawingArea::into_drawing_area(canvas_backend(canvas)?);
+    tolerance_plots::draw_histograms(&root, &chart, scale).map_err(|e| JsError::new(&e))
+}
+
+/// The histograms as SVG text, for print.
+#[wasm_bindgen]
+pub fn yield_histograms_svg(chart: JsValue, width: u32, height: u32) -> Result<String, JsError> {
+    let chart: HistogramChart = from_js(chart, "histogram chart")?;
+    tolerance_plots::histograms_svg(&chart, width, height).map_err(|e| JsError::new(&e))
 }
 
 /// The bridge's version, shown in the page footer and printout.
@@ -735,6 +789,11 @@ mod tests {
         assert!(matches!(monte_carlo_text(&design, "{}", ""), Outcome::Invalid { .. }));
         let Outcome::Ok(sweep) = temperature_text(&design, chain, 5) else { unreachable!("sweep") };
         assert_eq!(sweep.sweep.temperatures_c.len(), 5);
+        assert_eq!(sweep.chart.panels.len(), sweep.sweep.margins.len());
+        assert!(sweep.chart.panels.iter().all(|p| p.nominal.len() == 5 && p.worst.len() == 5));
+        let binned: u32 =
+            view.histograms.panels.iter().map(|p| p.counts.iter().sum::<u32>()).max().unwrap_or(0);
+        assert!(binned <= 200 && binned > 0, "at most one count per trial per margin: {binned}");
         assert!(matches!(temperature_text(&design, chain, 1), Outcome::Invalid { .. }));
         let Outcome::Ok(worst) = chain_worst_case_text(&design, chain) else { unreachable!("worst case") };
         assert_eq!(worst.worst_case.stage_count, 3);
