@@ -396,6 +396,7 @@ async function compute() {
   if (auto) showValues(current.values);
   document.body.dataset.lastRenderMs = (performance.now() - renderStarted).toFixed(2);
   document.body.dataset.ready = "true";
+  computeTolerance();
 }
 
 function renderVerdictFromLast() {
@@ -518,6 +519,7 @@ function render(view, synthesis) {
   notes.textContent = "";
   for (const n of report.notes) { const li = document.createElement("li"); li.textContent = n; notes.appendChild(li); }
   markStale();
+  markToleranceStale();
   const d = current;
   $("print-header").innerHTML = "";
   const h = document.createElement("h1"); h.textContent = view.name;
@@ -656,12 +658,17 @@ let worker = null;
 let job = null;             // { id, resolve, reject, onProgress }
 let jobCounter = 0;
 
-function startWorker() {
+/** The one Blob URL every worker of the page is made from. */
+function workerBlobUrl() {
   if (!workerUrl) {
     const source = [$("glue-source").textContent, "\n;\n", $("worker-source").textContent];
     workerUrl = URL.createObjectURL(new Blob(source, { type: "text/javascript" }));
   }
-  worker = new Worker(workerUrl);
+  return workerUrl;
+}
+
+function startWorker() {
+  worker = new Worker(workerBlobUrl());
   worker.onmessage = onWorkerMessage;
   worker.onerror = (event) => {
     event.preventDefault();
@@ -1013,6 +1020,7 @@ function drawCharts() {
   if (stageRun && !$("stage-result").hidden) drawOn($("stage-canvas"), "draw_waveform_chart", stageRun.view.chart);
   if (chainRun && !$("chain-result").hidden) drawOn($("chain-canvas"), "draw_timing_diagram", chainRun.view.diagram);
   if (planShown && !$("plan").hidden) drawOn($("plan-canvas"), "draw_timing_diagram", planShown.diagram);
+  drawToleranceCharts();
   document.body.dataset.lastDrawMs = (performance.now() - started).toFixed(1);
 }
 
@@ -1027,9 +1035,291 @@ function initVerification() {
   $("chain-run").addEventListener("click", verifyChain);
   $("plan-run").addEventListener("click", verifyPlanned);
   $("verify-cancel").addEventListener("click", cancelWorkerJob);
+  initTolerance();
   let resizeTimer = null;
   window.addEventListener("resize", () => { clearTimeout(resizeTimer); resizeTimer = setTimeout(drawCharts, 150); });
   startWorker();
+}
+
+// ---- tolerance views ----
+// A worker lane: its own worker from the same Blob, one job at a time. A new job replaces the
+// one running (its worker is terminated), and so does cancel; a crash replaces the worker.
+function workerLane(onCrash) {
+  let laneWorker = null;
+  let laneJob = null;         // { id, resolve, reject }
+  let counter = 0;
+  const stop = () => { if (laneWorker) laneWorker.terminate(); laneWorker = null; };
+  const finish = (error) => {
+    const taken = laneJob;
+    laneJob = null;
+    if (taken && error) taken.reject(error);
+    return taken;
+  };
+  const crashed = (message) => {
+    stop();
+    const error = Object.assign(new Error(message), { crashed: true });
+    if (finish(error)) onCrash(message);
+  };
+  const start = () => {
+    laneWorker = new Worker(workerBlobUrl());
+    laneWorker.onmessage = (event) => {
+      const m = event.data;
+      if (m.type === "crashed" && (m.id === undefined || (laneJob && m.id === laneJob.id))) { crashed(m.message); return; }
+      if (!laneJob || m.id !== laneJob.id) return;
+      if (m.type === "result") finish().resolve(m.result);
+      else if (m.type === "error") finish(new Error(m.message));
+    };
+    laneWorker.onerror = (event) => { event.preventDefault(); crashed(event.message || "the worker stopped"); };
+    laneWorker.postMessage({ type: "init", module: wasmModule });
+  };
+  return {
+    run(name, args) {
+      if (laneJob) this.cancel();
+      if (!laneWorker) start();
+      return new Promise((resolve, reject) => {
+        laneJob = { id: ++counter, resolve, reject };
+        laneWorker.postMessage({ type: "run", id: laneJob.id, job: name, args });
+      });
+    },
+    cancel() {
+      const running = laneJob;
+      stop();
+      finish(Object.assign(new Error("cancelled"), { cancelled: true }));
+      return running !== null;
+    },
+    get busy() { return laneJob !== null; },
+  };
+}
+
+const TEMPERATURE_POINTS = 41;
+let overviewLane = null;    // the worst case and the temperature sweep, after every edit
+let yieldLane = null;       // Monte Carlo runs, from the Run button
+let toleranceShown = null;  // { worst, temperature, designJson, chain } on screen
+let yieldRun = null;        // { view, designJson, ms } of the last Monte Carlo run
+let yieldTimer = null;
+
+/** What the tolerance exports analyse: the planned chain, or one stage when there is none. */
+function toleranceChain(view) {
+  if (!view.chain) return { kind: "stages", stages: 1 };
+  if (view.chain.status !== "ok") return null;
+  return { kind: "divide", modulus: view.chain.divide_by, method: view.chain.chosen };
+}
+
+function toleranceStatus(text, kind) {
+  $("tolerance-status").textContent = text;
+  $("tolerance-status").className = "status" + (kind ? " " + kind : "");
+}
+
+async function computeTolerance() {
+  if (!lastView) return;
+  const design = designForSimulation();
+  const chain = toleranceChain(lastView);
+  if (!chain) { toleranceStatus("The chain cannot be planned, so its tolerances are not computed; the values below are from the last plan.", "error"); return; }
+  document.body.dataset.tolerance = "busy";
+  toleranceStatus("Computing the worst case and the temperature sweep…");
+  let result;
+  try {
+    result = await overviewLane.run("tolerance_overview", { design, chain: JSON.stringify(chain), points: TEMPERATURE_POINTS });
+  } catch (error) {
+    if (error.cancelled) return;  // a newer design replaced it
+    toleranceStatus("The tolerances could not be computed: " + error.message, "error");
+    document.body.dataset.tolerance = "failed";
+    return;
+  }
+  const problem = outcomeProblem(result.worst_case) || outcomeProblem(result.temperature);
+  if (problem) {
+    toleranceStatus("The tolerances could not be computed: " + problem, "error");
+    document.body.dataset.tolerance = "failed";
+    return;
+  }
+  toleranceShown = { worst: result.worst_case, temperature: result.temperature, designJson: design, chain };
+  toleranceStatus("");
+  renderTolerance();
+  document.body.dataset.tolerance = "ready";
+}
+
+function stageName(k) {
+  return `stage ${k + 1}`;
+}
+
+/** The worst corner in a line: its temperature and its first few off-nominal settings. */
+function cornerText(m) {
+  const shown = m.worst_corner.filter(c => !/^temperature/.test(c));
+  const first = shown.slice(0, 3).join(", ");
+  return `worst corner at ${m.temperature_c.toFixed(0)} °C` + (first ? `: ${first}` : "") +
+    (shown.length > 3 ? ` and ${shown.length - 3} more` : "");
+}
+
+function renderTolerance() {
+  const { worst, temperature } = toleranceShown;
+  const wc = worst.worst_case;
+  $("tolerance-chain").textContent = wc.stage_count === 1 ? "One stage with the design's own loads."
+    : `${worst.chain}; ${wc.distinct_stages} of its ${wc.stage_count} stages differ in their loads.`;
+  const verdict = $("worst-verdict");
+  verdict.className = "verdict " + (wc.all_pass ? "pass" : "fail");
+  const failing = wc.margins.filter(m => !m.pass).map(m => m.title);
+  verdict.textContent = wc.all_pass ? "Every margin of every stage passes at its worst case." : `At worst case the chain fails: ${failing.join("; ")}.`;
+  table($("worst-table"), ["Margin", "Nominal", "Worst", "Required", "Result", "Limiting stage", "Limiting parameter"],
+    wc.margins.map(m => {
+      const others = m.same_stages.filter(k => k !== m.limiting_stage);
+      return [
+        m.title,
+        { text: marginText(m.nominal, m.unit), className: "num" },
+        { text: marginText(m.worst, m.unit), className: "num" },
+        { text: "≥ " + marginText(m.required, m.unit), className: "num" },
+        { text: m.pass ? "PASS" : "FAIL", className: m.pass ? "pass" : "fail" },
+        { text: stageName(m.limiting_stage), sub: others.length ? `same loads: ${others.map(k => k + 1).join(", ")}` : "" },
+        { text: m.limiting_parameter || "—", className: "advice", sub: cornerText(m) },
+      ];
+    }));
+  const t = temperature.sweep.temperatures_c;
+  $("temperature-hint").textContent = `${t.length} points from ${t[0]} to ${t[t.length - 1]} °C; worst case over every other parameter at each temperature`;
+  drawCharts();
+  $("temperature-svg").innerHTML = printChart("temperature_chart_svg", temperature.chart, 680, 640);
+  markToleranceStale();
+}
+
+function yieldFieldError(id, message) {
+  const row = $(id + "-row");
+  row.classList.toggle("invalid", Boolean(message));
+  row.querySelector(".error")?.remove();
+  if (message) {
+    const note = document.createElement("div");
+    note.className = "error";
+    note.textContent = message;
+    row.appendChild(note);
+  }
+}
+
+function yieldStatus(text, kind) {
+  $("yield-status").textContent = text;
+  $("yield-status").className = "status" + (kind ? " " + kind : "");
+}
+
+/** The run's options from the controls; whole numbers are checked here, ranges by the core. */
+function yieldOptions() {
+  let ok = true;
+  const whole = (id, what) => {
+    const text = $(id).value.trim();
+    if (/^\d+$/.test(text)) { yieldFieldError(id, ""); return Number(text); }
+    yieldFieldError(id, `enter the ${what} as a whole number (digits only)`);
+    ok = false;
+    return null;
+  };
+  const trials = whole("yield-trials", "number of trials");
+  const seed = whole("yield-seed", "seed");
+  if (!ok) return null;
+  return { trials, seed, distribution: $("yield-distribution").value, confidence: Number($("yield-confidence").value) };
+}
+
+function setYieldRunning(text) {
+  const running = text != null;
+  $("yield-run").disabled = running;
+  $("yield-progress").hidden = !running;
+  clearInterval(yieldTimer);
+  if (running) { $("yield-phase").textContent = text; $("yield-bar").removeAttribute("value"); }
+}
+
+async function runYield() {
+  const design = designForSimulation();
+  const chain = lastView && toleranceChain(lastView);
+  if (!design || !chain) { yieldStatus("There is no valid design and chain to run yet.", "error"); return; }
+  const options = yieldOptions();
+  if (!options) { yieldStatus("Correct the marked entries to run.", "error"); return; }
+  yieldStatus("");
+  const started = performance.now();
+  const label = () => `${options.trials} trials: running for ${((performance.now() - started) / 1000).toFixed(0)} s`;
+  document.body.dataset.yield = "busy";
+  setYieldRunning(label());
+  yieldTimer = setInterval(() => { $("yield-phase").textContent = label(); }, 500);
+  let outcome;
+  try {
+    outcome = await yieldLane.run("monte_carlo_yield_design", { design, chain: JSON.stringify(chain), options: JSON.stringify(options) });
+  } catch (error) {
+    setYieldRunning(null);
+    document.body.dataset.yield = error.cancelled ? "cancelled" : "failed";
+    if (error.cancelled) yieldStatus("Cancelled; any result shown is from an earlier run.");
+    else yieldStatus("The Monte Carlo run failed: " + error.message + (error.crashed ? ". Its worker was replaced; try again." : ""), "error");
+    return;
+  }
+  setYieldRunning(null);
+  const ms = performance.now() - started;
+  if (outcome.status === "invalid") {
+    const rest = [];
+    for (const e of outcome.errors) {
+      const id = { "options.trials": "yield-trials", "options.seed": "yield-seed" }[e.path];
+      if (id) yieldFieldError(id, e.message); else rest.push(`${e.path}: ${e.message}`);
+    }
+    yieldStatus(rest.length ? "The run could not start: " + rest.join("; ") : "Correct the marked entries to run.", "error");
+    document.body.dataset.yield = "invalid";
+    return;
+  }
+  if (outcome.status !== "ok") { yieldStatus("The Monte Carlo run failed: " + outcomeProblem(outcome), "error"); document.body.dataset.yield = "failed"; return; }
+  yieldRun = { view: outcome, designJson: design, ms };
+  yieldStatus("");
+  renderYield();
+  document.body.dataset.yield = "ready";
+}
+
+function percent(fraction, digits = 2) {
+  return fraction == null || !isFinite(fraction) ? "—" : (100 * fraction).toFixed(digits) + " %";
+}
+
+function renderYield() {
+  const { view, ms } = yieldRun;
+  const r = view.report;
+  const o = r.options;
+  $("yield-result").hidden = false;
+  const verdict = $("yield-verdict");
+  verdict.className = "verdict " + (r.passed === o.trials ? "pass" : "fail");
+  verdict.textContent = `Yield ${percent(r.yield_fraction)} — ${r.passed} of ${o.trials} builds pass every DC margin of every stage.`;
+  const f = r.most_frequent_failure;
+  table($("yield-summary"), ["Quantity", "Value"], [
+    ["Chain", view.chain],
+    ["Yield (builds passing / trials)", { text: `${percent(r.yield_fraction)} (${r.passed} / ${o.trials})`, className: "num strong" }],
+    [`Wilson interval at ${percent(o.confidence, 1)}`, { text: `${percent(r.interval.low)} … ${percent(r.interval.high)}`, className: "num" }],
+    [`Lower bound at ${percent(o.confidence, 1)} (one-sided)`, { text: percent(r.lower_bound), className: "num" }],
+    ["Trials for an interval of ±" + percent(o.half_width, 1), { text: r.trials_for_half_width == null ? "—" : String(r.trials_for_half_width), className: "num" }],
+    ["Parts drawn", o.distribution === "normal" ? "normal, tolerance at 3σ (truncated at ±3σ)" : "uniform within tolerance"],
+    ["Seed · digest of every margin of every trial", { text: `${o.seed} · ${r.digest}`, className: "num digest" }],
+    ["Most frequent failure", f ? `${r.margins.find(m => m.kind === f.kind)?.title || f.kind} in ${stageName(f.stage)}: ${f.failures} trials (${percent(f.fraction)})` : "none"],
+    ["Run time in this browser", { text: `${(ms / 1000).toFixed(2)} s`, className: "num" }],
+  ]);
+  const stages = r.stage_count;
+  table($("yield-failures"), ["Margin", "Required", "Nominal", "Lowest · mean", "Failing trials"].concat(stages > 1 ? Array.from({ length: stages }, (_, k) => `St. ${k + 1}`) : []),
+    r.margins.map(m => [
+      m.title,
+      { text: "≥ " + marginText(m.required, m.unit), className: "num" },
+      { text: marginText(m.nominal, m.unit), className: "num" },
+      { text: `${marginText(m.min, m.unit)} · ${marginText(m.mean, m.unit)}`, className: "num" },
+      { text: String(m.failing_trials), className: "num" + (m.failing_trials ? " fail" : "") },
+    ].concat(stages > 1 ? m.failures_per_stage.map(n => ({ text: String(n), className: "num" })) : [])));
+  const notes = $("yield-notes");
+  notes.textContent = "";
+  for (const n of r.notes) { const li = document.createElement("li"); li.textContent = n; notes.appendChild(li); }
+  drawCharts();
+  $("yield-svg").innerHTML = printChart("yield_histograms_svg", view.histograms, 680, 640);
+  $("tolerance").classList.add("has-yield");
+  markToleranceStale();
+}
+
+function markToleranceStale() {
+  const design = designForSimulation();
+  $("yield-stale").hidden = !(yieldRun && yieldRun.designJson !== design);
+}
+
+function drawToleranceCharts() {
+  if (toleranceShown) drawOn($("temperature-canvas"), "draw_temperature_chart", toleranceShown.temperature.chart);
+  if (yieldRun && !$("yield-result").hidden) drawOn($("yield-canvas"), "draw_yield_histograms", yieldRun.view.histograms);
+}
+
+function initTolerance() {
+  const crashed = (message) => banner("A tolerance worker failed internally (" + message + ") and was replaced; your design is unchanged. Please report what you ran.", "error");
+  overviewLane = workerLane(crashed);
+  yieldLane = workerLane(crashed);
+  $("yield-run").addEventListener("click", runYield);
+  $("yield-cancel").addEventListener("click", () => yieldLane.cancel());
+  for (const id of ["yield-trials", "yield-seed"]) $(id).addEventListener("input", () => yieldFieldError(id, ""));
 }
 
 // ---- keeping work ----
@@ -1103,6 +1393,8 @@ async function init() {
 window.flipwright = {
   compute, call, workerJob,
   get current() { return current; },
+  get tolerance() { return toleranceShown; },
+  get yieldRun() { return yieldRun; },
   // The design the results show, with its values (for the benchmark's native comparison).
   get designJson() { return designForSimulation(); },
 };
