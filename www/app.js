@@ -1154,7 +1154,7 @@ function renderTolerance() {
   const { worst, temperature } = toleranceShown;
   const wc = worst.worst_case;
   $("tolerance-chain").textContent = wc.stage_count === 1 ? "One stage with the design's own loads."
-    : `${worst.chain}; ${wc.distinct_stages} of its ${wc.stage_count} stages differ in their loads.`;
+    : `${worst.chain}; its ${wc.stage_count} stages carry ${wc.distinct_stages === 1 ? "the same loads" : wc.distinct_stages + " different sets of loads"}, each set analysed once.`;
   const verdict = $("worst-verdict");
   verdict.className = "verdict " + (wc.all_pass ? "pass" : "fail");
   const failing = wc.margins.filter(m => !m.pass).map(m => m.title);
