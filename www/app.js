@@ -1175,7 +1175,7 @@ function renderTolerance() {
   const t = temperature.sweep.temperatures_c;
   $("temperature-hint").textContent = `${t.length} points from ${t[0]} to ${t[t.length - 1]} °C; worst case over every other parameter at each temperature`;
   drawCharts();
-  $("temperature-svg").innerHTML = printChart("temperature_chart_svg", temperature.chart, 680, 640);
+  $("temperature-svg").innerHTML = printChart("temperature_chart_svg", temperature.chart, 680, 540);
   markToleranceStale();
 }
 
@@ -1298,7 +1298,7 @@ function renderYield() {
   notes.textContent = "";
   for (const n of r.notes) { const li = document.createElement("li"); li.textContent = n; notes.appendChild(li); }
   drawCharts();
-  $("yield-svg").innerHTML = printChart("yield_histograms_svg", view.histograms, 680, 640);
+  $("yield-svg").innerHTML = printChart("yield_histograms_svg", view.histograms, 680, 540);
   $("tolerance").classList.add("has-yield");
   markToleranceStale();
 }
