@@ -1046,7 +1046,7 @@ function initVerification() {
 // one running (its worker is terminated), and so does cancel; a crash replaces the worker.
 function workerLane(onCrash) {
   let laneWorker = null;
-  let laneJob = null;         // { id, resolve, reject }
+  let laneJob = null;         // { id, resolve, reject, onProgress }
   let counter = 0;
   const stop = () => { if (laneWorker) laneWorker.terminate(); laneWorker = null; };
   const finish = (error) => {
@@ -1066,18 +1066,19 @@ function workerLane(onCrash) {
       const m = event.data;
       if (m.type === "crashed" && (m.id === undefined || (laneJob && m.id === laneJob.id))) { crashed(m.message); return; }
       if (!laneJob || m.id !== laneJob.id) return;
-      if (m.type === "result") finish().resolve(m.result);
+      if (m.type === "progress") laneJob.onProgress(m);
+      else if (m.type === "result") finish().resolve(m.result);
       else if (m.type === "error") finish(new Error(m.message));
     };
     laneWorker.onerror = (event) => { event.preventDefault(); crashed(event.message || "the worker stopped"); };
     laneWorker.postMessage({ type: "init", module: wasmModule });
   };
   return {
-    run(name, args) {
+    run(name, args, onProgress) {
       if (laneJob) this.cancel();
       if (!laneWorker) start();
       return new Promise((resolve, reject) => {
-        laneJob = { id: ++counter, resolve, reject };
+        laneJob = { id: ++counter, resolve, reject, onProgress: onProgress || (() => {}) };
         laneWorker.postMessage({ type: "run", id: laneJob.id, job: name, args });
       });
     },
@@ -1228,13 +1229,23 @@ async function runYield() {
   if (!options) { yieldStatus("Correct the marked entries to run.", "error"); return; }
   yieldStatus("");
   const started = performance.now();
-  const label = () => `${options.trials} trials: running for ${((performance.now() - started) / 1000).toFixed(0)} s`;
+  let done = 0;
+  const label = () => `trial ${done} of ${options.trials}: running for ${((performance.now() - started) / 1000).toFixed(0)} s`;
+  const onProgress = (step) => {
+    done = step.done_trials;
+    const bar = $("yield-bar");
+    bar.max = step.trials;
+    bar.value = step.done_trials;
+    $("yield-phase").textContent = label();
+    document.body.dataset.yieldProgress = String(step.done_trials);
+  };
   document.body.dataset.yield = "busy";
+  document.body.dataset.yieldProgress = "";
   setYieldRunning(label());
   yieldTimer = setInterval(() => { $("yield-phase").textContent = label(); }, 500);
   let outcome;
   try {
-    outcome = await yieldLane.run("monte_carlo_yield_design", { design, chain: JSON.stringify(chain), options: JSON.stringify(options) });
+    outcome = await yieldLane.run("monte_carlo_yield_design", { design, chain: JSON.stringify(chain), options: JSON.stringify(options) }, onProgress);
   } catch (error) {
     setYieldRunning(null);
     document.body.dataset.yield = error.cancelled ? "cancelled" : "failed";

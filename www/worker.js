@@ -20,7 +20,7 @@ const JOBS = {
     worst_case: exported("chain_worst_case_design")(args.design, args.chain),
     temperature: exported("margins_against_temperature_design")(args.design, args.chain, args.points),
   }),
-  monte_carlo_yield_design: (args) => exported("monte_carlo_yield_design")(args.design, args.chain, args.options),
+  monte_carlo_yield_design: (args, progress) => exported("monte_carlo_yield_design")(args.design, args.chain, args.options, progress),
   // Exists only in the test-hooks build: a panic inside the worker, for the recovery test.
   force_panic: () => exported("force_panic")(),
 };
@@ -42,7 +42,8 @@ self.onmessage = (event) => {
   if (message.type !== "run") return;
   const { id, job, args } = message;
   const progress = (step) => {
-    self.postMessage({ type: "progress", id, done_runs: step.done_runs, total_runs: step.total_runs, phase: step.phase });
+    // Whatever the export reports ({done_runs, total_runs, phase} or {done_trials, trials}).
+    self.postMessage(Object.assign({}, step, { type: "progress", id }));
     return true;
   };
   try {

@@ -607,7 +607,7 @@ test("a yield below 100 % agrees with its failures, its histogram and an indepen
   await context.close();
 });
 
-test("a long Monte Carlo run leaves the page usable and Cancel stops it", async () => {
+test("a long Monte Carlo run reports progress, leaves the page usable, and Cancel stops it", async () => {
   const { page, problems, context } = await open();
   await waitTolerance(page);
   await page.fill("#yield-trials", "1000000");
@@ -620,6 +620,11 @@ test("a long Monte Carlo run leaves the page usable and Cancel stops it", async 
   assert.equal(await page.inputValue("#yield-seed"), "42");
   assert.equal(await page.getAttribute("body", "data-yield"), "busy", "the run is still going while the form recomputed");
   assert.equal(await page.isVisible("#yield-progress"), true);
+  // Progress arrives from the worker as the trials go by.
+  await page.waitForFunction(() => Number(document.body.dataset.yieldProgress) >= 5000, null, { timeout: 30000 });
+  const bar = await page.$eval("#yield-bar", (b) => ({ value: b.value, max: b.max }));
+  assert.ok(bar.max === 1000000 && bar.value >= 5000 && bar.value < 1000000, `progress bar ${JSON.stringify(bar)}`);
+  assert.match(await page.textContent("#yield-phase"), /trial \d+ of 1000000/);
   await page.click("#yield-cancel");
   await page.waitForSelector("#yield-progress", { state: "hidden", timeout: 10000 });
   assert.equal(await page.getAttribute("body", "data-yield"), "cancelled");

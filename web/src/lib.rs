@@ -18,7 +18,7 @@ use flipwright::stage::synthesis::{synthesise, SynthesisOutcome};
 use flipwright::stage::{FieldError, StageDesign};
 use flipwright::table::{component_table, to_csv, ComponentRow};
 use flipwright::tolerance::{
-    chain_worst_case, loaded_chain, margins_against_temperature, monte_carlo_yield, ChainShape,
+    chain_worst_case, loaded_chain, margins_against_temperature, monte_carlo_yield_with_progress, ChainShape,
     ChainWorstCase, LoadedChain, MonteCarloOptions, TemperatureSweep, ToleranceError, YieldReport,
 };
 use flipwright::verify::{
@@ -549,7 +549,12 @@ fn yield_options(text: &str) -> Result<MonteCarloOptions, Vec<FieldError>> {
     Ok(options)
 }
 
-fn monte_carlo_text(design_json: &str, chain_json: &str, options_json: &str) -> Outcome<YieldView> {
+fn monte_carlo_text(
+    design_json: &str,
+    chain_json: &str,
+    options_json: &str,
+    progress: &mut dyn FnMut(u32, u32) -> bool,
+) -> Outcome<YieldView> {
     let options = match yield_options(options_json) {
         Ok(options) => options,
         Err(errors) => return Outcome::Invalid { errors },
@@ -558,7 +563,7 @@ fn monte_carlo_text(design_json: &str, chain_json: &str, options_json: &str) -> 
         Ok(pair) => pair,
         Err(outcome) => return reshape(outcome),
     };
-    match monte_carlo_yield(&chain, &options) {
+    match monte_carlo_yield_with_progress(&chain, &options, progress) {
         Ok(report) => Outcome::Ok(YieldView {
             chain: description,
             histograms: HistogramChart::from_report(&report),
@@ -597,13 +602,33 @@ pub fn chain_worst_case_design(design_json: &str, chain_json: &str) -> Result<Js
 /// "distribution": "uniform" | "normal", "confidence": 0.95, "histogram_bins": 24,
 /// "half_width": 0.01}` (empty text: all defaults). The same seed gives the same `digest`
 /// as the command line. 10 000 trials of ten stages take a few hundred milliseconds in wasm.
+/// `progress`, when given, is called with `{done_trials, trials}` before the first trial and
+/// every 5000 after (`tolerance::monte_carlo::PROGRESS_EVERY_TRIALS`); returning `false`
+/// cancels (status `failed`).
 #[wasm_bindgen]
 pub fn monte_carlo_yield_design(
     design_json: &str,
     chain_json: &str,
     options_json: &str,
+    progress: Option<js_sys::Function>,
 ) -> Result<JsValue, JsError> {
-    to_js(&monte_carlo_text(design_json, chain_json, options_json))
+    let mut report = |done_trials: u32, trials: u32| -> bool {
+        let Some(progress) = progress.as_ref() else { return true };
+        let step = TrialProgress { done_trials, trials };
+        let Ok(value) = to_js(&step) else { return true };
+        match progress.call1(&JsValue::NULL, &value) {
+            Ok(answer) => answer.as_bool() != Some(false),
+            Err(_) => false,
+        }
+    };
+    to_js(&monte_carlo_text(design_json, chain_json, options_json, &mut report))
+}
+
+/// What a Monte Carlo run's progress callback receives.
+#[derive(Serialize)]
+struct TrialProgress {
+    done_trials: u32,
+    trials: u32,
 }
 
 /// Every DC margin at `points` temperatures from t_min to t_max, nominal and worst over the
@@ -772,21 +797,26 @@ mod tests {
     fn tolerance_exports_answer_ok_invalid_and_failed_without_panicking() {
         let design = demo_with_values();
         let chain = r#"{"kind": "stages", "stages": 3}"#;
-        let Outcome::Ok(view) = monte_carlo_text(&design, chain, r#"{"trials": 200, "seed": 5}"#) else {
+        let Outcome::Ok(view) =
+            monte_carlo_text(&design, chain, r#"{"trials": 200, "seed": 5}"#, &mut |_, _| true)
+        else {
             unreachable!("the demo runs")
         };
         assert_eq!(view.report.options.seed, 5);
         assert_eq!(view.report.digest.len(), 16);
-        let Outcome::Invalid { errors } = monte_carlo_text(&design, chain, r#"{"trials": 0}"#) else {
+        let Outcome::Invalid { errors } =
+            monte_carlo_text(&design, chain, r#"{"trials": 0}"#, &mut |_, _| true)
+        else {
             unreachable!("zero trials is refused")
         };
         assert_eq!(errors.first().map(|e| e.path.as_str()), Some("options.trials"));
-        let Outcome::Invalid { errors } = monte_carlo_text(&design, chain, r#"{"seed": 9007199254740992}"#)
+        let Outcome::Invalid { errors } =
+            monte_carlo_text(&design, chain, r#"{"seed": 9007199254740992}"#, &mut |_, _| true)
         else {
             unreachable!("a seed the page cannot hold is refused")
         };
         assert_eq!(errors.first().map(|e| e.path.as_str()), Some("options.seed"));
-        assert!(matches!(monte_carlo_text(&design, "{}", ""), Outcome::Invalid { .. }));
+        assert!(matches!(monte_carlo_text(&design, "{}", "", &mut |_, _| true), Outcome::Invalid { .. }));
         let Outcome::Ok(sweep) = temperature_text(&design, chain, 5) else { unreachable!("sweep") };
         assert_eq!(sweep.sweep.temperatures_c.len(), 5);
         assert_eq!(sweep.chart.panels.len(), sweep.sweep.margins.len());
