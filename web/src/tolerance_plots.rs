@@ -104,7 +104,8 @@ fn axis_unit(unit: &str, magnitude: f64) -> (f64, String) {
     if unit.is_empty() {
         return (1.0, "ratio".to_string());
     }
-    let (factor, prefix) = if !(magnitude.is_finite()) || magnitude >= 1.0 {
+    // Zero (a rating headroom required to be ≥ 0) has no magnitude to scale to.
+    let (factor, prefix) = if !magnitude.is_finite() || magnitude == 0.0 || magnitude >= 1.0 {
         (1.0, "")
     } else if magnitude >= 1e-3 {
         (1e3, "m")
@@ -485,6 +486,7 @@ mod tests {
         assert_eq!(axis_unit("A", 0.012), (1e3, "mA".to_string()));
         assert_eq!(axis_unit("V", 8.0), (1.0, "V".to_string()));
         assert_eq!(axis_unit("", 3.0).1, "ratio");
+        assert_eq!(axis_unit("V", 0.0), (1.0, "V".to_string()), "required 0 V reads 0 V, not 0 nV");
         assert_eq!(significant(300.0), "300");
         assert_eq!(significant(1.2345), "1.23");
         assert_eq!(significant(-0.05), "−0.05");
