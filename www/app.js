@@ -1118,6 +1118,7 @@ async function computeTolerance() {
   if (!chain) { toleranceStatus("The chain cannot be planned, so its tolerances are not computed; the values below are from the last plan.", "error"); return; }
   document.body.dataset.tolerance = "busy";
   toleranceStatus("Computing the worst case and the temperature sweep…");
+  const started = performance.now();
   let result;
   try {
     result = await overviewLane.run("tolerance_overview", { design, chain: JSON.stringify(chain), points: TEMPERATURE_POINTS });
@@ -1133,6 +1134,7 @@ async function computeTolerance() {
     document.body.dataset.tolerance = "failed";
     return;
   }
+  document.body.dataset.lastToleranceMs = (performance.now() - started).toFixed(0);
   toleranceShown = { worst: result.worst_case, temperature: result.temperature, designJson: design, chain };
   toleranceStatus("");
   renderTolerance();
@@ -1406,6 +1408,8 @@ window.flipwright = {
   get current() { return current; },
   get tolerance() { return toleranceShown; },
   get yieldRun() { return yieldRun; },
+  // A job in the Monte Carlo lane (the recovery test runs force_panic there).
+  yieldLaneJob: (name, args) => yieldLane.run(name, args || {}),
   // The design the results show, with its values (for the benchmark's native comparison).
   get designJson() { return designForSimulation(); },
 };

@@ -636,6 +636,19 @@ test("a long Monte Carlo run reports progress, leaves the page usable, and Cance
   await context.close();
 });
 
+test("a panic in the Monte Carlo worker is reported, the worker is replaced and the next run works", async () => {
+  const { page, problems, context } = await open(hooksPagePath);
+  await waitTolerance(page);
+  const answer = await page.evaluate(() =>
+    window.flipwright.yieldLaneJob("force_panic").then(() => "resolved", (e) => (e.crashed ? "crashed" : e.message)));
+  assert.equal(answer, "crashed");
+  assert.match(await page.textContent("#banner"), /tolerance worker failed.*replaced/);
+  assert.equal(await runYield(page, { trials: 300, seed: 2 }), "ready");
+  assert.match(await page.textContent("#yield-verdict"), /^Yield/);
+  assert.deepEqual(problems.filter((p) => !/forced failure|unreachable|RuntimeError/.test(p)), []);
+  await context.close();
+});
+
 test("an invalid trials entry is flagged at its field and nothing breaks", async () => {
   const { page, problems, context } = await open();
   await waitTolerance(page);
