@@ -649,14 +649,10 @@ function renderPlan(outcome) {
   $("plan-svg").innerHTML = printChart("timing_diagram_svg", plan.diagram, 600, Math.round(0.8 * chainHeight(n)));
 }
 
-// ---- simulation worker ----
-// One classic worker built from a single Blob (the glue, then www/worker.js) and given the
-// compiled module. One job at a time; cancelling terminates the worker and starts a new one,
-// as does a panic inside it.
+// ---- workers ----
+// Every worker is a classic worker built from a single Blob (the glue, then www/worker.js) and
+// given the compiled module. Each lane owns one and runs one job at a time.
 let workerUrl = null;
-let worker = null;
-let job = null;             // { id, resolve, reject, onProgress }
-let jobCounter = 0;
 
 /** The one Blob URL every worker of the page is made from. */
 function workerBlobUrl() {
@@ -667,84 +663,75 @@ function workerBlobUrl() {
   return workerUrl;
 }
 
-function startWorker() {
-  worker = new Worker(workerBlobUrl());
-  worker.onmessage = onWorkerMessage;
-  worker.onerror = (event) => {
-    event.preventDefault();
-    workerCrashed(event.message || "the simulation worker stopped");
-  };
-  worker.postMessage({ type: "init", module: wasmModule });
-}
+// A worker that cannot even start would fail again at once: a lane gives up after this many
+// crashes in a row without a result.
+const MAX_CRASHES = 3;
 
-function replaceWorker() {
-  if (worker) worker.terminate();
-  worker = null;
-  startWorker();
-}
-
-function takeJob() {
-  const taken = job;
-  job = null;
-  return taken;
-}
-
-function onWorkerMessage(event) {
-  const message = event.data;
-  if (message.type === "crashed" && (message.id === undefined || (job && message.id === job.id))) {
-    workerCrashed(message.message);
-    return;
-  }
-  if (!job || message.id !== job.id) return;
-  if (message.type === "progress") job.onProgress(message);
-  else if (message.type === "result") { crashesWithoutResult = 0; takeJob().resolve(message.result); }
-  else if (message.type === "error") takeJob().reject(new Error(message.message));
-}
-
-let crashesWithoutResult = 0;
-let simulationUnavailable = false;
-
-function workerCrashed(message) {
-  const failed = takeJob();
-  // A worker that cannot even start would fail again at once: stop after a few tries.
-  crashesWithoutResult += 1;
-  if (crashesWithoutResult > 3) {
-    if (worker) worker.terminate();
-    worker = null;
-    simulationUnavailable = true;
-    setRunning(null);
-    showStatus("The simulation engine cannot run in this browser (" + message + "); the estimates above still stand.", "error");
+/** A worker lane. With `replaceRunning` a new job replaces the running one; otherwise it is
+ * refused while one runs. Cancel terminates the worker and starts a fresh one; so does a
+ * crash (a panic inside it, or a worker that cannot start), reported to `onCrash`. */
+function workerLane({ onCrash, onUnavailable = onCrash, replaceRunning = false }) {
+  let laneWorker = null;
+  let laneJob = null;         // { id, resolve, reject, onProgress }
+  let counter = 0;
+  let crashes = 0;
+  let unavailable = false;
+  const stop = () => { if (laneWorker) laneWorker.terminate(); laneWorker = null; };
+  const take = () => { const taken = laneJob; laneJob = null; return taken; };
+  const crashed = (message) => {
+    const failed = take();
+    stop();
+    crashes += 1;
+    if (crashes > MAX_CRASHES) { unavailable = true; onUnavailable(message); }
+    else { start(); onCrash(message); }
     if (failed) failed.reject(Object.assign(new Error(message), { crashed: true }));
-    return;
+  };
+  function start() {
+    laneWorker = new Worker(workerBlobUrl());
+    laneWorker.onmessage = (event) => {
+      const m = event.data;
+      if (m.type === "crashed" && (m.id === undefined || (laneJob && m.id === laneJob.id))) { crashed(m.message); return; }
+      if (!laneJob || m.id !== laneJob.id) return;
+      if (m.type === "progress") laneJob.onProgress(m);
+      else if (m.type === "result") { crashes = 0; take().resolve(m.result); }
+      else if (m.type === "error") take().reject(new Error(m.message));
+    };
+    laneWorker.onerror = (event) => { event.preventDefault(); crashed(event.message || "the worker stopped"); };
+    laneWorker.postMessage({ type: "init", module: wasmModule });
   }
-  replaceWorker();
-  banner("The simulation engine failed internally (" + message + ") and was restarted; your design is unchanged. Please report what you ran.", "error");
-  if (failed) {
-    const error = new Error(message);
-    error.crashed = true;
-    failed.reject(error);
-  }
+  return {
+    /** Runs a job of worker.js; resolves with the export's Outcome. */
+    run(name, args, onProgress) {
+      if (unavailable) return Promise.reject(new Error("the engine cannot run in a worker in this browser"));
+      if (laneJob && !replaceRunning) return Promise.reject(new Error("a job is already running"));
+      if (laneJob) this.cancel();
+      if (!laneWorker) start();
+      return new Promise((resolve, reject) => {
+        laneJob = { id: ++counter, resolve, reject, onProgress: onProgress || (() => {}) };
+        laneWorker.postMessage({ type: "run", id: laneJob.id, job: name, args: args || {} });
+      });
+    },
+    cancel() {
+      const cancelled = take();
+      stop();
+      if (!unavailable) start();
+      if (cancelled) cancelled.reject(Object.assign(new Error("cancelled"), { cancelled: true }));
+    },
+    /** Starts the worker ahead of the first job. */
+    warm() { if (!laneWorker && !unavailable) start(); },
+    get unavailable() { return unavailable; },
+  };
 }
 
-/** Runs a bridge export in the worker; resolves with its Outcome. */
+// The verifications' lane: a second run is refused while one runs.
+let simulation = null;
+
 function workerJob(name, args, onProgress) {
-  if (job) return Promise.reject(new Error("a simulation is already running"));
-  if (simulationUnavailable) return Promise.reject(new Error("the simulation engine cannot run in this browser"));
-  if (!worker) startWorker();
-  return new Promise((resolve, reject) => {
-    job = { id: ++jobCounter, resolve, reject, onProgress: onProgress || (() => {}) };
-    worker.postMessage({ type: "run", id: job.id, job: name, args: args || {} });
-  });
+  return simulation.run(name, args, onProgress);
 }
 
 function cancelWorkerJob() {
-  const cancelled = takeJob();
-  replaceWorker();
-  if (cancelled) {
-    const error = new Error("cancelled");
-    error.cancelled = true;
-    cancelled.reject(error);
-  }
+  simulation.cancel();
 }
 
 // ---- verification view ----
@@ -754,9 +741,9 @@ let elapsedTimer = null;
 
 function setRunning(text) {
   const running = text != null;
-  $("verify-run").disabled = running || simulationUnavailable;
-  $("chain-run").disabled = running || simulationUnavailable;
-  $("plan-run").disabled = running || simulationUnavailable;
+  $("verify-run").disabled = running || simulation.unavailable;
+  $("chain-run").disabled = running || simulation.unavailable;
+  $("plan-run").disabled = running || simulation.unavailable;
   $("verify-progress").hidden = !running;
   clearInterval(elapsedTimer);
   if (running) {
@@ -784,7 +771,7 @@ async function runJob(name, args, label, onProgress) {
     const outcome = await workerJob(name, args, onProgress);
     return { outcome, ms: performance.now() - started };
   } catch (error) {
-    if (simulationUnavailable) { /* workerCrashed said why */ }
+    if (simulation.unavailable) { /* onUnavailable said why */ }
     else if (error.cancelled) showStatus("Cancelled; any results shown are from earlier runs.");
     else if (error.crashed) showStatus("The simulation engine failed: " + error.message + ". It was restarted; try again or change the design.", "error");
     else showStatus("The simulation could not run: " + error.message, "error");
@@ -1038,60 +1025,17 @@ function initVerification() {
   initTolerance();
   let resizeTimer = null;
   window.addEventListener("resize", () => { clearTimeout(resizeTimer); resizeTimer = setTimeout(drawCharts, 150); });
-  startWorker();
+  simulation = workerLane({
+    onCrash: (message) => banner("The simulation engine failed internally (" + message + ") and was restarted; your design is unchanged. Please report what you ran.", "error"),
+    onUnavailable: (message) => {
+      setRunning(null);
+      showStatus("The simulation engine cannot run in this browser (" + message + "); the estimates above still stand.", "error");
+    },
+  });
+  simulation.warm();
 }
 
 // ---- tolerance views ----
-// A worker lane: its own worker from the same Blob, one job at a time. A new job replaces the
-// one running (its worker is terminated), and so does cancel; a crash replaces the worker.
-function workerLane(onCrash) {
-  let laneWorker = null;
-  let laneJob = null;         // { id, resolve, reject, onProgress }
-  let counter = 0;
-  const stop = () => { if (laneWorker) laneWorker.terminate(); laneWorker = null; };
-  const finish = (error) => {
-    const taken = laneJob;
-    laneJob = null;
-    if (taken && error) taken.reject(error);
-    return taken;
-  };
-  const crashed = (message) => {
-    stop();
-    const error = Object.assign(new Error(message), { crashed: true });
-    if (finish(error)) onCrash(message);
-  };
-  const start = () => {
-    laneWorker = new Worker(workerBlobUrl());
-    laneWorker.onmessage = (event) => {
-      const m = event.data;
-      if (m.type === "crashed" && (m.id === undefined || (laneJob && m.id === laneJob.id))) { crashed(m.message); return; }
-      if (!laneJob || m.id !== laneJob.id) return;
-      if (m.type === "progress") laneJob.onProgress(m);
-      else if (m.type === "result") finish().resolve(m.result);
-      else if (m.type === "error") finish(new Error(m.message));
-    };
-    laneWorker.onerror = (event) => { event.preventDefault(); crashed(event.message || "the worker stopped"); };
-    laneWorker.postMessage({ type: "init", module: wasmModule });
-  };
-  return {
-    run(name, args, onProgress) {
-      if (laneJob) this.cancel();
-      if (!laneWorker) start();
-      return new Promise((resolve, reject) => {
-        laneJob = { id: ++counter, resolve, reject, onProgress: onProgress || (() => {}) };
-        laneWorker.postMessage({ type: "run", id: laneJob.id, job: name, args });
-      });
-    },
-    cancel() {
-      const running = laneJob;
-      stop();
-      finish(Object.assign(new Error("cancelled"), { cancelled: true }));
-      return running !== null;
-    },
-    get busy() { return laneJob !== null; },
-  };
-}
-
 const TEMPERATURE_POINTS = 41;
 let overviewLane = null;    // the worst case and the temperature sweep, after every edit
 let yieldLane = null;       // Monte Carlo runs, from the Run button
@@ -1328,8 +1272,10 @@ function drawToleranceCharts() {
 
 function initTolerance() {
   const crashed = (message) => banner("A tolerance worker failed internally (" + message + ") and was replaced; your design is unchanged. Please report what you ran.", "error");
-  overviewLane = workerLane(crashed);
-  yieldLane = workerLane(crashed);
+  // A newer design replaces a running overview; Run is disabled while Monte Carlo runs.
+  const unavailable = (message) => toleranceStatus("The tolerance runs cannot work in this browser (" + message + "); the margins above still stand.", "error");
+  overviewLane = workerLane({ onCrash: crashed, onUnavailable: unavailable, replaceRunning: true });
+  yieldLane = workerLane({ onCrash: crashed, onUnavailable: unavailable, replaceRunning: true });
   $("yield-run").addEventListener("click", runYield);
   $("yield-cancel").addEventListener("click", () => yieldLane.cancel());
   for (const id of ["yield-trials", "yield-seed"]) $(id).addEventListener("input", () => yieldFieldError(id, ""));
