@@ -401,6 +401,7 @@ async function compute() {
   requestAnimationFrame(() => setTimeout(() => {
     document.body.dataset.lastPaintMs = (performance.now() - started).toFixed(2);
   }, 0));
+  computeTolerance();
 }
 
 function renderVerdictFromLast() {
@@ -523,6 +524,7 @@ function render(view, synthesis) {
   notes.textContent = "";
   for (const n of report.notes) { const li = document.createElement("li"); li.textContent = n; notes.appendChild(li); }
   markStale();
+  markToleranceStale();
   const d = current;
   $("print-header").innerHTML = "";
   const h = document.createElement("h1"); h.textContent = view.name;
@@ -654,97 +656,89 @@ function renderPlan(outcome) {
   });
 }
 
-// ---- simulation worker ----
-// One classic worker built from a single Blob (the glue, then www/worker.js) and given the
-// compiled module. One job at a time; cancelling terminates the worker and starts a new one,
-// as does a panic inside it.
+// ---- workers ----
+// Every worker is a classic worker built from a single Blob (the glue, then www/worker.js) and
+// given the compiled module. Each lane owns one and runs one job at a time.
 let workerUrl = null;
-let worker = null;
-let job = null;             // { id, resolve, reject, onProgress }
-let jobCounter = 0;
 
-function startWorker() {
+/** The one Blob URL every worker of the page is made from. */
+function workerBlobUrl() {
   if (!workerUrl) {
     const source = [$("glue-source").textContent, "\n;\n", $("worker-source").textContent];
     workerUrl = URL.createObjectURL(new Blob(source, { type: "text/javascript" }));
   }
-  worker = new Worker(workerUrl);
-  worker.onmessage = onWorkerMessage;
-  worker.onerror = (event) => {
-    event.preventDefault();
-    workerCrashed(event.message || "the simulation worker stopped");
-  };
-  worker.postMessage({ type: "init", module: wasmModule });
+  return workerUrl;
 }
 
-function replaceWorker() {
-  if (worker) worker.terminate();
-  worker = null;
-  startWorker();
-}
+// A worker that cannot even start would fail again at once: a lane gives up after this many
+// crashes in a row without a result.
+const MAX_CRASHES = 3;
 
-function takeJob() {
-  const taken = job;
-  job = null;
-  return taken;
-}
-
-function onWorkerMessage(event) {
-  const message = event.data;
-  if (message.type === "crashed" && (message.id === undefined || (job && message.id === job.id))) {
-    workerCrashed(message.message);
-    return;
-  }
-  if (!job || message.id !== job.id) return;
-  if (message.type === "progress") job.onProgress(message);
-  else if (message.type === "result") { crashesWithoutResult = 0; takeJob().resolve(message.result); }
-  else if (message.type === "error") takeJob().reject(new Error(message.message));
-}
-
-let crashesWithoutResult = 0;
-let simulationUnavailable = false;
-
-function workerCrashed(message) {
-  const failed = takeJob();
-  // A worker that cannot even start would fail again at once: stop after a few tries.
-  crashesWithoutResult += 1;
-  if (crashesWithoutResult > 3) {
-    if (worker) worker.terminate();
-    worker = null;
-    simulationUnavailable = true;
-    setRunning(null);
-    showStatus("The simulation engine cannot run in this browser (" + message + "); the estimates above still stand.", "error");
+/** A worker lane. With `replaceRunning` a new job replaces the running one; otherwise it is
+ * refused while one runs. Cancel terminates the worker and starts a fresh one; so does a
+ * crash (a panic inside it, or a worker that cannot start), reported to `onCrash`. */
+function workerLane({ onCrash, onUnavailable = onCrash, replaceRunning = false }) {
+  let laneWorker = null;
+  let laneJob = null;         // { id, resolve, reject, onProgress }
+  let counter = 0;
+  let crashes = 0;
+  let unavailable = false;
+  const stop = () => { if (laneWorker) laneWorker.terminate(); laneWorker = null; };
+  const take = () => { const taken = laneJob; laneJob = null; return taken; };
+  const crashed = (message) => {
+    const failed = take();
+    stop();
+    crashes += 1;
+    if (crashes > MAX_CRASHES) { unavailable = true; onUnavailable(message); }
+    else { start(); onCrash(message); }
     if (failed) failed.reject(Object.assign(new Error(message), { crashed: true }));
-    return;
+  };
+  function start() {
+    laneWorker = new Worker(workerBlobUrl());
+    laneWorker.onmessage = (event) => {
+      const m = event.data;
+      if (m.type === "crashed" && (m.id === undefined || (laneJob && m.id === laneJob.id))) { crashed(m.message); return; }
+      if (!laneJob || m.id !== laneJob.id) return;
+      if (m.type === "progress") laneJob.onProgress(m);
+      else if (m.type === "result") { crashes = 0; take().resolve(m.result); }
+      else if (m.type === "error") take().reject(new Error(m.message));
+    };
+    laneWorker.onerror = (event) => { event.preventDefault(); crashed(event.message || "the worker stopped"); };
+    laneWorker.postMessage({ type: "init", module: wasmModule });
   }
-  replaceWorker();
-  banner("The simulation engine failed internally (" + message + ") and was restarted; your design is unchanged. Please report what you ran.", "error");
-  if (failed) {
-    const error = new Error(message);
-    error.crashed = true;
-    failed.reject(error);
-  }
+  return {
+    /** Runs a job of worker.js; resolves with the export's Outcome. */
+    run(name, args, onProgress) {
+      if (unavailable) return Promise.reject(new Error("the engine cannot run in a worker in this browser"));
+      if (laneJob && !replaceRunning) return Promise.reject(new Error("a job is already running"));
+      if (laneJob) this.cancel();
+      if (!laneWorker) start();
+      return new Promise((resolve, reject) => {
+        laneJob = { id: ++counter, resolve, reject, onProgress: onProgress || (() => {}) };
+        laneWorker.postMessage({ type: "run", id: laneJob.id, job: name, args: args || {} });
+      });
+    },
+    cancel() {
+      const cancelled = take();
+      stop();
+      if (!unavailable) start();
+      if (cancelled) cancelled.reject(Object.assign(new Error("cancelled"), { cancelled: true }));
+    },
+    /** Starts the worker ahead of the first job. */
+    warm() { if (!laneWorker && !unavailable) start(); },
+    get unavailable() { return unavailable; },
+  };
 }
 
-/** Runs a bridge export in the worker; resolves with its Outcome. */
+// The verifications' lane: a second run is refused while one runs.
+let simulation = null;
+
 function workerJob(name, args, onProgress) {
-  if (job) return Promise.reject(new Error("a simulation is already running"));
-  if (simulationUnavailable) return Promise.reject(new Error("the simulation engine cannot run in this browser"));
-  if (!worker) startWorker();
-  return new Promise((resolve, reject) => {
-    job = { id: ++jobCounter, resolve, reject, onProgress: onProgress || (() => {}) };
-    worker.postMessage({ type: "run", id: job.id, job: name, args: args || {} });
-  });
+  return simulation.run(name, args, onProgress);
 }
 
 function cancelWorkerJob() {
-  const cancelled = takeJob();
-  replaceWorker();
-  if (cancelled) {
-    const error = new Error("cancelled");
-    error.cancelled = true;
-    cancelled.reject(error);
-  }
+  simulation.cancel();
 }
 
 // ---- verification view ----
@@ -754,9 +748,9 @@ let elapsedTimer = null;
 
 function setRunning(text) {
   const running = text != null;
-  $("verify-run").disabled = running || simulationUnavailable;
-  $("chain-run").disabled = running || simulationUnavailable;
-  $("plan-run").disabled = running || simulationUnavailable;
+  $("verify-run").disabled = running || simulation.unavailable;
+  $("chain-run").disabled = running || simulation.unavailable;
+  $("plan-run").disabled = running || simulation.unavailable;
   $("verify-progress").hidden = !running;
   clearInterval(elapsedTimer);
   if (running) {
@@ -784,7 +778,7 @@ async function runJob(name, args, label, onProgress) {
     const outcome = await workerJob(name, args, onProgress);
     return { outcome, ms: performance.now() - started };
   } catch (error) {
-    if (simulationUnavailable) { /* workerCrashed said why */ }
+    if (simulation.unavailable) { /* onUnavailable said why */ }
     else if (error.cancelled) showStatus("Cancelled; any results shown are from earlier runs.");
     else if (error.crashed) showStatus("The simulation engine failed: " + error.message + ". It was restarted; try again or change the design.", "error");
     else showStatus("The simulation could not run: " + error.message, "error");
@@ -1044,6 +1038,7 @@ function drawCharts() {
   if (stageRun && !$("stage-result").hidden) drawOn($("stage-canvas"), "draw_waveform_chart", stageRun.view.chart);
   if (chainRun && !$("chain-result").hidden) drawOn($("chain-canvas"), "draw_timing_diagram", chainRun.view.diagram);
   if (planShown && !$("plan").hidden) drawOn($("plan-canvas"), "draw_timing_diagram", planShown.diagram);
+  drawToleranceCharts();
   document.body.dataset.lastDrawMs = (performance.now() - started).toFixed(1);
 }
 
@@ -1058,9 +1053,263 @@ function initVerification() {
   $("chain-run").addEventListener("click", verifyChain);
   $("plan-run").addEventListener("click", verifyPlanned);
   $("verify-cancel").addEventListener("click", cancelWorkerJob);
+  initTolerance();
   let resizeTimer = null;
   window.addEventListener("resize", () => { clearTimeout(resizeTimer); resizeTimer = setTimeout(drawCharts, 150); });
-  startWorker();
+  simulation = workerLane({
+    onCrash: (message) => banner("The simulation engine failed internally (" + message + ") and was restarted; your design is unchanged. Please report what you ran.", "error"),
+    onUnavailable: (message) => {
+      setRunning(null);
+      showStatus("The simulation engine cannot run in this browser (" + message + "); the estimates above still stand.", "error");
+    },
+  });
+  simulation.warm();
+}
+
+// ---- tolerance views ----
+const TEMPERATURE_POINTS = 41;
+let overviewLane = null;    // the worst case and the temperature sweep, after every edit
+let yieldLane = null;       // Monte Carlo runs, from the Run button
+let toleranceShown = null;  // { worst, temperature, designJson, chain } on screen
+let yieldRun = null;        // { view, designJson, ms } of the last Monte Carlo run
+let yieldTimer = null;
+
+/** What the tolerance exports analyse: the planned chain, or one stage when there is none. */
+function toleranceChain(view) {
+  if (!view.chain) return { kind: "stages", stages: 1 };
+  if (view.chain.status !== "ok") return null;
+  return { kind: "divide", modulus: view.chain.divide_by, method: view.chain.chosen };
+}
+
+function toleranceStatus(text, kind) {
+  $("tolerance-status").textContent = text;
+  $("tolerance-status").className = "status" + (kind ? " " + kind : "");
+}
+
+async function computeTolerance() {
+  if (!lastView) return;
+  const design = designForSimulation();
+  const chain = toleranceChain(lastView);
+  if (!chain) { toleranceStatus("The chain cannot be planned, so its tolerances are not computed; the values below are from the last plan.", "error"); return; }
+  document.body.dataset.tolerance = "busy";
+  toleranceStatus("Computing the worst case and the temperature sweep…");
+  const started = performance.now();
+  let result;
+  try {
+    result = await overviewLane.run("tolerance_overview", { design, chain: JSON.stringify(chain), points: TEMPERATURE_POINTS });
+  } catch (error) {
+    if (error.cancelled) return;  // a newer design replaced it
+    toleranceStatus("The tolerances could not be computed: " + error.message, "error");
+    document.body.dataset.tolerance = "failed";
+    return;
+  }
+  const problem = outcomeProblem(result.worst_case) || outcomeProblem(result.temperature);
+  if (problem) {
+    toleranceStatus("The tolerances could not be computed: " + problem, "error");
+    document.body.dataset.tolerance = "failed";
+    return;
+  }
+  document.body.dataset.lastToleranceMs = (performance.now() - started).toFixed(0);
+  toleranceShown = { worst: result.worst_case, temperature: result.temperature, designJson: design, chain };
+  toleranceStatus("");
+  renderTolerance();
+  document.body.dataset.tolerance = "ready";
+}
+
+function stageName(k) {
+  return `stage ${k + 1}`;
+}
+
+/** The worst corner in a line: its temperature and its first few off-nominal settings. */
+function cornerText(m) {
+  const shown = m.worst_corner.filter(c => !/^temperature/.test(c));
+  const first = shown.slice(0, 3).join(", ");
+  return `worst corner at ${m.temperature_c.toFixed(0)} °C` + (first ? `: ${first}` : "") +
+    (shown.length > 3 ? ` and ${shown.length - 3} more` : "");
+}
+
+function renderTolerance() {
+  const { worst, temperature } = toleranceShown;
+  const wc = worst.worst_case;
+  $("tolerance-chain").textContent = wc.stage_count === 1 ? "One stage with the design's own loads."
+    : `${worst.chain}; its ${wc.stage_count} stages carry ${wc.distinct_stages === 1 ? "the same loads" : wc.distinct_stages + " different sets of loads"}, each set analysed once.`;
+  const verdict = $("worst-verdict");
+  verdict.className = "verdict " + (wc.all_pass ? "pass" : "fail");
+  const failing = wc.margins.filter(m => !m.pass).map(m => m.title);
+  verdict.textContent = wc.all_pass ? "Every margin of every stage passes at its worst case." : `At worst case the chain fails: ${failing.join("; ")}.`;
+  table($("worst-table"), ["Margin", "Nominal", "Worst", "Required", "Result", "Limiting stage", "Limiting parameter"],
+    wc.margins.map(m => {
+      const others = m.same_stages.filter(k => k !== m.limiting_stage);
+      return [
+        m.title,
+        { text: marginText(m.nominal, m.unit), className: "num" },
+        { text: marginText(m.worst, m.unit), className: "num" },
+        { text: "≥ " + marginText(m.required, m.unit), className: "num" },
+        { text: m.pass ? "PASS" : "FAIL", className: m.pass ? "pass" : "fail" },
+        { text: stageName(m.limiting_stage), sub: others.length ? `same loads: ${others.map(k => k + 1).join(", ")}` : "" },
+        { text: m.limiting_parameter || "—", className: "advice", sub: cornerText(m) },
+      ];
+    }));
+  const t = temperature.sweep.temperatures_c;
+  $("temperature-hint").textContent = `${t.length} points from ${t[0]} to ${t[t.length - 1]} °C; worst case over every other parameter at each temperature`;
+  drawCharts();
+  $("temperature-svg").innerHTML = printChart("temperature_chart_svg", temperature.chart, 680, 540);
+  markToleranceStale();
+}
+
+function yieldFieldError(id, message) {
+  const row = $(id + "-row");
+  row.classList.toggle("invalid", Boolean(message));
+  row.querySelector(".error")?.remove();
+  if (message) {
+    const note = document.createElement("div");
+    note.className = "error";
+    note.textContent = message;
+    row.appendChild(note);
+  }
+}
+
+function yieldStatus(text, kind) {
+  $("yield-status").textContent = text;
+  $("yield-status").className = "status" + (kind ? " " + kind : "");
+}
+
+/** The run's options from the controls; whole numbers are checked here, ranges by the core. */
+function yieldOptions() {
+  let ok = true;
+  const whole = (id, what) => {
+    const text = $(id).value.trim();
+    if (/^\d+$/.test(text)) { yieldFieldError(id, ""); return Number(text); }
+    yieldFieldError(id, `enter the ${what} as a whole number (digits only)`);
+    ok = false;
+    return null;
+  };
+  const trials = whole("yield-trials", "number of trials");
+  const seed = whole("yield-seed", "seed");
+  if (!ok) return null;
+  return { trials, seed, distribution: $("yield-distribution").value, confidence: Number($("yield-confidence").value) };
+}
+
+function setYieldRunning(text) {
+  const running = text != null;
+  $("yield-run").disabled = running;
+  $("yield-progress").hidden = !running;
+  clearInterval(yieldTimer);
+  if (running) { $("yield-phase").textContent = text; $("yield-bar").removeAttribute("value"); }
+}
+
+async function runYield() {
+  const design = designForSimulation();
+  const chain = lastView && toleranceChain(lastView);
+  if (!design || !chain) { yieldStatus("There is no valid design and chain to run yet.", "error"); return; }
+  const options = yieldOptions();
+  if (!options) { yieldStatus("Correct the marked entries to run.", "error"); return; }
+  yieldStatus("");
+  const started = performance.now();
+  let done = 0;
+  const label = () => `trial ${done} of ${options.trials}: running for ${((performance.now() - started) / 1000).toFixed(0)} s`;
+  const onProgress = (step) => {
+    done = step.done_trials;
+    const bar = $("yield-bar");
+    bar.max = step.trials;
+    bar.value = step.done_trials;
+    $("yield-phase").textContent = label();
+    document.body.dataset.yieldProgress = String(step.done_trials);
+  };
+  document.body.dataset.yield = "busy";
+  document.body.dataset.yieldProgress = "";
+  setYieldRunning(label());
+  yieldTimer = setInterval(() => { $("yield-phase").textContent = label(); }, 500);
+  let outcome;
+  try {
+    outcome = await yieldLane.run("monte_carlo_yield_design", { design, chain: JSON.stringify(chain), options: JSON.stringify(options) }, onProgress);
+  } catch (error) {
+    setYieldRunning(null);
+    document.body.dataset.yield = error.cancelled ? "cancelled" : "failed";
+    if (error.cancelled) yieldStatus("Cancelled; any result shown is from an earlier run.");
+    else yieldStatus("The Monte Carlo run failed: " + error.message + (error.crashed ? ". Its worker was replaced; try again." : ""), "error");
+    return;
+  }
+  setYieldRunning(null);
+  const ms = performance.now() - started;
+  if (outcome.status === "invalid") {
+    const rest = [];
+    for (const e of outcome.errors) {
+      const id = { "options.trials": "yield-trials", "options.seed": "yield-seed" }[e.path];
+      if (id) yieldFieldError(id, e.message); else rest.push(`${e.path}: ${e.message}`);
+    }
+    yieldStatus(rest.length ? "The run could not start: " + rest.join("; ") : "Correct the marked entries to run.", "error");
+    document.body.dataset.yield = "invalid";
+    return;
+  }
+  if (outcome.status !== "ok") { yieldStatus("The Monte Carlo run failed: " + outcomeProblem(outcome), "error"); document.body.dataset.yield = "failed"; return; }
+  yieldRun = { view: outcome, designJson: design, ms };
+  yieldStatus("");
+  renderYield();
+  document.body.dataset.yield = "ready";
+}
+
+function percent(fraction, digits = 2) {
+  return fraction == null || !isFinite(fraction) ? "—" : (100 * fraction).toFixed(digits) + " %";
+}
+
+function renderYield() {
+  const { view, ms } = yieldRun;
+  const r = view.report;
+  const o = r.options;
+  $("yield-result").hidden = false;
+  const verdict = $("yield-verdict");
+  verdict.className = "verdict " + (r.passed === o.trials ? "pass" : "fail");
+  verdict.textContent = `Yield ${percent(r.yield_fraction)} — ${r.passed} of ${o.trials} builds pass every DC margin of every stage.`;
+  const f = r.most_frequent_failure;
+  table($("yield-summary"), ["Quantity", "Value"], [
+    ["Chain", view.chain],
+    ["Yield (builds passing / trials)", { text: `${percent(r.yield_fraction)} (${r.passed} / ${o.trials})`, className: "num strong" }],
+    [`Wilson interval at ${percent(o.confidence, 1)}`, { text: `${percent(r.interval.low)} … ${percent(r.interval.high)}`, className: "num" }],
+    [`Lower bound at ${percent(o.confidence, 1)} (one-sided)`, { text: percent(r.lower_bound), className: "num" }],
+    ["Trials for an interval of ±" + percent(o.half_width, 1), { text: r.trials_for_half_width == null ? "—" : String(r.trials_for_half_width), className: "num" }],
+    ["Parts drawn", o.distribution === "normal" ? "normal, tolerance at 3σ (truncated at ±3σ)" : "uniform within tolerance"],
+    ["Seed · digest of every margin of every trial", { text: `${o.seed} · ${r.digest}`, className: "num digest" }],
+    ["Most frequent failure", f ? `${r.margins.find(m => m.kind === f.kind)?.title || f.kind} in ${stageName(f.stage)}: ${f.failures} trials (${percent(f.fraction)})` : "none"],
+    ["Run time in this browser", { text: `${(ms / 1000).toFixed(2)} s`, className: "num" }],
+  ]);
+  const stages = r.stage_count;
+  table($("yield-failures"), ["Margin", "Required", "Nominal", "Lowest · mean", "Failing trials"].concat(stages > 1 ? Array.from({ length: stages }, (_, k) => `St. ${k + 1}`) : []),
+    r.margins.map(m => [
+      m.title,
+      { text: "≥ " + marginText(m.required, m.unit), className: "num" },
+      { text: marginText(m.nominal, m.unit), className: "num" },
+      { text: `${marginText(m.min, m.unit)} · ${marginText(m.mean, m.unit)}`, className: "num" },
+      { text: String(m.failing_trials), className: "num" + (m.failing_trials ? " fail" : "") },
+    ].concat(stages > 1 ? m.failures_per_stage.map(n => ({ text: String(n), className: "num" })) : [])));
+  const notes = $("yield-notes");
+  notes.textContent = "";
+  for (const n of r.notes) { const li = document.createElement("li"); li.textContent = n; notes.appendChild(li); }
+  drawCharts();
+  $("yield-svg").innerHTML = printChart("yield_histograms_svg", view.histograms, 680, 540);
+  $("tolerance").classList.add("has-yield");
+  markToleranceStale();
+}
+
+function markToleranceStale() {
+  const design = designForSimulation();
+  $("yield-stale").hidden = !(yieldRun && yieldRun.designJson !== design);
+}
+
+function drawToleranceCharts() {
+  if (toleranceShown) drawOn($("temperature-canvas"), "draw_temperature_chart", toleranceShown.temperature.chart);
+  if (yieldRun && !$("yield-result").hidden) drawOn($("yield-canvas"), "draw_yield_histograms", yieldRun.view.histograms);
+}
+
+function initTolerance() {
+  const crashed = (message) => banner("A tolerance worker failed internally (" + message + ") and was replaced; your design is unchanged. Please report what you ran.", "error");
+  // A newer design replaces a running overview; Run is disabled while Monte Carlo runs.
+  const unavailable = (message) => toleranceStatus("The tolerance runs cannot work in this browser (" + message + "); the margins above still stand.", "error");
+  overviewLane = workerLane({ onCrash: crashed, onUnavailable: unavailable, replaceRunning: true });
+  yieldLane = workerLane({ onCrash: crashed, onUnavailable: unavailable, replaceRunning: true });
+  $("yield-run").addEventListener("click", runYield);
+  $("yield-cancel").addEventListener("click", () => yieldLane.cancel());
+  for (const id of ["yield-trials", "yield-seed"]) $(id).addEventListener("input", () => yieldFieldError(id, ""));
 }
 
 // ---- keeping work ----
@@ -1134,6 +1383,10 @@ async function init() {
 window.flipwright = {
   compute, call, workerJob,
   get current() { return current; },
+  get tolerance() { return toleranceShown; },
+  get yieldRun() { return yieldRun; },
+  // A job in the Monte Carlo lane (the recovery test runs force_panic there).
+  yieldLaneJob: (name, args) => yieldLane.run(name, args || {}),
   // The design the results show, with its values (for the benchmark's native comparison).
   get designJson() { return designForSimulation(); },
 };

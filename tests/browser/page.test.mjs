@@ -124,7 +124,9 @@ test("printing gives A4 and Letter pages with the component table and cautions",
     await page.pdf({ path: file, format, printBackground: true, preferCSSPageSize: true });
     const info = execFileSync("pdfinfo", [file]).toString();
     const pages = Number(/Pages:\s+(\d+)/.exec(info)?.[1]);
-    assert.ok(pages >= 1 && pages <= 4, `${format}: ${pages} pages`);
+    // Stage, margins, states, switching, the chain worst-case table and the temperature chart,
+    // parts and cautions: 5 pages on A4 and Letter when the tolerance section was added.
+    assert.ok(pages >= 1 && pages <= 6, `${format}: ${pages} pages`);
     const text = execFileSync("pdftotext", ["-layout", file, "-"]).toString();
     for (const expected of ["Component table", "R101", "C101", "Q101", "Margins", "Cautions", "Printed"]) {
       assert.ok(text.includes(expected), `${format} PDF lacks "${expected}"`);
@@ -431,6 +433,273 @@ test("printing a chain plan carries the count table and the chain section, with 
     assert.ok(!headingSet.has(last), `page ${i + 1} ends with the heading "${last}"`);
   }
   execFileSync("pdftoppm", ["-png", "-r", "50", file, join(shots, "print-chain-A4")]);
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+// ---- tolerances: chain worst case, margins against temperature, Monte Carlo yield ----
+
+async function waitTolerance(page, { chainKind = null } = {}) {
+  await page.waitForFunction((kind) => document.body.dataset.tolerance === "ready"
+    && window.flipwright.tolerance && window.flipwright.tolerance.designJson === window.flipwright.designJson
+    && (kind === null || window.flipwright.tolerance.chain.kind === kind), chainKind, { timeout: 60000 });
+}
+
+/** The worst-case table's rows as { margin, worst, stage, parameter }. */
+async function worstRows(page) {
+  return page.$$eval("#worst-table tbody tr", (rows) => rows.map((r) => ({
+    margin: r.cells[0].textContent.trim(),
+    worst: r.cells[2].textContent.trim(),
+    result: r.cells[4].textContent.trim(),
+    stage: r.cells[5].firstChild.textContent.trim(),
+    parameter: r.cells[6].firstChild.textContent.trim(),
+  })));
+}
+
+/** Runs Monte Carlo from the controls and waits for its outcome; returns the body's state. */
+async function runYield(page, { trials, seed }) {
+  await page.fill("#yield-trials", String(trials));
+  await page.fill("#yield-seed", String(seed));
+  const before = await page.evaluate(() => window.flipwright.yieldRun);
+  await page.click("#yield-run");
+  await page.waitForFunction((had) => ["ready", "invalid", "failed"].includes(document.body.dataset.yield)
+    && (document.body.dataset.yield !== "ready" || window.flipwright.yieldRun !== had), before, { timeout: 120000 });
+  return page.getAttribute("body", "data-yield");
+}
+
+test("the chain worst case names a limiting stage and parameter; for one stage it equals the stage's own margins", async () => {
+  const { page, problems, context } = await open();
+  await waitTolerance(page, { chainKind: "stages" });
+  const rows = await worstRows(page);
+  assert.ok(rows.length >= 8, `expected every DC margin, got ${rows.length} rows`);
+  // The same core worst-case search over the same stage answers both tables: every margin the
+  // stage table lists must show the same worst value here.
+  const stageWorst = new Map(await page.$$eval("#margins tbody tr", (trs) => trs.map((r) => [r.cells[0].textContent.trim(), r.cells[2].textContent.trim()])));
+  let compared = 0;
+  for (const r of rows) {
+    assert.equal(r.stage, "stage 1", `${r.margin}: a single stage limits itself`);
+    assert.ok(r.parameter.length > 2 && r.parameter !== "—", `${r.margin}: limiting parameter "${r.parameter}"`);
+    if (stageWorst.has(r.margin)) { assert.equal(r.worst, stageWorst.get(r.margin), `${r.margin}: worst value`); compared++; }
+  }
+  assert.ok(compared >= 8, `only ${compared} margins in both tables`);
+  // A planned decade chain: 4 stages, each row limited by one of them.
+  await planFor(page, 10);
+  await waitTolerance(page, { chainKind: "divide" });
+  assert.match(await page.textContent("#tolerance-chain"), /divide-by-10 chain.*4 stages/);
+  for (const r of await worstRows(page)) {
+    const k = Number(/^stage (\d+)$/.exec(r.stage)?.[1]);
+    assert.ok(k >= 1 && k <= 4, `${r.margin}: limiting stage "${r.stage}" is not one of the 4`);
+    assert.match(r.result, /^(PASS|FAIL)$/);
+  }
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+test("margins against temperature draw on a sharp canvas and as SVG, over the design's range, worst never above nominal", async () => {
+  const context = await browser.newContext({ viewport: { width: 1280, height: 900 }, deviceScaleFactor: 2 });
+  const { page, problems } = await open(pagePath, context);
+  await waitTolerance(page);
+  const chart = await canvasInk(page, "#temperature-canvas");
+  assert.equal(chart.width, Math.round(chart.cssWidth * 2), `canvas ${chart.width} px for ${chart.cssWidth} CSS px`);
+  assert.ok(chart.ink > 0.01, `temperature canvas nearly blank (${chart.ink})`);
+  assert.ok(chart.blue > 500, `no nominal curve drawn (${chart.blue} blue pixels)`);
+  const svg = await page.$eval("#temperature-svg", (d) => d.innerHTML);
+  assert.ok(svg.startsWith("<svg") && svg.includes("temperature (°C)") && svg.includes("required"), "print SVG with labelled axes");
+  const sweep = await page.evaluate(() => window.flipwright.tolerance.temperature.sweep);
+  const t = sweep.temperatures_c;
+  assert.equal(t[0], Number(await page.inputValue("#f-conditions-t_min_c")), "sweep starts at the lowest temperature entered");
+  assert.equal(t.at(-1), Number(await page.inputValue("#f-conditions-t_max_c")), "and ends at the highest");
+  assert.equal(sweep.margins.length, 8);
+  for (const m of sweep.margins) {
+    // The worst case at a temperature searches the other parameters from nominal, so it can
+    // never be above the nominal value there.
+    m.worst.forEach((w, i) => assert.ok(w <= m.nominal[i] + 1e-9 * Math.abs(m.nominal[i]), `${m.title} at ${t[i]} °C: worst ${w} above nominal ${m.nominal[i]}`));
+  }
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+/** Wilson score interval (E. B. Wilson, JASA 22, 1927), written out here independently of the core. */
+function wilson(successes, n, z) {
+  const p = successes / n;
+  const centre = (p + z * z / (2 * n)) / (1 + z * z / n);
+  const half = (z / (1 + z * z / n)) * Math.sqrt(p * (1 - p) / n + z * z / (4 * n * n));
+  return [Math.max(0, centre - half), Math.min(1, centre + half)];
+}
+
+test("a seeded Monte Carlo run shows yield, interval and digest; the same seed repeats it, another seed differs", async () => {
+  const { page, problems, context } = await open();
+  await planFor(page, 10);
+  await waitTolerance(page, { chainKind: "divide" });
+  // Normal draws so the run exercises the other distribution too.
+  await page.selectOption("#yield-distribution", "normal");
+  assert.equal(await runYield(page, { trials: 3000, seed: 7 }), "ready");
+  const summary = await page.textContent("#yield-summary");
+  const digest = /7 · ([0-9a-f]{16})/.exec(summary)?.[1];
+  assert.ok(digest, `seed and digest shown: ${summary}`);
+  assert.match(await page.textContent("#yield-verdict"), /^Yield \d+\.\d\d %/);
+  const report = await page.evaluate(() => window.flipwright.yieldRun.view.report);
+  assert.equal(report.options.trials, 3000);
+  assert.equal(report.stage_count, 4);
+  assert.equal(report.yield_fraction, report.passed / 3000);
+  // z for 95 % two-sided from a normal table: 1.959964.
+  const [low, high] = wilson(report.passed, 3000, 1.959964);
+  assert.ok(Math.abs(report.interval.low - low) < 1e-6 && Math.abs(report.interval.high - high) < 1e-6,
+    `Wilson interval ${JSON.stringify(report.interval)} against ${low}…${high}`);
+  assert.ok(summary.includes(`${(100 * report.interval.low).toFixed(2)} % … ${(100 * report.interval.high).toFixed(2)} %`), "interval shown");
+  for (const m of report.margins) {
+    const binned = m.histogram.counts.reduce((a, b) => a + b, 0) + m.histogram.not_finite;
+    assert.equal(binned, 3000, `${m.title}: every trial in one bin`);
+    assert.equal(m.failures_per_stage.length, 4);
+  }
+  const bars = await canvasInk(page, "#yield-canvas");
+  assert.ok(bars.ink > 0.01, `histogram canvas nearly blank (${bars.ink})`);
+  assert.ok((await page.$eval("#yield-svg", (d) => d.innerHTML)).includes("trials"), "histograms as SVG for print");
+  assert.equal(await runYield(page, { trials: 3000, seed: 7 }), "ready");
+  assert.equal(await page.evaluate(() => window.flipwright.yieldRun.view.report.digest), digest, "same seed, same digest");
+  assert.equal(await runYield(page, { trials: 3000, seed: 8 }), "ready");
+  const other = await page.evaluate(() => window.flipwright.yieldRun.view.report.digest);
+  assert.notEqual(other, digest, "another seed, another digest");
+  assert.match(await page.textContent("#yield-summary"), new RegExp(`8 · ${other}`));
+  await page.screenshot({ path: join(shots, "yield.png"), fullPage: true });
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+test("a yield below 100 % agrees with its failures, its histogram and an independent Wilson interval", async () => {
+  const { page, problems, context } = await open();
+  await waitTolerance(page);
+  // Keep the chosen values and ask for more swing than the worst case gives: some builds fail.
+  await page.uncheck("#auto-values");
+  await waitCompute(page);
+  await setField(page, "requirements.min_output_swing_v", "6.5");
+  await page.waitForFunction(() => window.flipwright.current.requirements.min_output_swing_v === "6.5", null, { timeout: 30000 });
+  await waitCompute(page);
+  await waitTolerance(page);
+  const swingRow = (await worstRows(page)).find((r) => r.margin === "output swing");
+  assert.equal(swingRow?.result, "FAIL", "the worst case fails the raised requirement");
+  await page.selectOption("#yield-confidence", "0.99");
+  assert.equal(await runYield(page, { trials: 4000, seed: 11 }), "ready");
+  const r = await page.evaluate(() => window.flipwright.yieldRun.view.report);
+  assert.ok(r.passed > 0 && r.passed < 4000, `some but not all builds pass: ${r.passed}`);
+  // A build fails when at least one margin fails in some stage.
+  const failing = r.margins.map((m) => m.failing_trials);
+  assert.ok(Math.max(...failing) <= 4000 - r.passed && 4000 - r.passed <= failing.reduce((a, b) => a + b, 0),
+    `failed builds ${4000 - r.passed} against per-margin failures ${failing}`);
+  const swing = r.margins.find((m) => m.title === "output swing");
+  assert.ok(swing.failing_trials > 0);
+  // The histogram holds the tightest stage's value: the bins wholly below the requirement
+  // cannot hold more trials than failed, and with the bin across it they hold at least as many.
+  const { edges, counts } = swing.histogram;
+  const below = counts.filter((_, i) => edges[i + 1] <= swing.required).reduce((a, b) => a + b, 0);
+  const upTo = counts.filter((_, i) => edges[i] < swing.required).reduce((a, b) => a + b, 0);
+  assert.ok(below <= swing.failing_trials && swing.failing_trials <= upTo, `${below} ≤ ${swing.failing_trials} ≤ ${upTo}`);
+  // z for 99 % two-sided from a normal table: 2.575829.
+  const [low, high] = wilson(r.passed, 4000, 2.575829);
+  assert.ok(Math.abs(r.interval.low - low) < 1e-6 && Math.abs(r.interval.high - high) < 1e-6,
+    `Wilson interval ${JSON.stringify(r.interval)} against ${low}…${high}`);
+  assert.ok(r.interval.low < r.yield_fraction && r.yield_fraction < r.interval.high);
+  const failures = await page.$$eval("#yield-failures tbody tr", (trs) => trs.map((t) => [t.cells[0].textContent, t.cells[4].textContent]));
+  assert.deepEqual(failures.find(([m]) => m === "output swing"), ["output swing", String(swing.failing_trials)]);
+  assert.match(await page.textContent("#yield-verdict"), new RegExp(`${r.passed} of 4000`));
+  await page.screenshot({ path: join(shots, "yield-failing.png"), fullPage: true });
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+test("a long Monte Carlo run reports progress, leaves the page usable, and Cancel stops it", async () => {
+  const { page, problems, context } = await open();
+  await waitTolerance(page);
+  await page.fill("#yield-trials", "1000000");
+  await page.click("#yield-run");
+  await page.waitForSelector("#yield-progress:not([hidden])", { timeout: 10000 });
+  const before = await page.textContent("#margins");
+  await setField(page, "supplies.collector_supply_v", "12");
+  await page.waitForFunction((b) => document.querySelector("#margins").textContent !== b, before, { timeout: 30000 });
+  await page.fill("#yield-seed", "42");
+  assert.equal(await page.inputValue("#yield-seed"), "42");
+  assert.equal(await page.getAttribute("body", "data-yield"), "busy", "the run is still going while the form recomputed");
+  assert.equal(await page.isVisible("#yield-progress"), true);
+  // Progress arrives from the worker as the trials go by.
+  await page.waitForFunction(() => Number(document.body.dataset.yieldProgress) >= 5000, null, { timeout: 30000 });
+  const bar = await page.$eval("#yield-bar", (b) => ({ value: b.value, max: b.max }));
+  assert.ok(bar.max === 1000000 && bar.value >= 5000 && bar.value < 1000000, `progress bar ${JSON.stringify(bar)}`);
+  assert.match(await page.textContent("#yield-phase"), /trial \d+ of 1000000/);
+  await page.click("#yield-cancel");
+  await page.waitForSelector("#yield-progress", { state: "hidden", timeout: 10000 });
+  assert.equal(await page.getAttribute("body", "data-yield"), "cancelled");
+  assert.match(await page.textContent("#yield-status"), /Cancelled/);
+  assert.equal(await page.isHidden("#yield-result"), true, "no result from the cancelled run");
+  // The replaced worker runs the next job.
+  assert.equal(await runYield(page, { trials: 500, seed: 42 }), "ready");
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+test("a panic in the Monte Carlo worker is reported, the worker is replaced and the next run works", async () => {
+  const { page, problems, context } = await open(hooksPagePath);
+  await waitTolerance(page);
+  const answer = await page.evaluate(() =>
+    window.flipwright.yieldLaneJob("force_panic").then(() => "resolved", (e) => (e.crashed ? "crashed" : e.message)));
+  assert.equal(answer, "crashed");
+  assert.match(await page.textContent("#banner"), /tolerance worker failed.*replaced/);
+  assert.equal(await runYield(page, { trials: 300, seed: 2 }), "ready");
+  assert.match(await page.textContent("#yield-verdict"), /^Yield/);
+  assert.deepEqual(problems.filter((p) => !/forced failure|unreachable|RuntimeError/.test(p)), []);
+  await context.close();
+});
+
+test("an invalid trials entry is flagged at its field and nothing breaks", async () => {
+  const { page, problems, context } = await open();
+  await waitTolerance(page);
+  const error = "#yield-trials-row.invalid .error";
+  await page.fill("#yield-trials", "abc");
+  await page.click("#yield-run");
+  await page.waitForSelector(error, { timeout: 10000 });
+  assert.match(await page.textContent(error), /whole number/);
+  assert.equal(await page.isHidden("#yield-progress"), true, "nothing started");
+  assert.equal(await runYield(page, { trials: 0, seed: 1 }), "invalid");
+  // The range comes from the core's check.
+  assert.match(await page.textContent(error), /1 to 1000000.*got 0/);
+  assert.equal(await page.isHidden("#yield-result"), true);
+  const margins = await page.textContent("#margins");
+  assert.match(margins, /PASS/, "the design's results stay");
+  assert.equal(await runYield(page, { trials: 400, seed: 1 }), "ready");
+  assert.equal(await page.$("#yield-trials-row.invalid"), null, "the message goes once the entry is valid");
+  assert.match(await page.textContent("#yield-summary"), /400/);
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+test("printing the tolerance section on A4 and Letter keeps headings with their tables and charts", async () => {
+  const { page, problems, context } = await open();
+  await planFor(page, 10);
+  await waitTolerance(page, { chainKind: "divide" });
+  assert.equal(await runYield(page, { trials: 2000, seed: 3 }), "ready");
+  const digest = await page.evaluate(() => window.flipwright.yieldRun.view.report.digest);
+  await page.emulateMedia({ media: "print" });
+  const squash = (t) => t.replace(/\s+/g, " ").trim();
+  const headings = new Set((await page.$$eval("#results h2, #results h3", (hs) => hs.filter((h) => h.offsetParent !== null)
+    .flatMap((h) => [h.textContent, h.firstChild?.textContent || ""]))).map(squash).filter(Boolean));
+  for (const format of ["A4", "Letter"]) {
+    const file = join(shots, `print-tolerance-${format}.pdf`);
+    await page.pdf({ path: file, format, printBackground: true, preferCSSPageSize: true });
+    const text = execFileSync("pdftotext", ["-layout", file, "-"]).toString();
+    for (const expected of ["Tolerances and yield", "Worst case over the chain", "Margins against temperature",
+      "Monte Carlo yield", "Failures per margin and stage", "Distribution of each margin", digest]) {
+      assert.ok(text.includes(expected), `${format} PDF lacks "${expected}"`);
+    }
+    // Chart text is selectable only when the charts printed as SVG.
+    assert.ok(text.includes("temperature (°C)") && text.includes("of 2000 fail"), `${format}: charts as vector graphics`);
+    assert.ok(!text.includes("Run Monte Carlo"), "controls are not printed");
+    for (const [i, p] of text.split("\f").slice(0, -1).entries()) {
+      const last = squash(p.split("\n").filter((l) => l.trim()).at(-1) || "");
+      assert.ok(!headings.has(last), `${format} page ${i + 1} ends with the heading "${last}"`);
+    }
+    const pages = Number(/Pages:\s+(\d+)/.exec(execFileSync("pdfinfo", [file]).toString())?.[1]);
+    writeFileSync(join(shots, `print-tolerance-${format}.json`), JSON.stringify({ pages }));
+    execFileSync("pdftoppm", ["-png", "-r", "50", file, join(shots, `print-tolerance-${format}`)]);
+  }
   assert.deepEqual(problems, []);
   await context.close();
 });

@@ -6,6 +6,7 @@ mod bench;
 pub mod chain;
 pub mod plots;
 mod schematic;
+pub mod tolerance_plots;
 pub mod traces;
 
 use serde::Serialize;
@@ -17,7 +18,7 @@ use flipwright::stage::synthesis::{synthesise, SynthesisOutcome};
 use flipwright::stage::{FieldError, StageDesign};
 use flipwright::table::{component_table, to_csv, ComponentRow};
 use flipwright::tolerance::{
-    chain_worst_case, loaded_chain, margins_against_temperature, monte_carlo_yield, ChainShape,
+    chain_worst_case, loaded_chain, margins_against_temperature, monte_carlo_yield_with_progress, ChainShape,
     ChainWorstCase, LoadedChain, MonteCarloOptions, TemperatureSweep, ToleranceError, YieldReport,
 };
 use flipwright::tolerance::{synthesise_for_yield, YieldGoal, YieldSynthesis};
@@ -27,6 +28,7 @@ use flipwright::verify::{
 };
 
 use plots::{Panel, Pen, TimingDiagram, WaveformChart};
+use tolerance_plots::{HistogramChart, TemperatureChart};
 
 #[wasm_bindgen(start)]
 pub fn start() {
@@ -498,6 +500,8 @@ pub struct YieldView {
     /// (bin edges and counts of the tightest stage's value per trial), the most frequent
     /// failure, the seed (in `options`) and the run's digest.
     pub report: YieldReport,
+    /// The histograms again, in the form the drawing exports take back.
+    pub histograms: HistogramChart,
 }
 
 /// Margins against temperature as the page shows it.
@@ -507,6 +511,8 @@ pub struct TemperatureView {
     /// `temperatures_c`, and per margin the nominal and worst curves with the stage of each
     /// worst point.
     pub sweep: TemperatureSweep,
+    /// The curves again, in the form the drawing exports take back.
+    pub chart: TemperatureChart,
 }
 
 fn chain_worst_case_text(design_json: &str, chain_json: &str) -> Outcome<ChainWorstCaseView> {
@@ -544,7 +550,12 @@ fn yield_options(text: &str) -> Result<MonteCarloOptions, Vec<FieldError>> {
     Ok(options)
 }
 
-fn monte_carlo_text(design_json: &str, chain_json: &str, options_json: &str) -> Outcome<YieldView> {
+fn monte_carlo_text(
+    design_json: &str,
+    chain_json: &str,
+    options_json: &str,
+    progress: &mut dyn FnMut(u32, u32) -> bool,
+) -> Outcome<YieldView> {
     let options = match yield_options(options_json) {
         Ok(options) => options,
         Err(errors) => return Outcome::Invalid { errors },
@@ -553,8 +564,12 @@ fn monte_carlo_text(design_json: &str, chain_json: &str, options_json: &str) -> 
         Ok(pair) => pair,
         Err(outcome) => return reshape(outcome),
     };
-    match monte_carlo_yield(&chain, &options) {
-        Ok(report) => Outcome::Ok(YieldView { chain: description, report }),
+    match monte_carlo_yield_with_progress(&chain, &options, progress) {
+        Ok(report) => Outcome::Ok(YieldView {
+            chain: description,
+            histograms: HistogramChart::from_report(&report),
+            report,
+        }),
         Err(e) => tolerance_outcome(e),
     }
 }
@@ -565,7 +580,11 @@ fn temperature_text(design_json: &str, chain_json: &str, points: u32) -> Outcome
         Err(outcome) => return reshape(outcome),
     };
     match margins_against_temperature(&chain, points) {
-        Ok(sweep) => Outcome::Ok(TemperatureView { chain: description, sweep }),
+        Ok(sweep) => Outcome::Ok(TemperatureView {
+            chain: description,
+            chart: TemperatureChart::from_sweep(&sweep),
+            sweep,
+        }),
         Err(e) => tolerance_outcome(e),
     }
 }
@@ -584,13 +603,33 @@ pub fn chain_worst_case_design(design_json: &str, chain_json: &str) -> Result<Js
 /// "distribution": "uniform" | "normal", "confidence": 0.95, "histogram_bins": 24,
 /// "half_width": 0.01}` (empty text: all defaults). The same seed gives the same `digest`
 /// as the command line. 10 000 trials of ten stages take a few hundred milliseconds in wasm.
+/// `progress`, when given, is called with `{done_trials, trials}` before the first trial and
+/// every 5000 after (`tolerance::monte_carlo::PROGRESS_EVERY_TRIALS`); returning `false`
+/// cancels (status `failed`).
 #[wasm_bindgen]
 pub fn monte_carlo_yield_design(
     design_json: &str,
     chain_json: &str,
     options_json: &str,
+    progress: Option<js_sys::Function>,
 ) -> Result<JsValue, JsError> {
-    to_js(&monte_carlo_text(design_json, chain_json, options_json))
+    let mut report = |done_trials: u32, trials: u32| -> bool {
+        let Some(progress) = progress.as_ref() else { return true };
+        let step = TrialProgress { done_trials, trials };
+        let Ok(value) = to_js(&step) else { return true };
+        match progress.call1(&JsValue::NULL, &value) {
+            Ok(answer) => answer.as_bool() != Some(false),
+            Err(_) => false,
+        }
+    };
+    to_js(&monte_carlo_text(design_json, chain_json, options_json, &mut report))
+}
+
+/// What a Monte Carlo run's progress callback receives.
+#[derive(Serialize)]
+struct TrialProgress {
+    done_trials: u32,
+    trials: u32,
 }
 
 /// Every DC margin at `points` temperatures from t_min to t_max, nominal and worst over the
@@ -679,6 +718,46 @@ pub fn synthesise_for_yield_design(
         }
     };
     to_js(&yield_synthesis_text(design_json, goal_json, &mut report))
+}
+
+/// Draws the margins-against-temperature chart (`TemperatureView.chart`) on a canvas sized
+/// CSS size × `scale`. Main thread only.
+#[wasm_bindgen]
+pub fn draw_temperature_chart(
+    canvas: web_sys::HtmlCanvasElement,
+    chart: JsValue,
+    scale: f64,
+) -> Result<(), JsError> {
+    let chart: TemperatureChart = from_js(chart, "temperature chart")?;
+    let root = plotters::prelude::IntoDrawingArea::into_drawing_area(canvas_backend(canvas)?);
+    tolerance_plots::draw_temperature_chart(&root, &chart, scale).map_err(|e| JsError::new(&e))
+}
+
+/// The temperature chart as SVG text, for print.
+#[wasm_bindgen]
+pub fn temperature_chart_svg(chart: JsValue, width: u32, height: u32) -> Result<String, JsError> {
+    let chart: TemperatureChart = from_js(chart, "temperature chart")?;
+    tolerance_plots::temperature_chart_svg(&chart, width, height).map_err(|e| JsError::new(&e))
+}
+
+/// Draws a Monte Carlo run's histograms (`YieldView.histograms`) on a canvas sized CSS size ×
+/// `scale`. Main thread only.
+#[wasm_bindgen]
+pub fn draw_yield_histograms(
+    canvas: web_sys::HtmlCanvasElement,
+    chart: JsValue,
+    scale: f64,
+) -> Result<(), JsError> {
+    let chart: HistogramChart = from_js(chart, "histogram chart")?;
+    let root = plotters::prelude::IntoDrawingArea::into_drawing_area(canvas_backend(canvas)?);
+    tolerance_plots::draw_histograms(&root, &chart, scale).map_err(|e| JsError::new(&e))
+}
+
+/// The histograms as SVG text, for print.
+#[wasm_bindgen]
+pub fn yield_histograms_svg(chart: JsValue, width: u32, height: u32) -> Result<String, JsError> {
+    let chart: HistogramChart = from_js(chart, "histogram chart")?;
+    tolerance_plots::histograms_svg(&chart, width, height).map_err(|e| JsError::new(&e))
 }
 
 /// The bridge's version, shown in the page footer and printout.
@@ -829,23 +908,33 @@ mod tests {
     fn tolerance_exports_answer_ok_invalid_and_failed_without_panicking() {
         let design = demo_with_values();
         let chain = r#"{"kind": "stages", "stages": 3}"#;
-        let Outcome::Ok(view) = monte_carlo_text(&design, chain, r#"{"trials": 200, "seed": 5}"#) else {
+        let Outcome::Ok(view) =
+            monte_carlo_text(&design, chain, r#"{"trials": 200, "seed": 5}"#, &mut |_, _| true)
+        else {
             unreachable!("the demo runs")
         };
         assert_eq!(view.report.options.seed, 5);
         assert_eq!(view.report.digest.len(), 16);
-        let Outcome::Invalid { errors } = monte_carlo_text(&design, chain, r#"{"trials": 0}"#) else {
+        let Outcome::Invalid { errors } =
+            monte_carlo_text(&design, chain, r#"{"trials": 0}"#, &mut |_, _| true)
+        else {
             unreachable!("zero trials is refused")
         };
         assert_eq!(errors.first().map(|e| e.path.as_str()), Some("options.trials"));
-        let Outcome::Invalid { errors } = monte_carlo_text(&design, chain, r#"{"seed": 9007199254740992}"#)
+        let Outcome::Invalid { errors } =
+            monte_carlo_text(&design, chain, r#"{"seed": 9007199254740992}"#, &mut |_, _| true)
         else {
             unreachable!("a seed the page cannot hold is refused")
         };
         assert_eq!(errors.first().map(|e| e.path.as_str()), Some("options.seed"));
-        assert!(matches!(monte_carlo_text(&design, "{}", ""), Outcome::Invalid { .. }));
+        assert!(matches!(monte_carlo_text(&design, "{}", "", &mut |_, _| true), Outcome::Invalid { .. }));
         let Outcome::Ok(sweep) = temperature_text(&design, chain, 5) else { unreachable!("sweep") };
         assert_eq!(sweep.sweep.temperatures_c.len(), 5);
+        assert_eq!(sweep.chart.panels.len(), sweep.sweep.margins.len());
+        assert!(sweep.chart.panels.iter().all(|p| p.nominal.len() == 5 && p.worst.len() == 5));
+        let binned: u32 =
+            view.histograms.panels.iter().map(|p| p.counts.iter().sum::<u32>()).max().unwrap_or(0);
+        assert!(binned <= 200 && binned > 0, "at most one count per trial per margin: {binned}");
         assert!(matches!(temperature_text(&design, chain, 1), Outcome::Invalid { .. }));
         let Outcome::Ok(worst) = chain_worst_case_text(&design, chain) else { unreachable!("worst case") };
         assert_eq!(worst.worst_case.stage_count, 3);

@@ -47,13 +47,13 @@ pub struct TimingDiagram {
     pub logic: bool,
 }
 
-const INK: RGBColor = RGBColor(0x1b, 0x1b, 0x1b);
-const MUTED: RGBColor = RGBColor(0x5a, 0x5a, 0x5a);
-const GRID: RGBColor = RGBColor(0xe2, 0xe5, 0xe8);
+pub(crate) const INK: RGBColor = RGBColor(0x1b, 0x1b, 0x1b);
+pub(crate) const MUTED: RGBColor = RGBColor(0x5a, 0x5a, 0x5a);
+pub(crate) const GRID: RGBColor = RGBColor(0xe2, 0xe5, 0xe8);
 const EDGE_MARK: RGBColor = RGBColor(0xc9, 0xcf, 0xd6);
-const FAIL: RGBColor = RGBColor(0xa3, 0x15, 0x15);
+pub(crate) const FAIL: RGBColor = RGBColor(0xa3, 0x15, 0x15);
 
-fn pen_colour(pen: Pen) -> RGBColor {
+pub(crate) fn pen_colour(pen: Pen) -> RGBColor {
     match pen {
         Pen::Input => RGBColor(0x4a, 0x4a, 0x4a),
         Pen::First => RGBColor(0x0b, 0x53, 0x94),
@@ -65,29 +65,29 @@ fn pen_colour(pen: Pen) -> RGBColor {
 /// resolution with the same layout. `font_scale` also corrects plotters' SVG backend, which
 /// writes every font 1.24 times smaller than asked.
 #[derive(Clone, Copy)]
-struct Metrics {
+pub(crate) struct Metrics {
     scale: f64,
     font_scale: f64,
 }
 
 /// plotters' SVG backend divides font sizes by this.
-const SVG_FONT_SHRINK: f64 = 1.24;
+pub(crate) const SVG_FONT_SHRINK: f64 = 1.24;
 
 impl Metrics {
-    fn new(scale: f64, font_factor: f64) -> Metrics {
+    pub(crate) fn new(scale: f64, font_factor: f64) -> Metrics {
         let scale = if scale.is_finite() { scale.clamp(0.5, 4.0) } else { 1.0 };
         Metrics { scale, font_scale: scale * font_factor }
     }
-    fn px(self, css: f64) -> i32 {
+    pub(crate) fn px(self, css: f64) -> i32 {
         (css * self.scale).round() as i32
     }
-    fn font(self, css: f64) -> FontDesc<'static> {
+    pub(crate) fn font(self, css: f64) -> FontDesc<'static> {
         FontDesc::new(FontFamily::SansSerif, css * self.font_scale, FontStyle::Normal)
     }
-    fn bold(self, css: f64) -> FontDesc<'static> {
+    pub(crate) fn bold(self, css: f64) -> FontDesc<'static> {
         FontDesc::new(FontFamily::SansSerif, css * self.font_scale, FontStyle::Bold)
     }
-    fn stroke(self, css: f64) -> u32 {
+    pub(crate) fn stroke(self, css: f64) -> u32 {
         (css * self.scale).round().max(1.0) as u32
     }
 }
@@ -105,7 +105,7 @@ fn time_unit(span_s: f64) -> (f64, &'static str) {
     }
 }
 
-fn fail<E: std::fmt::Display>(error: E) -> String {
+pub(crate) fn fail<E: std::fmt::Display>(error: E) -> String {
     format!("cannot draw the chart: {error}")
 }
 
@@ -168,7 +168,7 @@ fn without_flat_interiors(points: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
 }
 
 /// Tick labels with as few digits as a tick spacing of `step` needs.
-fn tick_label(value: f64, step: f64) -> String {
+pub(crate) fn tick_label(value: f64, step: f64) -> String {
     let digits = if step >= 1.0 {
         0
     } else if step >= 0.1 {

@@ -22,7 +22,9 @@ pub use self::chain::{
     chain_worst_case, loaded_chain, ChainMarginWorst, ChainShape, ChainWorstCase, LoadedChain,
 };
 pub use self::kernel::{Capacitors, DcMargins, MarginKernel, ThermalPoint};
-pub use self::monte_carlo::{monte_carlo_yield, MonteCarloOptions, YieldReport};
+pub use self::monte_carlo::{
+    monte_carlo_yield, monte_carlo_yield_with_progress, MonteCarloOptions, YieldReport,
+};
 pub use self::temperature::{margins_against_temperature, TemperatureSweep};
 pub use self::yield_synthesis::{synthesise_for_yield, YieldGoal, YieldSynthesis};
 
@@ -59,6 +61,8 @@ pub enum ToleranceError {
     StageAnalysis { stage: u32, reason: String },
     /// Occurs when synthesis fails while aiming at a yield.
     Synthesis { reason: String },
+    /// Occurs when a run's progress callback asked it to stop.
+    Cancelled { done_trials: u32 },
 }
 
 impl std::fmt::Display for ToleranceError {
@@ -72,6 +76,7 @@ impl std::fmt::Display for ToleranceError {
                 write!(f, "stage {}: the worst case cannot be computed: {reason}", stage + 1)
             }
             ToleranceError::Synthesis { reason } => write!(f, "synthesis for a yield target: {reason}"),
+            ToleranceError::Cancelled { done_trials } => write!(f, "cancelled after {done_trials} trials"),
         }
     }
 }

@@ -236,11 +236,26 @@ fn draw_stage(
     (corner, capacitors)
 }
 
+/// How often a run reports its progress: before every this many trials.
+pub const PROGRESS_EVERY_TRIALS: u32 = 5000;
+
 /// The raw run: every trial's margins, passed to `visit(trial, stage, margins)`.
 pub fn run_trials(
     chain: &LoadedChain,
     options: &MonteCarloOptions,
+    visit: impl FnMut(u32, u32, &DcMargins),
+) -> Result<(), ToleranceError> {
+    run_trials_with_progress(chain, options, visit, &mut |_, _| true)
+}
+
+/// [`run_trials`], calling `progress(done_trials, trials)` before the first trial and every
+/// [`PROGRESS_EVERY_TRIALS`] after; an answer of `false` stops the run with
+/// [`ToleranceError::Cancelled`]. The draws do not depend on it: a seed gives the same trials.
+pub fn run_trials_with_progress(
+    chain: &LoadedChain,
+    options: &MonteCarloOptions,
     mut visit: impl FnMut(u32, u32, &DcMargins),
+    progress: &mut dyn FnMut(u32, u32) -> bool,
 ) -> Result<(), ToleranceError> {
     options.validate()?;
     let Some(first) = chain.distinct.first() else {
@@ -255,6 +270,9 @@ pub fn run_trials(
     let distribution = options.distribution;
     let mut sampler = Sampler::new(options.seed);
     for trial in 0..options.trials {
+        if trial % PROGRESS_EVERY_TRIALS == 0 && !progress(trial, options.trials) {
+            return Err(ToleranceError::Cancelled { done_trials: trial });
+        }
         let temperature_c = conditions.t_min_c + (conditions.t_max_c - conditions.t_min_c) * sampler.unit();
         let collector_supply_factor = sampler.toleranced(1.0, supply_tolerance, distribution);
         let bias_supply_factor =
@@ -277,6 +295,15 @@ pub fn monte_carlo_yield(
     chain: &LoadedChain,
     options: &MonteCarloOptions,
 ) -> Result<YieldReport, ToleranceError> {
+    monte_carlo_yield_with_progress(chain, options, &mut |_, _| true)
+}
+
+/// [`monte_carlo_yield`] with progress and cancel, as in [`run_trials_with_progress`].
+pub fn monte_carlo_yield_with_progress(
+    chain: &LoadedChain,
+    options: &MonteCarloOptions,
+    progress: &mut dyn FnMut(u32, u32) -> bool,
+) -> Result<YieldReport, ToleranceError> {
     options.validate()?;
     let Some(first) = chain.distinct.first() else {
         return Err(ToleranceError::InvalidChain { reason: "the chain has no stage".to_string() });
@@ -288,25 +315,30 @@ pub fn monte_carlo_yield(
     let mut failed_kind = vec![[false; MARGIN_COUNT]; trials];
     let mut failures_per_stage = vec![[0u32; MARGIN_COUNT]; stages];
     let mut digest = Fnv1a::new();
-    run_trials(chain, options, |trial, stage, margins| {
-        let (Some(tight), Some(failed), Some(per_stage)) = (
-            tightest.get_mut(trial as usize),
-            failed_kind.get_mut(trial as usize),
-            failures_per_stage.get_mut(stage as usize),
-        ) else {
-            return;
-        };
-        for (k, &value) in margins.iter().enumerate() {
-            digest.f64(value);
-            // NaN stays NaN in the tightest value: it fails, and shows as not finite.
-            tight[k] = if value.is_nan() { value } else { tight[k].min(value) };
-            let passes = required.get(k).is_some_and(|&r| value >= r && value.is_finite());
-            if !passes {
-                failed[k] = true;
-                per_stage[k] += 1;
+    run_trials_with_progress(
+        chain,
+        options,
+        |trial, stage, margins| {
+            let (Some(tight), Some(failed), Some(per_stage)) = (
+                tightest.get_mut(trial as usize),
+                failed_kind.get_mut(trial as usize),
+                failures_per_stage.get_mut(stage as usize),
+            ) else {
+                return;
+            };
+            for (k, &value) in margins.iter().enumerate() {
+                digest.f64(value);
+                // NaN stays NaN in the tightest value: it fails, and shows as not finite.
+                tight[k] = if value.is_nan() { value } else { tight[k].min(value) };
+                let passes = required.get(k).is_some_and(|&r| value >= r && value.is_finite());
+                if !passes {
+                    failed[k] = true;
+                    per_stage[k] += 1;
+                }
             }
-        }
-    })?;
+        },
+        progress,
+    )?;
     let passed = failed_kind.iter().filter(|f| !f.iter().any(|&x| x)).count() as u32;
     let n = u64::from(options.trials);
     let yield_fraction = f64::from(passed) / f64::from(options.trials);
@@ -384,4 +416,29 @@ pub fn monte_carlo_yield(
         digest: format!("{:016x}", digest.finish()),
         notes,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::tolerance::test_designs;
+
+    #[test]
+    fn progress_sees_every_block_leaves_the_digest_alone_and_can_cancel() {
+        let chain = LoadedChain::uniform(&test_designs::demo(), 2).unwrap_or_else(|e| unreachable!("{e}"));
+        let options =
+            MonteCarloOptions { trials: 2 * PROGRESS_EVERY_TRIALS + 1, seed: 3, ..Default::default() };
+        let plain = monte_carlo_yield(&chain, &options).unwrap_or_else(|e| unreachable!("{e}"));
+        let mut calls = Vec::new();
+        let watched = monte_carlo_yield_with_progress(&chain, &options, &mut |done, total| {
+            calls.push((done, total));
+            true
+        })
+        .unwrap_or_else(|e| unreachable!("{e}"));
+        assert_eq!(watched.digest, plain.digest, "progress does not change the draws");
+        let total = options.trials;
+        assert_eq!(calls, [(0, total), (PROGRESS_EVERY_TRIALS, total), (2 * PROGRESS_EVERY_TRIALS, total)]);
+        let stopped = monte_carlo_yield_with_progress(&chain, &options, &mut |done, _| done == 0);
+        assert_eq!(stopped, Err(ToleranceError::Cancelled { done_trials: PROGRESS_EVERY_TRIALS }));
+    }
 }
