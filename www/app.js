@@ -1291,6 +1291,101 @@ function renderYield() {
   markToleranceStale();
 }
 
+// ---- values chosen for a yield ----
+let aimRun = null;          // { view, designJson } of the last yield-aimed synthesis
+let aimLane = null;
+
+function aimStatus(text, kind) {
+  const box = $("aim-status");
+  box.textContent = text;
+  box.className = "status" + (kind ? " " + kind : "");
+}
+
+async function runAim() {
+  const design = designForSimulation();
+  const chain = lastView && toleranceChain(lastView);
+  if (!design || !chain) { aimStatus("There is no valid design and chain to aim at yet.", "error"); return; }
+  const options = yieldOptions();
+  yieldFieldError("aim-yield", "");
+  const text = $("aim-yield").value.trim();
+  const percentAsked = Number(text);
+  if (!/^\d+(\.\d+)?$/.test(text) || !(percentAsked > 0 && percentAsked < 100)) {
+    yieldFieldError("aim-yield", "must be a percentage above 0 and below 100, such as 99 or 99.9");
+  }
+  if (!options || $("aim-yield-row").classList.contains("invalid")) { aimStatus("Correct the marked entries to run.", "error"); return; }
+  const goal = { min_yield: percentAsked / 100, confidence: options.confidence, shape: chain, trials: options.trials, seed: options.seed, distribution: options.distribution };
+  aimStatus("");
+  $("aim-run").disabled = true;
+  $("aim-progress").hidden = false;
+  $("aim-bar").removeAttribute("value");
+  $("aim-phase").textContent = "synthesis and Monte Carlo of the first design aim…";
+  document.body.dataset.aim = "busy";
+  const onProgress = (step) => {
+    $("aim-bar").max = step.candidates;
+    $("aim-bar").value = step.done_candidates;
+    $("aim-phase").textContent = `${step.done_candidates} of at most ${step.candidates} design aims tried`;
+  };
+  let outcome;
+  try {
+    outcome = await aimLane.run("synthesise_for_yield_design", { design, goal: JSON.stringify(goal) }, onProgress);
+  } catch (error) {
+    document.body.dataset.aim = error.cancelled ? "cancelled" : "failed";
+    aimStatus(error.cancelled ? "Cancelled; the design is unchanged." : "The run failed: " + error.message + (error.crashed ? ". Its worker was replaced; try again." : ""), error.cancelled ? "" : "error");
+    return;
+  } finally {
+    $("aim-run").disabled = false;
+    $("aim-progress").hidden = true;
+  }
+  if (outcome.status === "invalid") {
+    const ids = { "options.min_yield": "aim-yield", "options.trials": "yield-trials", "options.seed": "yield-seed" };
+    const rest = [];
+    for (const e of outcome.errors) {
+      if (ids[e.path]) yieldFieldError(ids[e.path], e.message); else rest.push(`${e.path}: ${e.message}`);
+    }
+    aimStatus(rest.length ? "The run could not start: " + rest.join("; ") : "Correct the marked entries to run.", "error");
+    document.body.dataset.aim = "invalid";
+    return;
+  }
+  if (outcome.status !== "ok") { aimStatus("The run failed: " + outcomeProblem(outcome), "error"); document.body.dataset.aim = "failed"; return; }
+  aimRun = { view: outcome, designJson: design };
+  renderAim();
+  document.body.dataset.aim = outcome.result.met ? "met" : "not-met";
+}
+
+function renderAim() {
+  const r = aimRun.view.result;
+  $("aim-result").hidden = false;
+  const verdict = $("aim-verdict");
+  verdict.className = "verdict " + (r.met ? "pass" : "fail");
+  verdict.textContent = r.met
+    ? `Reached: at least ${percent(r.goal.min_yield)} of builds pass with ${percent(r.goal.confidence, 1)} confidence (${r.candidates[r.chosen].change}; ${r.trials} trials, seed ${r.goal.seed}, digest ${r.report.digest}).`
+    : `NOT reached: no design aim tried shows ${percent(r.goal.min_yield)} at ${percent(r.goal.confidence, 1)} confidence; the best is offered below.`;
+  table($("aim-candidates"), ["Design aims", "Builds passing", "Yield", "Lower bound", "Worst case", "Goal"],
+    r.candidates.map((c, k) => [
+      { text: c.change + (k === r.chosen ? " — chosen" : ""), className: k === r.chosen ? "strong" : "" },
+      { text: c.problem ? "—" : `${c.passed} / ${c.trials}`, className: "num" },
+      { text: c.problem ? "—" : percent(c.yield_fraction), className: "num" },
+      { text: c.problem ? "—" : percent(c.lower_bound), className: "num" },
+      c.problem ? { text: c.problem, className: "fail" } : (c.worst_case_met ? "every margin met" : "some margin fails"),
+      { text: c.reaches_goal ? "reached" : "short", className: c.reaches_goal ? "pass" : "fail" },
+    ]));
+  const list = $("aim-explanation");
+  list.textContent = "";
+  for (const line of r.explanation) { const li = document.createElement("li"); li.textContent = line; list.appendChild(li); }
+  $("aim-use").textContent = r.met ? "Use this design" : "Use the best design found";
+}
+
+async function useAimedDesign() {
+  if (!aimRun) return;
+  current = JSON.parse(aimRun.view.analysis.design_json);
+  // With values chosen automatically the same synthesis at the new aims gives these values.
+  if ($("auto-values").checked) current.values = null;
+  showInForm(current);
+  syncValueLock();
+  banner("The design now uses the aims and values chosen for the yield; run the Monte Carlo to see its histograms.");
+  await compute();
+}
+
 function markToleranceStale() {
   const design = designForSimulation();
   $("yield-stale").hidden = !(yieldRun && yieldRun.designJson !== design);
@@ -1308,6 +1403,11 @@ function initTolerance() {
   overviewLane = workerLane({ onCrash: crashed, onUnavailable: unavailable, replaceRunning: true });
   yieldLane = workerLane({ onCrash: crashed, onUnavailable: unavailable, replaceRunning: true });
   $("yield-run").addEventListener("click", runYield);
+  aimLane = workerLane({ onCrash: crashed, onUnavailable: unavailable, replaceRunning: true });
+  $("aim-run").addEventListener("click", runAim);
+  $("aim-cancel").addEventListener("click", () => aimLane.cancel());
+  $("aim-use").addEventListener("click", useAimedDesign);
+  $("aim-yield").addEventListener("input", () => yieldFieldError("aim-yield", ""));
   $("yield-cancel").addEventListener("click", () => yieldLane.cancel());
   for (const id of ["yield-trials", "yield-seed"]) $(id).addEventListener("input", () => yieldFieldError(id, ""));
 }
@@ -1385,6 +1485,7 @@ window.flipwright = {
   get current() { return current; },
   get tolerance() { return toleranceShown; },
   get yieldRun() { return yieldRun; },
+  get aimRun() { return aimRun; },
   // A job in the Monte Carlo lane (the recovery test runs force_panic there).
   yieldLaneJob: (name, args) => yieldLane.run(name, args || {}),
   // The design the results show, with its values (for the benchmark's native comparison).

@@ -20,6 +20,9 @@ const JOBS = {
     worst_case: exported("chain_worst_case_design")(args.design, args.chain),
     temperature: exported("margins_against_temperature_design")(args.design, args.chain, args.points),
   }),
+  // Progress as {done_candidates, candidates}: the export reports two numbers.
+  synthesise_for_yield_design: (args, progress) => exported("synthesise_for_yield_design")(
+    args.design, args.goal, (done, total) => progress({ done_candidates: done, candidates: total })),
   monte_carlo_yield_design: (args, progress) => exported("monte_carlo_yield_design")(args.design, args.chain, args.options, progress),
   // Exists only in the test-hooks build: a panic inside the worker, for the recovery test.
   force_panic: () => exported("force_panic")(),

@@ -703,3 +703,50 @@ test("printing the tolerance section on A4 and Letter keeps headings with their 
   assert.deepEqual(problems, []);
   await context.close();
 });
+
+test("values chosen for a yield: the plain synthesis falls short, a raised aim reaches it, and a Monte Carlo of the design used confirms it", async () => {
+  const { page, problems, context } = await open();
+  // Wide tolerances (±10 % resistors and rails, −40 … 85 °C, minimum overdrive 1.5) on a
+  // four-stage chain: the worst case cannot pass; the yield says how many builds work.
+  for (const [path, value] of [["supplies.tolerance", "0.1"], ["conditions.resistor_tolerance", "0.1"],
+    ["conditions.t_min_c", "-40"], ["conditions.t_max_c", "85"], ["requirements.min_overdrive", "1.5"]]) {
+    await setField(page, path, value);
+  }
+  await planFor(page, 16);
+  await waitTolerance(page, { chainKind: "divide" });
+  // A goal sampling cannot show is refused at its field.
+  await page.fill("#aim-yield", "100");
+  await page.click("#aim-run");
+  await page.waitForSelector("#aim-yield-row.invalid .error");
+  await page.fill("#aim-yield", "99");
+  await page.fill("#yield-trials", "4000");
+  await page.fill("#yield-seed", "5");
+  await page.click("#aim-run");
+  await page.waitForFunction(() => ["met", "not-met", "failed", "invalid"].includes(document.body.dataset.aim), null, { timeout: 180000 });
+  assert.equal(await page.getAttribute("body", "data-aim"), "met", await page.textContent("#aim-status"));
+  const result = await page.evaluate(() => window.flipwright.aimRun.view.result);
+  assert.equal(result.candidates[0].change, "the requirements as given");
+  assert.ok(result.candidates[0].lower_bound < 0.99, `the plain synthesis already reaches 99 %: ${result.candidates[0].lower_bound}`);
+  const chosen = result.candidates[result.chosen];
+  assert.ok(chosen.reaches_goal && chosen.lower_bound >= 0.99);
+  // The one-sided bound at 95 % is the two-sided interval's lower end at z = 1.644854 (normal table).
+  const [low] = wilson(chosen.passed, chosen.trials, 1.644854);
+  assert.ok(Math.abs(low - chosen.lower_bound) < 1e-9, `${low} against ${chosen.lower_bound}`);
+  const rows = await page.$$eval("#aim-candidates tbody tr", (trs) => trs.length);
+  assert.equal(rows, result.candidates.length);
+  await page.screenshot({ path: join(shots, "aim-yield.png"), fullPage: true });
+  // Use it: the form takes the chosen aims, the page re-synthesises to the same values, and
+  // the Monte Carlo of the design now shown (same trials and seed) passes the same builds.
+  await page.click("#aim-use");
+  await page.waitForFunction((t) => Number(window.flipwright.current.requirements.target_overdrive) === t, chosen.target_overdrive, { timeout: 30000 });
+  await waitCompute(page);
+  await waitTolerance(page, { chainKind: "divide" });
+  assert.equal(Number(await page.inputValue("#f-requirements-target_overdrive")), chosen.target_overdrive);
+  assert.equal(await runYield(page, { trials: 4000, seed: 5 }), "ready");
+  const run = await page.evaluate(() => window.flipwright.yieldRun.view.report);
+  assert.equal(run.passed, chosen.passed);
+  assert.equal(run.digest, result.report.digest);
+  assert.ok(run.lower_bound >= 0.99);
+  assert.deepEqual(problems, []);
+  await context.close();
+});
