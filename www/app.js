@@ -1373,6 +1373,7 @@ function renderAim() {
   list.textContent = "";
   for (const line of r.explanation) { const li = document.createElement("li"); li.textContent = line; list.appendChild(li); }
   $("aim-use").textContent = r.met ? "Use this design" : "Use the best design found";
+  $("tolerance").classList.add("has-aim");
 }
 
 async function useAimedDesign() {
