@@ -20,7 +20,7 @@ cargo xtask <command>
           under Node, on the same seeds
   bench   run the benchmarks (core, release build; the chain in wasm under Node; the page
           in Chromium) and print medians
-  wasm-bench  only the chain benchmark in wasm under Node (compare with
+  wasm-bench [quick] [stage-only]  only the chain benchmark in wasm under Node (compare with
           `cargo bench -p flipwright-core --bench chain`)
   browser-test  build the page and run only the browser tests
   page    build the offline page out/flipwright.html and open it in a browser
@@ -517,11 +517,12 @@ fn build_wasm_bench() -> Result<PathBuf, String> {
 
 /// The chain benchmark in wasm under Node (`tests/browser/wasm-bench.mjs`); the native
 /// figures come from `cargo bench -p flipwright-core --bench chain`.
-fn wasm_bench() -> Result<(), String> {
+fn wasm_bench(options: &[String]) -> Result<(), String> {
     let glue = build_wasm_bench()?;
-    eprintln!("$ node tests/browser/wasm-bench.mjs");
+    eprintln!("$ node tests/browser/wasm-bench.mjs {}", options.join(" "));
     let status = Command::new("node")
         .arg("wasm-bench.mjs")
+        .args(options)
         .current_dir(root().join("tests/browser"))
         .env("FLIPWRIGHT_WASM_BENCH", &glue)
         .status()
@@ -535,7 +536,7 @@ fn wasm_bench() -> Result<(), String> {
 
 fn bench() -> Result<(), String> {
     run("cargo", &["bench", "-p", "flipwright-core"])?;
-    wasm_bench()?;
+    wasm_bench(&[])?;
     // The page bench compares the browser's verification with the native CLI's.
     run("cargo", &["build", "--release", "--quiet", "-p", "flipwright-cli"])?;
     ensure_browser()?;
@@ -564,7 +565,7 @@ fn main() -> ExitCode {
         Some("long-chains") => long_chain_check(),
         Some("wasm-digest") => wasm_digest_check(),
         Some("bench") => bench(),
-        Some("wasm-bench") => wasm_bench(),
+        Some("wasm-bench") => wasm_bench(args.get(1..).unwrap_or(&[])),
         Some("page") => page(),
         Some("browser-test") => browser_tests(),
         Some("help") | None => {

@@ -17,13 +17,17 @@ pub fn depletion_charge(voltage_v: f64, zero_bias_f: f64, potential_v: f64, grad
     let m = grading;
     let phi = potential_v;
     let knee_v = fc * phi;
+    // One power per call: x^(1 − m) = x·x^(−m) and (1 − fc)^(1 + m) = (1 − fc)/(1 − fc)^(−m)
+    // (a power is the costliest operation of a junction on wasm32).
     if voltage_v < knee_v {
         let x = 1.0 - voltage_v / phi;
-        let charge = zero_bias_f * phi / (1.0 - m) * (1.0 - x.powf(1.0 - m));
-        (charge, zero_bias_f * x.powf(-m))
+        let inverse = x.powf(-m);
+        let charge = zero_bias_f * phi / (1.0 - m) * (1.0 - x * inverse);
+        (charge, zero_bias_f * inverse)
     } else {
-        let knee_charge = zero_bias_f * phi / (1.0 - m) * (1.0 - (1.0 - fc).powf(1.0 - m));
-        let scale = zero_bias_f / (1.0 - fc).powf(1.0 + m);
+        let inverse = (1.0 - fc).powf(-m);
+        let knee_charge = zero_bias_f * phi / (1.0 - m) * (1.0 - (1.0 - fc) * inverse);
+        let scale = zero_bias_f * inverse / (1.0 - fc);
         let dv = voltage_v - knee_v;
         let charge = knee_charge
             + scale * ((1.0 - fc * (1.0 + m)) * dv + m / (2.0 * phi) * (voltage_v.powi(2) - knee_v.powi(2)));

@@ -8,7 +8,7 @@ use faer::sparse::linalg::{LuError, SupernodalThreshold};
 use faer::sparse::{SparseColMatRef, SymbolicSparseColMatRef};
 use faer::{Conj, MatMut, Par};
 
-use crate::numeric::DenseMatrix;
+use crate::numeric::{larger, DenseMatrix};
 
 /// Occurs when factorisation finds no usable pivot in `column` (an unknown's index).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -328,7 +328,8 @@ impl SparseSolver {
         })?;
         // Partial pivoting takes the largest candidate even when it is zero: check each pivot
         // (the last entry of each column of U) the way the dense elimination does.
-        let scale = self.pattern.values.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
+        let scale =
+            larger(self.pattern.values.iter().fold(0.0f64, |m, v| larger(m, v.abs())), f64::MIN_POSITIVE);
         let u = numeric.lu.u_factor_unsorted();
         for column in 0..size {
             let pivot = u.val_of_col(column).last().copied().unwrap_or(0.0).abs();
@@ -391,7 +392,8 @@ impl LinearSolver for SparseSolver {
             self.frozen = None;
             self.analyse()?;
         }
-        let scale = self.pattern.values.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
+        let scale =
+            larger(self.pattern.values.iter().fold(0.0f64, |m, v| larger(m, v.abs())), f64::MIN_POSITIVE);
         let refactored = match self.frozen.as_mut() {
             Some(frozen) => {
                 let done = frozen.refactor(&self.pattern, scale).is_ok();
@@ -609,7 +611,7 @@ impl FrozenFactors {
             let pivot = work[j];
             work[j] = 0.0;
             let column = l_starts[j]..l_starts[j + 1];
-            let largest = l_rows[column.clone()].iter().fold(0.0f64, |m, &i| m.max(work[i].abs()));
+            let largest = l_rows[column.clone()].iter().fold(0.0f64, |m, &i| larger(m, work[i].abs()));
             let magnitude = pivot.abs();
             let acceptable = magnitude > scale * ZERO_PIVOT_SHARE
                 && magnitude >= FROZEN_PIVOT_SHARE * largest

@@ -9,6 +9,7 @@ use super::error::SimulationError;
 use super::linear::LinearSolver;
 use super::waveform::Waveform;
 use crate::device::ebers_moll::EbersMoll;
+use crate::numeric::larger;
 use crate::physics::thermal_voltage;
 
 /// Device series resistances below this are treated as none: an internal node behind a
@@ -615,7 +616,7 @@ impl System {
             worst = (0, 0.0);
             for (index, (&new, &old)) in next.iter().zip(&unknowns).enumerate() {
                 let absolute = if index < node_count { tolerances.voltage_v } else { tolerances.current_a };
-                let allowed = tolerances.relative * new.abs().max(old.abs()) + absolute;
+                let allowed = tolerances.relative * larger(old.abs(), new.abs()) + absolute;
                 let ratio = (new - old).abs() / allowed;
                 if !(ratio <= worst_ratio) {
                     worst_ratio = ratio;
