@@ -184,16 +184,10 @@ fn render(view: &ChainView) -> String {
         }
         if method.method.kind() == MethodKind::ResetOnCount {
             if let Some(reset) = &view.reset {
-                let v = &reset.values;
                 let _ = writeln!(
                     out,
-                    "  reset network (driver transistor): pull-up {}, driver base divider {} / {}, hold capacitor {}, emitter resistor {}, series resistors {}; reset pulse {} (closed form); race {} ({})",
-                    format_quantity(v.pull_up_ohm, Unit::Ohm),
-                    format_quantity(v.divider_upper_ohm, Unit::Ohm),
-                    format_quantity(v.divider_lower_ohm, Unit::Ohm),
-                    format_quantity(v.hold_capacitor_f, Unit::Farad),
-                    format_quantity(v.emitter_resistor_ohm, Unit::Ohm),
-                    format_quantity(v.series_resistor_ohm, Unit::Ohm),
+                    "  reset network (driver transistor): {}; reset pulse {} (closed form); race {} ({})",
+                    crate::report::reset_values(&reset.values),
                     format_quantity(reset.pulse_width_s, Unit::Second),
                     if reset.race.won { "won" } else { "LOST" },
                     reset.race.condition

@@ -272,3 +272,17 @@ pub fn devices() -> String {
     }
     out
 }
+
+/// The driven reset network's chosen values in one phrase, as `chain` and `simulate --divide`
+/// both print them.
+pub fn reset_values(values: &flipwright::chain::reset_driver::DriverValues) -> String {
+    format!(
+        "pull-up {}, driver base divider {} / {}, hold capacitor {}, emitter resistor {}, series resistors {}",
+        q(values.pull_up_ohm, Unit::Ohm),
+        q(values.divider_upper_ohm, Unit::Ohm),
+        q(values.divider_lower_ohm, Unit::Ohm),
+        q(values.hold_capacitor_f, Unit::Farad),
+        q(values.emitter_resistor_ohm, Unit::Ohm),
+        q(values.series_resistor_ohm, Unit::Ohm)
+    )
+}

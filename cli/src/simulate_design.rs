@@ -334,16 +334,10 @@ fn stage_list(stages: &[u32]) -> String {
 /// The per-corner count checks and, for a reset plan, the reset network and its pulses.
 fn render_planned(out: &mut String, verification: &verify::PlannedChainVerification) {
     if let Some(reset) = &verification.reset {
-        let v = &reset.values;
         let _ = writeln!(
             out,
-            "Reset network (planner): pull-up {}, driver base divider {} / {}, hold capacitor {}, emitter resistor {}, series resistors {}; driver current {}, gate sink {:.0} % of a stage's collector current.",
-            format_quantity(v.pull_up_ohm, Unit::Ohm),
-            format_quantity(v.divider_upper_ohm, Unit::Ohm),
-            format_quantity(v.divider_lower_ohm, Unit::Ohm),
-            format_quantity(v.hold_capacitor_f, Unit::Farad),
-            format_quantity(v.emitter_resistor_ohm, Unit::Ohm),
-            format_quantity(v.series_resistor_ohm, Unit::Ohm),
+            "Reset network (planner): {}; driver current {}, gate sink {:.0} % of a stage's collector current.",
+            crate::report::reset_values(&reset.values),
             format_quantity(reset.driver_current_a, Unit::Ampere),
             100.0 * reset.gate_sink_share
         );
