@@ -580,7 +580,7 @@ function renderPlan(outcome) {
       { text: String(m.extra_parts), className: "num" },
       { text: `${(100 * m.output.duty_cycle).toFixed(1)} %`, className: "num", sub: `high ${m.output.high_counts} of ${plan.divide_by}` },
       m.natural_binary ? "yes" : "no",
-      { text: m.timing ? si(m.timing.max_input_rate_hz, "Hz") : "—", className: "num" + (m.timing && !m.timing.meets_input_rate ? " fail" : ""), sub: m.timing ? (m.timing.meets_input_rate ? "meets the input rate" : "TOO SLOW for the input rate") : (m.timing_problem || "") },
+      { text: m.timing ? si(m.timing.max_input_rate_hz, "Hz") : "—", className: "num" + (m.timing && !m.timing.meets_input_rate ? " fail" : ""), sub: m.timing ? (m.timing.meets_input_rate ? "meets the input rate" : "TOO SLOW for the input rate") + " · limited by " + m.timing.limited_by : (m.timing_problem || "") },
       m.start_up.unused_states === 0 ? "no unused states" : (m.start_up.every_state_enters_cycle ? `${m.start_up.unused_states} unused, join within ${m.start_up.most_pulses_to_enter} pulse(s)` : { text: "LOCK-OUT possible", className: "fail" }),
     ]));
   const reasons = $("plan-reasons");
@@ -601,7 +601,9 @@ function renderPlan(outcome) {
     [`Ripple delay n·tpd (n = ${n})`, { text: si(t.ripple_delay_s, "s"), className: "num" }],
     ["f(max) = 1/(n·tpd)", { text: si(t.settling_max_input_rate_hz, "Hz"), className: "num" }],
     ["Correction after the ripple", { text: t.correction_s == null ? "none" : si(t.correction_s, "s"), className: "num" }],
-    ["Worst settling · max input rate", { text: `${si(t.worst_settling_s, "s")} · ${si(t.max_input_rate_hz, "Hz")}`, className: "num" + (t.meets_input_rate ? "" : " fail") }],
+    ["Worst settling · 1/settling", { text: `${si(t.worst_settling_s, "s")} · ${si(1 / t.worst_settling_s, "Hz")}`, className: "num" }],
+    ["Toggle limit: busiest stage at its maximum toggle rate", { text: t.toggle_max_input_rate_hz == null ? "not known" : si(t.toggle_max_input_rate_hz, "Hz"), className: "num" }],
+    ["Max input rate (the lower)", { text: si(t.max_input_rate_hz, "Hz"), className: "num" + (t.meets_input_rate ? "" : " fail"), sub: "limited by " + t.limited_by }],
     ["Input rate (requirement)", { text: si(t.input_rate_hz, "Hz"), className: "num" }],
   ] : [["Timing", (chosen && chosen.timing_problem) || "—"]]);
   table($("plan-rates"), ["Stage", "Average rate", "Must toggle at", "Stage limit (est.)"], t ? t.stages.map(r => [

@@ -55,7 +55,7 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
     if let Some(path) = design_path {
         let (_, design) = load_design(std::path::Path::new(path))?;
         let report = analyse(&design).map_err(|e| Failure { code: 1, message: e.to_string() })?;
-        let timing = StageTiming::from_switching(&report.switching, TIMING_SPREAD);
+        let timing = StageTiming::from_report(&report, TIMING_SPREAD);
         let rate = design.input().requirements.toggle_rate_hz;
         view.stage_max_toggle_rate_hz = Some(report.worst_max_toggle_rate_hz);
         if view.plan.method(MethodKind::ResetOnCount).is_some() {
@@ -157,14 +157,15 @@ fn render(view: &ChainView) -> String {
         if let Some((_, t)) = view.timing.iter().find(|(k, _)| *k == method.method.kind()) {
             let _ = writeln!(
                 out,
-                "  timing at {}: ripple n·tpd = {} (tpd {} with +{:.0} % spread), settling-limited f(max) = 1/(n·tpd) = {}; with the correction {} → {}",
+                "  timing at {}: ripple n·tpd = {} (tpd {} with +{:.0} % spread), settling-limited f(max) = 1/(n·tpd) = {}; max input rate {} → {} (limited by {})",
                 format_quantity(t.input_rate_hz, Unit::Hertz),
                 format_quantity(t.ripple_delay_s, Unit::Second),
                 format_quantity(t.propagation_delay_s, Unit::Second),
                 TIMING_SPREAD * 100.0,
                 format_quantity(t.settling_max_input_rate_hz, Unit::Hertz),
                 format_quantity(t.max_input_rate_hz, Unit::Hertz),
-                if t.meets_input_rate { "meets the input rate" } else { "TOO SLOW for the input rate" }
+                if t.meets_input_rate { "meets the input rate" } else { "TOO SLOW for the input rate" },
+                t.limited_by
             );
             for stage in &t.stages {
                 let limit = view.stage_max_toggle_rate_hz.unwrap_or(f64::INFINITY);

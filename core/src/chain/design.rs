@@ -68,7 +68,7 @@ pub fn design_chain(
     report: &StageReport,
 ) -> Result<ChainDesign, ChainError> {
     let plan = plan_chain(request)?;
-    let stage_timing = StageTiming::from_switching(&report.switching, CHAIN_TIMING_SPREAD);
+    let stage_timing = StageTiming::from_report(report, CHAIN_TIMING_SPREAD);
     let input_rate_hz = design.input().requirements.toggle_rate_hz;
     let mut recommendation = plan.recommendation.clone();
     let (reset, reset_problem) = if plan.method(MethodKind::ResetOnCount).is_some() {
@@ -109,7 +109,17 @@ pub fn design_chain(
                 .map_err(|e| e.to_string()),
             }
         })
-        .collect();
+        .collect::<Vec<MethodTiming>>();
+    if let Some(Ok(t)) = timing.iter().find(|t| t.method == chosen).map(|t| &t.timing) {
+        if !t.meets_input_rate {
+            recommendation.reasons.push(format!(
+                "the chain cannot take the required input rate of {}: at most {}, limited by {}",
+                crate::units::format_quantity(t.input_rate_hz, crate::units::Unit::Hertz),
+                crate::units::format_quantity(t.max_input_rate_hz, crate::units::Unit::Hertz),
+                t.limited_by
+            ));
+        }
+    }
     let chosen_plan = plan.method(chosen).ok_or(ChainError::WrongMethod { expected: chosen, got: chosen })?;
     let loads = chain_stage_loads_with_decode(
         chosen_plan,

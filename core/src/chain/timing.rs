@@ -7,6 +7,7 @@ use serde::{Deserialize, Serialize};
 
 use super::reset::ResetNetwork;
 use super::{check_range, ChainError, CorrectionKind, MethodPlan};
+use crate::stage::analysis::StageReport;
 use crate::stage::switching::SwitchingEstimate;
 
 /// Times of one stage that the chain is built from, taken as inputs (from the stage's
@@ -26,6 +27,11 @@ pub struct StageTiming {
     pub trigger_pulse_s: f64,
     /// Fractional spread of every time above between stages (0.2 = ±20 %).
     pub spread: f64,
+    /// The fastest the stage itself can toggle, Hz, when known: a stage whose trigger edges
+    /// come k input periods apart at best limits the input rate to k times this, whatever
+    /// the settling allows. Taken as given (no spread applied): pass the slow corner's.
+    #[serde(default)]
+    pub max_toggle_rate_hz: Option<f64>,
 }
 
 impl StageTiming {
@@ -51,6 +57,16 @@ impl StageTiming {
                 .unwrap_or(estimate.delay_s + rise + estimate.storage_s + estimate.fall_s),
             trigger_pulse_s,
             spread,
+            max_toggle_rate_hz: Some(estimate.max_toggle_rate_hz),
+        }
+    }
+
+    /// [`StageTiming::from_switching`] of an analysed stage, with the toggle rate of its slow
+    /// corner (what the per-stage rates are compared with) as the toggle limit.
+    pub fn from_report(report: &StageReport, spread: f64) -> StageTiming {
+        StageTiming {
+            max_toggle_rate_hz: Some(report.worst_max_toggle_rate_hz),
+            ..StageTiming::from_switching(&report.switching, spread)
         }
     }
 
@@ -59,7 +75,11 @@ impl StageTiming {
         check_range("timing.reset_output_fall_s", self.reset_output_fall_s, 0.0, 1.0, "a time in seconds")?;
         check_range("timing.reset_clear_s", self.reset_clear_s, 0.0, 1.0, "a time in seconds")?;
         check_range("timing.trigger_pulse_s", self.trigger_pulse_s, 0.0, 1.0, "a time in seconds")?;
-        check_range("timing.spread", self.spread, 0.0, 0.9, "a fraction (0.2 = ±20 %)")
+        check_range("timing.spread", self.spread, 0.0, 0.9, "a fraction (0.2 = ±20 %)")?;
+        match self.max_toggle_rate_hz {
+            Some(rate) => check_range("timing.max_toggle_rate_hz", rate, 1e-6, 1e12, "a rate in hertz"),
+            None => Ok(()),
+        }
     }
 
     /// The slowest stage's value of a time.
@@ -115,8 +135,15 @@ pub struct ChainTiming {
     pub correction_s: Option<f64>,
     /// Longest time from an input edge to a settled count, s.
     pub worst_settling_s: f64,
-    /// 1/worst settling: the chain and its correction settle within one period, Hz.
+    /// The input rate at which the busiest stage reaches the stage's own maximum toggle rate
+    /// (its maximum toggle rate times the fewest input periods between its trigger edges),
+    /// Hz; `None` when the stage's toggle rate was not given.
+    pub toggle_max_input_rate_hz: Option<f64>,
+    /// The highest input rate the chain takes: the lower of 1/worst settling (the chain and
+    /// its correction settle within one period) and the toggle limit above, Hz.
     pub max_input_rate_hz: f64,
+    /// What sets `max_input_rate_hz`, in words.
+    pub limited_by: String,
     pub meets_input_rate: bool,
     pub stages: Vec<StageRate>,
     pub notes: Vec<String>,
@@ -171,7 +198,30 @@ pub fn chain_timing_with_reset_cycle(
             worst_settling_s = worst_settling_s.max(ripple_part + time);
         }
     }
-    let max_input_rate_hz = if worst_settling_s > 0.0 { 1.0 / worst_settling_s } else { f64::INFINITY };
+    let settled_rate_hz = if worst_settling_s > 0.0 { 1.0 / worst_settling_s } else { f64::INFINITY };
+    // The busiest stage: the one whose trigger edges come closest together.
+    // The busiest stage: the one whose trigger edges come closest together (a stage with
+    // none has spacing 0 and sets no limit).
+    let busiest = plan
+        .stages
+        .iter()
+        .filter(|activity| activity.min_trigger_spacing_pulses > 0)
+        .min_by_key(|activity| activity.min_trigger_spacing_pulses);
+    let toggle_limit = timing
+        .max_toggle_rate_hz
+        .zip(busiest)
+        .map(|(rate, activity)| (rate * f64::from(activity.min_trigger_spacing_pulses), activity));
+    let (max_input_rate_hz, limited_by) = match toggle_limit {
+        Some((rate, activity)) if rate < settled_rate_hz => (
+            rate,
+            format!(
+                "the stage's own maximum toggle rate: stage {} sees a trigger edge every {} input period(s) at the closest",
+                activity.stage + 1,
+                activity.min_trigger_spacing_pulses
+            ),
+        ),
+        _ => (settled_rate_hz, "the settling of the count: every output valid within one input period".to_string()),
+    };
     let stages = plan
         .stages
         .iter()
@@ -188,7 +238,9 @@ pub fn chain_timing_with_reset_cycle(
         settling_max_input_rate_hz: ripple_max_input_rate_hz(stage_count, tpd),
         correction_s,
         worst_settling_s,
+        toggle_max_input_rate_hz: toggle_limit.map(|(rate, _)| rate),
         max_input_rate_hz,
+        limited_by,
         meets_input_rate: input_rate_hz <= max_input_rate_hz,
         stages,
         notes,

@@ -174,6 +174,7 @@ fn ripple_chain_f_max_is_one_over_n_tpd() {
         reset_clear_s: 0.0,
         trigger_pulse_s: 0.0,
         spread: 0.0,
+        max_toggle_rate_hz: None,
     };
     let plan = plan(16);
     let chain = chain_timing(method(&plan, MethodKind::PlainBinary), &timing, 1e6, None).expect("valid");
@@ -194,6 +195,7 @@ fn feedback_settles_one_stage_delay_after_the_full_ripple() {
         reset_clear_s: 0.0,
         trigger_pulse_s: 0.0,
         spread: 0.0,
+        max_toggle_rate_hz: None,
     };
     let plan = plan(10);
     let chain = chain_timing(method(&plan, MethodKind::SkipFeedback), &timing, 1e6, None).expect("valid");
@@ -201,6 +203,43 @@ fn feedback_settles_one_stage_delay_after_the_full_ripple() {
     // With the feedback, stages 2 and 3 see trigger edges two periods apart (pulses 8 and 10).
     let required: Vec<f64> = chain.stages.iter().map(|s| s.required_toggle_rate_hz).collect();
     assert_eq!(required, [1e6, 5e5, 5e5, 5e5]);
+}
+
+#[test]
+fn the_stage_toggle_rate_caps_the_chain_input_rate() {
+    // A chain cannot take input faster than its busiest stage can toggle: the first stage of
+    // any ripple divider sees every input edge (spacing 1, from the plan), so with stages of
+    // 10 ns delay (settling limit 1/(5·10 ns) = 20 MHz for the divide-by-10 feedback chain, as
+    // above) and a stage toggle limit of 1 MHz, the chain is limited to 1 MHz by the toggle
+    // rate. With a toggle limit above the settling limit, the settling limit stays.
+    let slow_stage = StageTiming {
+        propagation_delay_s: 10e-9,
+        reset_output_fall_s: 0.0,
+        reset_clear_s: 0.0,
+        trigger_pulse_s: 0.0,
+        spread: 0.0,
+        max_toggle_rate_hz: Some(1e6),
+    };
+    let plan = plan(10);
+    let feedback = method(&plan, MethodKind::SkipFeedback);
+    let chain = chain_timing(feedback, &slow_stage, 3e6, None).expect("valid");
+    assert!((chain.worst_settling_s - 50e-9).abs() < 1e-21);
+    assert_eq!(chain.toggle_max_input_rate_hz, Some(1e6));
+    assert_eq!(chain.max_input_rate_hz, 1e6);
+    assert!(!chain.meets_input_rate, "3 MHz into stages that toggle at 1 MHz at most");
+    assert!(
+        chain.limited_by.contains("toggle rate") && chain.limited_by.contains("stage 1"),
+        "{}",
+        chain.limited_by
+    );
+    let fast_stage = StageTiming { max_toggle_rate_hz: Some(100e6), ..slow_stage };
+    let chain = chain_timing(feedback, &fast_stage, 3e6, None).expect("valid");
+    assert!((chain.max_input_rate_hz - 20e6).abs() < 1e-6);
+    assert!(chain.meets_input_rate && chain.limited_by.contains("settling"), "{}", chain.limited_by);
+    let unknown = StageTiming { max_toggle_rate_hz: None, ..slow_stage };
+    let chain = chain_timing(feedback, &unknown, 3e6, None).expect("valid");
+    assert_eq!(chain.toggle_max_input_rate_hz, None);
+    assert!((chain.max_input_rate_hz - 20e6).abs() < 1e-6);
 }
 
 #[test]
@@ -212,6 +251,7 @@ fn bad_timing_is_refused_by_field() {
         reset_clear_s: 0.0,
         trigger_pulse_s: 0.0,
         spread: 0.0,
+        max_toggle_rate_hz: None,
     };
     let error = chain_timing(method(&plan, MethodKind::SkipFeedback), &timing, 1e6, None);
     assert!(
@@ -445,6 +485,7 @@ fn fast_timing() -> StageTiming {
         reset_clear_s: 60e-9,
         trigger_pulse_s: 5e-9,
         spread: 0.05,
+        max_toggle_rate_hz: None,
     }
 }
 
@@ -643,7 +684,14 @@ prop_compose! {
         trigger_pulse_s in any_number(),
         spread in any_number(),
     ) -> StageTiming {
-        StageTiming { propagation_delay_s, reset_output_fall_s, reset_clear_s, trigger_pulse_s, spread }
+        StageTiming {
+            propagation_delay_s,
+            reset_output_fall_s,
+            reset_clear_s,
+            trigger_pulse_s,
+            spread,
+            max_toggle_rate_hz: None,
+        }
     }
 }
 
