@@ -461,7 +461,7 @@ function render(view, synthesis) {
   verdict.className = "verdict " + (report.all_pass ? "pass" : "fail");
   verdict.textContent = report.all_pass ? "Every margin passes at worst case." : "Some margin fails at worst case — see below for what to change.";
   $("schematic").innerHTML = view.schematic_svg;
-  table($("margins"), ["Margin", "Nominal", "Worst", "Required", "Result", "Limited by / what to change"],
+  table($("margins"), ["Margin (headroom to the limit)", "At nominal", "At worst", "Required", "Result", "Limited by / what to change"],
     report.margins.map(m => [
       m.title,
       { text: marginText(m.nominal, m.unit), className: "num" },
@@ -1139,7 +1139,7 @@ function renderTolerance() {
   verdict.className = "verdict " + (wc.all_pass ? "pass" : "fail");
   const failing = wc.margins.filter(m => !m.pass).map(m => m.title);
   verdict.textContent = wc.all_pass ? "Every margin of every stage passes at its worst case." : `At worst case the chain fails: ${failing.join("; ")}.`;
-  table($("worst-table"), ["Margin", "Nominal", "Worst", "Required", "Result", "Limiting stage", "Limiting parameter"],
+  table($("worst-table"), ["Margin (headroom to the limit)", "At nominal", "At worst", "Required", "Result", "Limiting stage", "Limiting parameter"],
     wc.margins.map(m => {
       const others = m.same_stages.filter(k => k !== m.limiting_stage);
       return [

@@ -150,8 +150,15 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
             None => {}
         }
     }
-    let _ = writeln!(out, "\nMargins (worst case over tolerances, supplies, hFE spread and temperature):");
-    let _ = writeln!(out, "  {:<52} {:>10} {:>10} {:>10}  result", "margin", "nominal", "worst", "required");
+    let _ = writeln!(
+        out,
+        "\nMargins (worst case over tolerances, supplies, hFE spread and temperature; each figure is the headroom,\nhow far the quantity stays from its limit, or a ratio for overdrive, loop gain and rates):"
+    );
+    let _ = writeln!(
+        out,
+        "  {:<52} {:>10} {:>10} {:>10}  result",
+        "margin", "at nominal", "at worst", "required"
+    );
     for m in &report.margins {
         let required = if m.kind == flipwright::stage::margins::MarginKind::Overdrive
             || m.kind == flipwright::stage::margins::MarginKind::LoopGain

@@ -319,9 +319,9 @@ fn recommend(
     if natural_binary_code {
         let race = match reset {
             Some(network) => format!(
-                "the {} reset passes its checks: it wins its race with {:.3e} s to spare, and the gate loads a decoded stage with {:.0} % of its collector current at rest",
+                "the {} reset passes its checks: it wins its race with {} to spare, and the gate loads a decoded stage with {:.0} % of its collector current at rest",
                 if network.driven { "driven" } else { "passive" },
-                network.race_margin_s,
+                crate::units::format_quantity(network.race_margin_s, crate::units::Unit::Second),
                 100.0 * network.gate_sink_share
             ),
             None => "its race margin is not yet known: design the reset network with the stages' timing"
@@ -346,9 +346,9 @@ fn recommend(
     ];
     if let Some(network) = reset {
         reasons.push(format!(
-            "the {} reset passes its checks too (race margin {:.3e} s, gate load {:.0} % of a decoded stage's collector current): feedback is preferred only for its fewer parts and its lack of a race; ask for natural binary outputs to get the reset",
+            "the {} reset passes its checks too (race margin {}, gate load {:.0} % of a decoded stage's collector current): feedback is preferred only for its fewer parts and its lack of a race; ask for natural binary outputs to get the reset",
             if network.driven { "driven" } else { "passive" },
-            network.race_margin_s,
+            crate::units::format_quantity(network.race_margin_s, crate::units::Unit::Second),
             100.0 * network.gate_sink_share
         ));
     }

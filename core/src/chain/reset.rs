@@ -585,15 +585,18 @@ pub fn evaluate_reset_network(
     let mut problems = Vec::new();
     if gate_sink_share > RESET_SINK_SHARE_MAX {
         problems.push(format!(
-            "at rest a decoded stage sinks {gate_sink_current_a:.3e} A from Rp, {:.0} % of its collector current: a passive gate cannot give {stage_count} stages {:.3e} A of reset current each without overloading the decoded stages; buffer the gate with a reset driver transistor, or use the feedback method",
+            "at rest a decoded stage sinks {} from Rp, {:.0} % of its collector current: a passive gate cannot give {stage_count} stages {} of reset current each without overloading the decoded stages; buffer the gate with a reset driver transistor, or use the feedback method",
+            crate::units::format_quantity(gate_sink_current_a, crate::units::Unit::Ampere),
             100.0 * gate_sink_share,
-            levels.reset_current_per_stage_a
+            crate::units::format_quantity(levels.reset_current_per_stage_a, crate::units::Unit::Ampere)
         ));
     }
     if !(race.available_hold_s >= race.required_hold_s) {
         problems.push(format!(
-            "the race is lost: the reset holds {:.3e} s of the {:.3e} s needed, and no hold capacitor can give more than {:.3e} s with this Rp (Ch charges only until the gate removes itself); shorten the stages' storage (less overdrive) and the trigger pulse (smaller Rt·Ct), drive the reset from a pulse-forming stage, or use the feedback method",
-            race.available_hold_s, race.required_hold_s, race.most_hold_s
+            "the race is lost: the reset holds {} of the {} needed, and no hold capacitor can give more than {} with this Rp (Ch charges only until the gate removes itself); shorten the stages' storage (less overdrive) and the trigger pulse (smaller Rt·Ct), drive the reset from a pulse-forming stage, or use the feedback method",
+            crate::units::format_quantity(race.available_hold_s, crate::units::Unit::Second),
+            crate::units::format_quantity(race.required_hold_s, crate::units::Unit::Second),
+            crate::units::format_quantity(race.most_hold_s, crate::units::Unit::Second)
         ));
     }
     if !(timeline.rest_reverse_margin_v > 0.0) {

@@ -494,14 +494,17 @@ pub fn evaluate_reset_driver(
     let mut problems = Vec::new();
     if gate_sink_share > RESET_SINK_SHARE_MAX {
         problems.push(format!(
-            "at rest a decoded stage sinks {gate_sink_current_a:.3e} A from Rp, {:.0} % of its collector current: raise Rp (and Ch with it) or give the driver more gain",
+            "at rest a decoded stage sinks {} from Rp, {:.0} % of its collector current: raise Rp (and Ch with it) or give the driver more gain",
+            crate::units::format_quantity(gate_sink_current_a, crate::units::Unit::Ampere),
             100.0 * gate_sink_share
         ));
     }
     if !(race.available_hold_s >= race.required_hold_s) {
         problems.push(format!(
-            "the race is lost: after the gate's removal the bus stays above the knee for {:.3e} s of the {:.3e} s needed: raise Ch (up to {:.3e} s with the largest), shorten the stages' storage, or use the feedback method",
-            race.available_hold_s, race.required_hold_s, race.most_hold_s
+            "the race is lost: after the gate's removal the bus stays above the knee for {} of the {} needed: raise Ch (up to {} with the largest), shorten the stages' storage, or use the feedback method",
+            crate::units::format_quantity(race.available_hold_s, crate::units::Unit::Second),
+            crate::units::format_quantity(race.required_hold_s, crate::units::Unit::Second),
+            crate::units::format_quantity(race.most_hold_s, crate::units::Unit::Second)
         ));
     }
     if !(timeline.rest_reverse_margin_v > 0.0) {

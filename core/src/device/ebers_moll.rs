@@ -172,7 +172,10 @@ impl EbersMoll {
         if reverse_transit_s == 0.0 {
             assumptions.push("τS is shorter than αF·τF allows; τR set to zero".to_string());
         } else {
-            assumptions.push(format!("τR from τS = {:.3e} s by Moll's relation", tau_s));
+            assumptions.push(format!(
+                "τR from τS = {} by Moll's relation",
+                crate::units::format_quantity(tau_s, crate::units::Unit::Second)
+            ));
         }
         let junction_potential = match sheet.material {
             super::Material::Silicon => 0.75,

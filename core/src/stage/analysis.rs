@@ -181,10 +181,22 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
                 .iter()
                 .map(|(p, s)| format!("{}: {}", p.label(), setting_word(*s)))
                 .collect(),
+            // Parameters whose other end would help noticeably, with that gain in the margin's
+            // own unit; a gain below 0.1 % of the worst value is noise, not a limit.
             limiting: wc
                 .limiting
                 .iter()
-                .map(|(p, gain)| format!("{} (flipping it gains {:.3})", p.label(), gain))
+                .filter(|(_, gain)| *gain > 1e-3 * wc.worst.abs().max(1e-12))
+                .map(|(p, gain)| {
+                    let amount = match crate::units::Unit::from_symbol(wc.kind.unit()) {
+                        Some(unit) => crate::units::format_quantity(*gain, unit),
+                        None => format!("{gain:.3}"),
+                    };
+                    format!(
+                        "{} (at the other end of its range the margin would be {amount} larger)",
+                        p.label()
+                    )
+                })
                 .collect(),
             advice: if pass { String::new() } else { advice(wc.kind, &wc.limiting, design) },
         });
@@ -226,10 +238,10 @@ pub fn analyse(design: &StageDesign) -> Result<StageReport, AnalysisError> {
             String::new()
         } else {
             format!(
-                "estimated maximum {:.4e} Hz at the slow corner against {:.4e} Hz required ({} Hz × margin {}); {}",
-                worst_max_toggle_rate_hz,
-                required_rate,
-                input.requirements.toggle_rate_hz,
+                "estimated maximum {} at the slow corner against {} required ({} × margin {}); {}",
+                crate::units::format_quantity(worst_max_toggle_rate_hz, crate::units::Unit::Hertz),
+                crate::units::format_quantity(required_rate, crate::units::Unit::Hertz),
+                crate::units::format_quantity(input.requirements.toggle_rate_hz, crate::units::Unit::Hertz),
                 input.requirements.toggle_rate_margin,
                 advice(MarginKind::ToggleRate, &[], design)
             )

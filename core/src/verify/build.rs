@@ -608,8 +608,8 @@ fn build_chain(
     let mut assumptions = vec![
         "transistor: Ebers–Moll model derived from the datasheet (see the analysis report), NPN frame".to_string(),
         format!(
-            "steering diode: datasheet law, zero-bias capacitance as its junction capacitance, transit time trr/ln 2 = {:.3e} s",
-            shared.diode.transit_time_s
+            "steering diode: datasheet law, zero-bias capacitance as its junction capacitance, transit time trr/ln 2 = {}",
+            crate::units::format_quantity(shared.diode.transit_time_s, crate::units::Unit::Second)
         ),
         "the design's loads are on every stage; each later stage's trigger network loads the output that drives it"
             .to_string(),
