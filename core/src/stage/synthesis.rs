@@ -18,7 +18,7 @@ use super::switching::fit_capacitors;
 use super::worst_case::{self, nominal_temperature_c};
 use super::{BiasScheme, FieldError, StageDesign, StageInput, StageValues};
 use crate::device::ebers_moll::EbersMoll;
-use crate::tolerance::kernel::worst_dc_margins;
+use crate::tolerance::kernel::{worst_dc_margins_until, ScreeningCache};
 use crate::units::{format_quantity, Unit};
 
 /// Why synthesis could not produce any design.
@@ -303,6 +303,8 @@ fn neighbourhood_search(
     let rc_steps: &[i32] = &[0, -1, 1];
     let re_steps: &[i32] = if emitter_resistor > 0.0 { &[0, 1, -1, 2] } else { &[0] };
     let mut candidates = 0;
+    // The candidates share transistor and diode: thermal points and steering currents once.
+    let mut cache = ScreeningCache::default();
     for &drc in rc_steps {
         for dr1 in -3i32..=3 {
             for dr2 in -3i32..=3 {
@@ -329,7 +331,11 @@ fn neighbourhood_search(
                     // Prefer passing candidates near the first cut: small penalty per step.
                     let penalty = 0.002 * (drc.abs() + dr1.abs() + dr2.abs() + dre.abs()) as f64;
                     let to_beat = best.as_ref().map_or(f64::NEG_INFINITY, |(s, _)| *s + penalty);
-                    let Some(score) = dc_score(&design, base_model, to_beat) else { continue };
+                    let best_score = best.as_ref().map(|(s, _)| *s);
+                    let Some(score) = dc_score(&design, base_model, to_beat, best_score, penalty, &mut cache)
+                    else {
+                        continue;
+                    };
                     let adjusted = score.min(1.0) - penalty;
                     if best.as_ref().is_none_or(|(s, _)| adjusted > *s) {
                         best = Some((adjusted, values));
@@ -349,8 +355,33 @@ fn neighbourhood_search(
 /// model, the costly part) is searched only when the DC score, capped at 1 as the caller caps
 /// it, beats `to_beat`: otherwise the candidate loses whatever its loop gain, and the DC score
 /// alone is returned.
-fn dc_score(design: &StageDesign, base_model: &EbersMoll, to_beat: f64) -> Option<f64> {
-    let worst = worst_dc_margins(design);
+///
+/// `None` also when the candidate provably loses to the best so far (`best_score`, against
+/// which the caller compares `score.min(1.0) - penalty`): a margin's worst case only falls as
+/// the search goes on, and its room only falls with it, so once one margin's room `r` has
+/// `r.min(1.0) - penalty <= best_score` (the caller's own comparison, rounding included), so
+/// does the score's, whatever the rest of the search finds.
+fn dc_score(
+    design: &StageDesign,
+    base_model: &EbersMoll,
+    to_beat: f64,
+    best_score: Option<f64>,
+    penalty: f64,
+    cache: &mut ScreeningCache,
+) -> Option<f64> {
+    let cannot_win = |k: usize, bound: f64| {
+        let (Some(best), Some(&kind)) = (best_score, DC_MARGINS.get(k)) else { return false };
+        let (required, scale) = room_terms(kind, design);
+        // The room is monotonic in the worst value only on a finite, positive scale.
+        required.is_finite()
+            && scale.is_finite()
+            && scale > 0.0
+            && ((bound - required) / scale).min(1.0) - penalty <= best
+    };
+    let (worst, gave_up) = worst_dc_margins_until(design, cache, cannot_win);
+    if gave_up {
+        return None;
+    }
     let mut score = f64::INFINITY;
     for (kind, value) in DC_MARGINS.iter().zip(worst) {
         score = score.min(normalised_room(*kind, value, design));
@@ -367,6 +398,12 @@ fn dc_score(design: &StageDesign, base_model: &EbersMoll, to_beat: f64) -> Optio
 
 /// A margin's worst value less its requirement, on a scale that makes margins comparable.
 fn normalised_room(kind: MarginKind, worst: f64, design: &StageDesign) -> f64 {
+    let (required, scale) = room_terms(kind, design);
+    (worst - required) / scale
+}
+
+/// The requirement and the scale of [`normalised_room`].
+fn room_terms(kind: MarginKind, design: &StageDesign) -> (f64, f64) {
     let sheet = design.transistor();
     let required = required_value(kind, design);
     let scale = match kind {
@@ -380,7 +417,7 @@ fn normalised_room(kind: MarginKind, worst: f64, design: &StageDesign) -> f64 {
         MarginKind::TransistorDissipation => sheet.ptot_w,
         MarginKind::ToggleRate | MarginKind::TriggerAmplitude => 1.0,
     };
-    (worst - required) / scale
+    (required, scale)
 }
 
 /// Self-bias first cut: emitter level VE raised until the OFF base clears cut-off by the
