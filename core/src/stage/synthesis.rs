@@ -305,24 +305,26 @@ fn neighbourhood_search(
     let mut candidates = 0;
     // The candidates share transistor and diode: thermal points and steering currents once.
     let mut cache = ScreeningCache::default();
+    // Each resistor's stepped values once (a series step searches in log space).
+    let stepped = |value: f64, steps: i32| series.step(value, steps).unwrap_or(value);
+    let r1_steps: Vec<(i32, f64)> =
+        (-3i32..=3).map(|d| (d, stepped(snapped.cross_resistor_ohm, d))).collect();
+    let r2_steps: Vec<(i32, f64)> = (-3i32..=3).map(|d| (d, stepped(snapped.base_resistor_ohm, d))).collect();
+    let re_values: Vec<(i32, f64)> =
+        re_steps.iter().map(|&d| (d, stepped(snapped.emitter_resistor_ohm, d))).collect();
     for &drc in rc_steps {
-        for dr1 in -3i32..=3 {
-            for dr2 in -3i32..=3 {
-                for &dre in re_steps {
+        let rc = stepped(snapped.collector_resistor_ohm, drc);
+        for &(dr1, r1) in &r1_steps {
+            for &(dr2, r2) in &r2_steps {
+                for &(dre, re) in &re_values {
                     let mut values = snapped;
                     values.commutating_capacitor_f = capacitors.commutating_capacitor_f;
                     values.trigger = capacitors.trigger;
-                    values.collector_resistor_ohm = series
-                        .step(snapped.collector_resistor_ohm, drc)
-                        .unwrap_or(snapped.collector_resistor_ohm);
-                    values.cross_resistor_ohm =
-                        series.step(snapped.cross_resistor_ohm, dr1).unwrap_or(snapped.cross_resistor_ohm);
-                    values.base_resistor_ohm =
-                        series.step(snapped.base_resistor_ohm, dr2).unwrap_or(snapped.base_resistor_ohm);
+                    values.collector_resistor_ohm = rc;
+                    values.cross_resistor_ohm = r1;
+                    values.base_resistor_ohm = r2;
                     if emitter_resistor > 0.0 {
-                        values.emitter_resistor_ohm = series
-                            .step(snapped.emitter_resistor_ohm, dre)
-                            .unwrap_or(snapped.emitter_resistor_ohm);
+                        values.emitter_resistor_ohm = re;
                     }
                     let mut candidate_input = input.clone();
                     candidate_input.values = values;
@@ -391,7 +393,21 @@ fn dc_score(
     }
     let params = worst_case::parameters(design);
     let nominal_corner = Corner::nominal(design, nominal_temperature_c(design));
-    let (gain, _) = worst_case::loop_gain_worst_case(design, base_model, &params, &nominal_corner);
+    // The same bound as for the DC margins, on the loop gain's search.
+    let (gain_required, gain_scale) = room_terms(MarginKind::LoopGain, design);
+    let gain_cannot_win = |bound: f64| {
+        best_score.is_some_and(|best| {
+            gain_required.is_finite()
+                && gain_scale.is_finite()
+                && gain_scale > 0.0
+                && ((bound - gain_required) / gain_scale).min(1.0) - penalty <= best
+        })
+    };
+    let ((gain, _), gave_up) =
+        worst_case::loop_gain_worst_case_until(design, base_model, &params, &nominal_corner, gain_cannot_win);
+    if gave_up {
+        return None;
+    }
     score = score.min(normalised_room(MarginKind::LoopGain, gain.worst, design));
     score.is_finite().then_some(score)
 }

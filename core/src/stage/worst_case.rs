@@ -481,6 +481,20 @@ pub fn loop_gain_worst_case(
     params: &[Parameter],
     nominal_corner: &Corner,
 ) -> (WorstCase, usize) {
+    loop_gain_worst_case_until(design, base_model, params, nominal_corner, |_| false).0
+}
+
+/// [`loop_gain_worst_case`] that gives up as soon as `enough(bound)` holds for a value the
+/// worst gain cannot exceed (the nominal gain, then each lower gain the search finds); the
+/// flag says it gave up, and the worst case is then incomplete. Without giving up the result
+/// is exactly [`loop_gain_worst_case`]'s.
+pub(crate) fn loop_gain_worst_case_until(
+    design: &StageDesign,
+    base_model: &EbersMoll,
+    params: &[Parameter],
+    nominal_corner: &Corner,
+    mut enough: impl FnMut(f64) -> bool,
+) -> ((WorstCase, usize), bool) {
     let Some(nominal_gain) = loop_gain_at(design, base_model, nominal_corner) else {
         let none = WorstCase {
             kind: MarginKind::LoopGain,
@@ -491,15 +505,28 @@ pub fn loop_gain_worst_case(
             limiting: Vec::new(),
             evaluations: 1,
         };
-        return (none, 0);
+        return ((none, 0), false);
     };
     let nominal = nominal_gain.loop_gain;
+    let gave_up_at_nominal = enough(nominal);
     // The saturation-voltage spreads belong to the piecewise model only.
     let params: Vec<Parameter> = params
         .iter()
         .copied()
         .filter(|p| !matches!(p, Parameter::VceSat(_) | Parameter::VbeSat(_)))
         .collect();
+    if gave_up_at_nominal {
+        let at_nominal = WorstCase {
+            kind: MarginKind::LoopGain,
+            nominal,
+            worst: nominal,
+            corner: Vec::new(),
+            temperature_c: nominal_corner.temperature_c,
+            limiting: Vec::new(),
+            evaluations: 1,
+        };
+        return ((at_nominal, 0), true);
+    }
     let sensitivities: Vec<(Option<f64>, Option<f64>)> = params
         .iter()
         .map(|&p| {
@@ -511,7 +538,7 @@ pub fn loop_gain_worst_case(
         .collect();
     let mut gain_cache: std::collections::HashMap<Vec<Setting>, Option<f64>> =
         std::collections::HashMap::new();
-    let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
+    let evaluate = |assignment: &[(Parameter, Setting)]| {
         let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
         // No middle equilibrium found at a corner counts as no regeneration there.
         *gain_cache.entry(key).or_insert_with(|| {
@@ -520,7 +547,9 @@ pub fn loop_gain_worst_case(
                     .map_or(0.0, |g| g.loop_gain),
             )
         })
-    });
+    };
+    let ((worst, corner, limiting, evaluations), gave_up) =
+        search_until(&params, &sensitivities, nominal, evaluate, enough);
     let temperature_c = corner_for(design, &corner).temperature_c;
     let worst_case = WorstCase {
         kind: MarginKind::LoopGain,
@@ -531,7 +560,7 @@ pub fn loop_gain_worst_case(
         limiting,
         evaluations,
     };
-    (worst_case, 2 * params.len() + evaluations)
+    ((worst_case, 2 * params.len() + evaluations), gave_up)
 }
 
 /// Exhaustive search over every low/high combination (and, for temperature, also nominal),
