@@ -100,6 +100,10 @@ fn main() {
         eprintln!("demo design does not validate");
         std::process::exit(1);
     };
+    if option("once") {
+        std::hint::black_box(synthesise(&input).is_ok());
+        return;
+    }
     let Ok(outcome) = synthesise(&input) else {
         eprintln!("demo synthesis failed");
         std::process::exit(1);
@@ -117,10 +121,6 @@ fn main() {
         eprintln!("no model");
         std::process::exit(1);
     };
-    if option("once") {
-        std::hint::black_box(synthesise(&input).is_ok());
-        return;
-    }
     println!("flipwright-core benchmarks (demo stage)");
     time("worst case of every margin (DC + loop gain)", 400, || {
         worst_case::analyse(&design, &derivation.model)
