@@ -179,6 +179,21 @@ pub fn corner_for(design: &StageDesign, assignment: &[(Parameter, Setting)]) -> 
     corner
 }
 
+/// [`corner_for`] for an assignment that names each parameter at most once (as every
+/// assignment over [`parameters`] does): nominal settings are skipped, since applying one to
+/// the nominal corner writes back the value already there (a value times 1.0, spread 0, the
+/// nominal temperature).
+pub(crate) fn corner_for_distinct(design: &StageDesign, assignment: &[(Parameter, Setting)]) -> Corner {
+    let mut corner = Corner::nominal(design, nominal_temperature_c(design));
+    let nominal = corner;
+    for &(parameter, setting) in assignment {
+        if setting != Setting::Nominal {
+            apply_from(design, &nominal, &mut corner, parameter, setting);
+        }
+    }
+    corner
+}
+
 /// The worst case of one margin.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct WorstCase {

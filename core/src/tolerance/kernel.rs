@@ -18,7 +18,7 @@ use crate::device::Material;
 use crate::physics::{kelvin, BOLTZMANN_J_PER_K, ELEMENTARY_CHARGE_C, REFERENCE_TEMPERATURE_C};
 use crate::stage::margins::{max_junction_temperature_c, DC_MARGINS};
 use crate::stage::network::Corner;
-use crate::stage::worst_case::{corner_for, parameters, search_until, Parameter, Setting};
+use crate::stage::worst_case::{corner_for_distinct, parameters, search_until, Parameter, Setting};
 use crate::stage::{BiasScheme, Load, StageDesign, Steering};
 
 /// Number of DC margins the kernel evaluates, in the order of [`DC_MARGINS`].
@@ -459,20 +459,16 @@ type ScreeningMap<K, V> = HashMap<K, V, std::hash::BuildHasherDefault<ScreeningH
 /// cache's allocation. Any designs may share one; it only saves work.
 #[derive(Debug, Default)]
 pub struct ScreeningCache {
-    thermal_points: Vec<([u64; 10], ThermalPoint)>,
+    /// The thermal points hold for these constants (`thermal_constants`).
+    thermal_constants: [u64; 9],
+    thermal_points: Vec<ThermalPoint>,
     steering_currents: ScreeningMap<[u64; 4], f64>,
     corners: ScreeningMap<u64, DcMargins>,
 }
 
-/// The thermal point from `points`, or computed and added to them.
-fn cached_thermal_point(
-    points: &mut Vec<([u64; 10], ThermalPoint)>,
-    kernel: &MarginKernel,
-    temperature_c: f64,
-) -> ThermalPoint {
-    // Everything `MarginKernel::thermal_point` reads.
-    let key = [
-        temperature_c.to_bits(),
+/// Everything `MarginKernel::thermal_point` reads besides the temperature, as bits.
+fn thermal_constants(kernel: &MarginKernel) -> [u64; 9] {
+    [
         kernel.hfe_tempco_per_c.to_bits(),
         kernel.vbe_tempco_v_per_c.to_bits(),
         kernel.icbo_25c_a.to_bits(),
@@ -482,13 +478,7 @@ fn cached_thermal_point(
         kernel.diode_saturation_25c_a.to_bits(),
         kernel.diode_emission.to_bits(),
         kernel.diode_band_gap_ev.to_bits(),
-    ];
-    if let Some((_, point)) = points.iter().find(|(k, _)| *k == key) {
-        return *point;
-    }
-    let point = kernel.thermal_point(temperature_c);
-    points.push((key, point));
-    point
+    ]
 }
 
 /// The worst value of each DC margin (order of [`DC_MARGINS`]) over the design's tolerances,
@@ -529,15 +519,30 @@ pub fn worst_dc_margins_until(
         })
     };
     let capacitors = kernel.nominal_capacitors();
-    let ScreeningCache { thermal_points, steering_currents, corners } = cache;
+    let ScreeningCache { thermal_constants: constants, thermal_points, steering_currents, corners } = cache;
+    let these_constants = thermal_constants(&kernel);
+    if *constants != these_constants {
+        *constants = these_constants;
+        thermal_points.clear();
+    }
     corners.clear();
     let mut at = |assignment: &[(Parameter, Setting)]| -> DcMargins {
         let key = key_of(assignment);
         if let Some(hit) = key.and_then(|k| corners.get(&k)) {
             return *hit;
         }
-        let corner = corner_for(design, assignment);
-        let thermal = cached_thermal_point(thermal_points, &kernel, corner.temperature_c);
+        // Assignments here range over `params`, each parameter once.
+        let corner = corner_for_distinct(design, assignment);
+        let cached =
+            thermal_points.iter().find(|t| t.temperature_c.to_bits() == corner.temperature_c.to_bits());
+        let thermal = match cached {
+            Some(point) => *point,
+            None => {
+                let point = kernel.thermal_point(corner.temperature_c);
+                thermal_points.push(point);
+                point
+            }
+        };
         let steering = |voltage: f64, resistance_ohm: f64| {
             let key = [
                 voltage.to_bits(),
@@ -604,6 +609,7 @@ pub fn worst_dc_margins_until(
 mod tests {
     use super::*;
     use crate::stage::margins::{evaluate_corner, margin_value};
+    use crate::stage::worst_case::corner_for;
     use crate::tolerance::test_designs::variants;
 
     /// Relative agreement the closed form must reach with the LU solve of the same network:
