@@ -444,6 +444,11 @@ impl std::hash::Hasher for ScreeningHasher {
         }
     }
 
+    fn write_usize(&mut self, value: usize) {
+        // Array keys write their length first; one word, not eight bytes one by one.
+        self.write_u64(value as u64);
+    }
+
     fn write_u64(&mut self, value: u64) {
         // Folded 128-bit multiply: every input bit reaches the high bits the table probes by.
         let product = u128::from(self.0 ^ value) * 0x9e37_79b9_7f4a_7c15_u128;
