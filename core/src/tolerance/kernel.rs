@@ -671,6 +671,32 @@ mod tests {
         }
     }
 
+    /// Synthesis rejects a candidate on the bounds the screen reports, and shares one cache
+    /// between candidates; both are safe only if every bound is at least the margin's final
+    /// worst value and the cache never changes a result, whatever design used it before.
+    #[test]
+    fn screening_bounds_hold_and_a_shared_cache_changes_nothing() {
+        let designs = variants();
+        let mut shared = ScreeningCache::default();
+        // Twice round, so every design meets a cache filled by the others.
+        for (name, design) in designs.iter().chain(designs.iter()) {
+            let alone = worst_dc_margins(design);
+            let mut bounds: Vec<(usize, f64)> = Vec::new();
+            let (worst, gave_up) = worst_dc_margins_until(design, &mut shared, |k, bound| {
+                bounds.push((k, bound));
+                false
+            });
+            assert!(!gave_up, "{name}: gave up though never told to");
+            for (k, (a, b)) in alone.iter().zip(&worst).enumerate() {
+                assert_eq!(a.to_bits(), b.to_bits(), "{name}: margin {k} {a} alone, {b} with a shared cache");
+            }
+            assert!(bounds.len() > MARGIN_COUNT, "{name}: only {} bounds reported", bounds.len());
+            for (k, bound) in bounds {
+                assert!(bound >= worst[k], "{name}: margin {k} bound {bound} below its worst {}", worst[k]);
+            }
+        }
+    }
+
     #[test]
     fn kernel_margins_agree_with_the_stage_analysis_at_nominal_and_at_corners() {
         for (name, design) in variants() {
