@@ -439,8 +439,11 @@ impl std::hash::Hasher for ScreeningHasher {
     }
 
     fn write(&mut self, bytes: &[u8]) {
-        for &byte in bytes {
-            self.write_u64(u64::from(byte));
+        // A slice of words (an array key) arrives as its bytes: fold them a word at a time.
+        for chunk in bytes.chunks(8) {
+            let mut word = [0u8; 8];
+            word[..chunk.len()].copy_from_slice(chunk);
+            self.write_u64(u64::from_le_bytes(word));
         }
     }
 
