@@ -198,20 +198,22 @@ pub fn logic_diagram(plan: &MethodPlan, stages: u32, input_rate_hz: f64) -> Timi
         .chain((0..stages).map(|k| (format!("q{k}"), format!("stage {} Q · bit {k}", k + 1))))
         .map(|(node, label)| DecimatedTrace { node, label, min_v: Vec::new(), max_v: Vec::new() })
         .collect();
+    let mut states: Vec<u32> = Vec::new();
     for i in 0..buckets {
         let times = samples_in(i);
+        // The state at each sample once, not once per lane (ten lanes for divide by 1024).
+        states.clear();
+        states.extend(times.iter().map(|&t| state_at(t)));
         for (lane, trace) in traces.iter_mut().enumerate() {
-            let level = |t: f64| {
+            let levels = times.iter().zip(&states).map(|(&t, &state)| {
                 if lane == 0 {
                     input_at(t)
                 } else {
-                    f64::from(state_at(t) >> (lane - 1) & 1)
+                    f64::from(state >> (lane - 1) & 1)
                 }
-            };
-            let (low, high) = times
-                .iter()
-                .map(|&t| level(t))
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), v| (l.min(v), h.max(v)));
+            });
+            let (low, high) =
+                levels.fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), v| (l.min(v), h.max(v)));
             trace.min_v.push(low);
             trace.max_v.push(high);
         }

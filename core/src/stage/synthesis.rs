@@ -18,7 +18,7 @@ use super::switching::fit_capacitors;
 use super::worst_case::{self, nominal_temperature_c};
 use super::{BiasScheme, FieldError, StageDesign, StageInput, StageValues};
 use crate::device::ebers_moll::EbersMoll;
-use crate::tolerance::kernel::worst_dc_margins;
+use crate::tolerance::kernel::{worst_dc_margins_until, ScreeningCache};
 use crate::units::{format_quantity, Unit};
 
 /// Why synthesis could not produce any design.
@@ -303,24 +303,28 @@ fn neighbourhood_search(
     let rc_steps: &[i32] = &[0, -1, 1];
     let re_steps: &[i32] = if emitter_resistor > 0.0 { &[0, 1, -1, 2] } else { &[0] };
     let mut candidates = 0;
+    // The candidates share transistor and diode: thermal points and steering currents once.
+    let mut cache = ScreeningCache::default();
+    // Each resistor's stepped values once (a series step searches in log space).
+    let stepped = |value: f64, steps: i32| series.step(value, steps).unwrap_or(value);
+    let r1_steps: Vec<(i32, f64)> =
+        (-3i32..=3).map(|d| (d, stepped(snapped.cross_resistor_ohm, d))).collect();
+    let r2_steps: Vec<(i32, f64)> = (-3i32..=3).map(|d| (d, stepped(snapped.base_resistor_ohm, d))).collect();
+    let re_values: Vec<(i32, f64)> =
+        re_steps.iter().map(|&d| (d, stepped(snapped.emitter_resistor_ohm, d))).collect();
     for &drc in rc_steps {
-        for dr1 in -3i32..=3 {
-            for dr2 in -3i32..=3 {
-                for &dre in re_steps {
+        let rc = stepped(snapped.collector_resistor_ohm, drc);
+        for &(dr1, r1) in &r1_steps {
+            for &(dr2, r2) in &r2_steps {
+                for &(dre, re) in &re_values {
                     let mut values = snapped;
                     values.commutating_capacitor_f = capacitors.commutating_capacitor_f;
                     values.trigger = capacitors.trigger;
-                    values.collector_resistor_ohm = series
-                        .step(snapped.collector_resistor_ohm, drc)
-                        .unwrap_or(snapped.collector_resistor_ohm);
-                    values.cross_resistor_ohm =
-                        series.step(snapped.cross_resistor_ohm, dr1).unwrap_or(snapped.cross_resistor_ohm);
-                    values.base_resistor_ohm =
-                        series.step(snapped.base_resistor_ohm, dr2).unwrap_or(snapped.base_resistor_ohm);
+                    values.collector_resistor_ohm = rc;
+                    values.cross_resistor_ohm = r1;
+                    values.base_resistor_ohm = r2;
                     if emitter_resistor > 0.0 {
-                        values.emitter_resistor_ohm = series
-                            .step(snapped.emitter_resistor_ohm, dre)
-                            .unwrap_or(snapped.emitter_resistor_ohm);
+                        values.emitter_resistor_ohm = re;
                     }
                     let mut candidate_input = input.clone();
                     candidate_input.values = values;
@@ -329,7 +333,11 @@ fn neighbourhood_search(
                     // Prefer passing candidates near the first cut: small penalty per step.
                     let penalty = 0.002 * (drc.abs() + dr1.abs() + dr2.abs() + dre.abs()) as f64;
                     let to_beat = best.as_ref().map_or(f64::NEG_INFINITY, |(s, _)| *s + penalty);
-                    let Some(score) = dc_score(&design, base_model, to_beat) else { continue };
+                    let best_score = best.as_ref().map(|(s, _)| *s);
+                    let Some(score) = dc_score(&design, base_model, to_beat, best_score, penalty, &mut cache)
+                    else {
+                        continue;
+                    };
                     let adjusted = score.min(1.0) - penalty;
                     if best.as_ref().is_none_or(|(s, _)| adjusted > *s) {
                         best = Some((adjusted, values));
@@ -349,8 +357,33 @@ fn neighbourhood_search(
 /// model, the costly part) is searched only when the DC score, capped at 1 as the caller caps
 /// it, beats `to_beat`: otherwise the candidate loses whatever its loop gain, and the DC score
 /// alone is returned.
-fn dc_score(design: &StageDesign, base_model: &EbersMoll, to_beat: f64) -> Option<f64> {
-    let worst = worst_dc_margins(design);
+///
+/// `None` also when the candidate provably loses to the best so far (`best_score`, against
+/// which the caller compares `score.min(1.0) - penalty`): a margin's worst case only falls as
+/// the search goes on, and its room only falls with it, so once one margin's room `r` has
+/// `r.min(1.0) - penalty <= best_score` (the caller's own comparison, rounding included), so
+/// does the score's, whatever the rest of the search finds.
+fn dc_score(
+    design: &StageDesign,
+    base_model: &EbersMoll,
+    to_beat: f64,
+    best_score: Option<f64>,
+    penalty: f64,
+    cache: &mut ScreeningCache,
+) -> Option<f64> {
+    let cannot_win = |k: usize, bound: f64| {
+        let (Some(best), Some(&kind)) = (best_score, DC_MARGINS.get(k)) else { return false };
+        let (required, scale) = room_terms(kind, design);
+        // The room is monotonic in the worst value only on a finite, positive scale.
+        required.is_finite()
+            && scale.is_finite()
+            && scale > 0.0
+            && ((bound - required) / scale).min(1.0) - penalty <= best
+    };
+    let (worst, gave_up) = worst_dc_margins_until(design, cache, cannot_win);
+    if gave_up {
+        return None;
+    }
     let mut score = f64::INFINITY;
     for (kind, value) in DC_MARGINS.iter().zip(worst) {
         score = score.min(normalised_room(*kind, value, design));
@@ -360,13 +393,33 @@ fn dc_score(design: &StageDesign, base_model: &EbersMoll, to_beat: f64) -> Optio
     }
     let params = worst_case::parameters(design);
     let nominal_corner = Corner::nominal(design, nominal_temperature_c(design));
-    let (gain, _) = worst_case::loop_gain_worst_case(design, base_model, &params, &nominal_corner);
+    // The same bound as for the DC margins, on the loop gain's search.
+    let (gain_required, gain_scale) = room_terms(MarginKind::LoopGain, design);
+    let gain_cannot_win = |bound: f64| {
+        best_score.is_some_and(|best| {
+            gain_required.is_finite()
+                && gain_scale.is_finite()
+                && gain_scale > 0.0
+                && ((bound - gain_required) / gain_scale).min(1.0) - penalty <= best
+        })
+    };
+    let ((gain, _), gave_up) =
+        worst_case::loop_gain_worst_case_until(design, base_model, &params, &nominal_corner, gain_cannot_win);
+    if gave_up {
+        return None;
+    }
     score = score.min(normalised_room(MarginKind::LoopGain, gain.worst, design));
     score.is_finite().then_some(score)
 }
 
 /// A margin's worst value less its requirement, on a scale that makes margins comparable.
 fn normalised_room(kind: MarginKind, worst: f64, design: &StageDesign) -> f64 {
+    let (required, scale) = room_terms(kind, design);
+    (worst - required) / scale
+}
+
+/// The requirement and the scale of [`normalised_room`].
+fn room_terms(kind: MarginKind, design: &StageDesign) -> (f64, f64) {
     let sheet = design.transistor();
     let required = required_value(kind, design);
     let scale = match kind {
@@ -380,7 +433,7 @@ fn normalised_room(kind: MarginKind, worst: f64, design: &StageDesign) -> f64 {
         MarginKind::TransistorDissipation => sheet.ptot_w,
         MarginKind::ToggleRate | MarginKind::TriggerAmplitude => 1.0,
     };
-    (worst - required) / scale
+    (required, scale)
 }
 
 /// Self-bias first cut: emitter level VE raised until the OFF base clears cut-off by the

@@ -109,6 +109,19 @@ pub fn nominal_temperature_c(design: &StageDesign) -> f64 {
 
 /// Applies one parameter setting to a corner (which starts at nominal).
 pub fn apply(design: &StageDesign, corner: &mut Corner, parameter: Parameter, setting: Setting) {
+    let nominal = Corner::nominal(design, corner.temperature_c);
+    apply_from(design, &nominal, corner, parameter, setting);
+}
+
+/// [`apply`] with the design's nominal corner given (only its temperature-independent values
+/// are read), so a corner of many settings builds the nominal corner once.
+fn apply_from(
+    design: &StageDesign,
+    nominal: &Corner,
+    corner: &mut Corner,
+    parameter: Parameter,
+    setting: Setting,
+) {
     let input = design.input();
     let r_tol = input.conditions.resistor_tolerance;
     let s_tol = input.supplies.tolerance;
@@ -122,7 +135,6 @@ pub fn apply(design: &StageDesign, corner: &mut Corner, parameter: Parameter, se
         Setting::Nominal => 0.0,
         Setting::High => 1.0,
     };
-    let nominal = Corner::nominal(design, corner.temperature_c);
     let side = |s: u8| usize::from(s.min(1));
     match parameter {
         Parameter::CollectorResistor(s) => {
@@ -159,9 +171,25 @@ pub fn apply(design: &StageDesign, corner: &mut Corner, parameter: Parameter, se
 /// Builds the corner for a full assignment of settings.
 pub fn corner_for(design: &StageDesign, assignment: &[(Parameter, Setting)]) -> Corner {
     let mut corner = Corner::nominal(design, nominal_temperature_c(design));
-    // Temperature first: `apply` reads the nominal passive values independently of it.
+    let nominal = corner;
+    // `apply` reads the nominal passive values, which do not depend on the temperature.
     for &(parameter, setting) in assignment {
-        apply(design, &mut corner, parameter, setting);
+        apply_from(design, &nominal, &mut corner, parameter, setting);
+    }
+    corner
+}
+
+/// [`corner_for`] for an assignment that names each parameter at most once (as every
+/// assignment over [`parameters`] does): nominal settings are skipped, since applying one to
+/// the nominal corner writes back the value already there (a value times 1.0, spread 0, the
+/// nominal temperature).
+pub(crate) fn corner_for_distinct(design: &StageDesign, assignment: &[(Parameter, Setting)]) -> Corner {
+    let mut corner = Corner::nominal(design, nominal_temperature_c(design));
+    let nominal = corner;
+    for &(parameter, setting) in assignment {
+        if setting != Setting::Nominal {
+            apply_from(design, &nominal, &mut corner, parameter, setting);
+        }
     }
     corner
 }
@@ -204,8 +232,22 @@ pub(crate) fn search(
     params: &[Parameter],
     sensitivities: &[(Option<f64>, Option<f64>)],
     nominal: f64,
-    mut evaluate: impl FnMut(&[(Parameter, Setting)]) -> Option<f64>,
+    evaluate: impl FnMut(&[(Parameter, Setting)]) -> Option<f64>,
 ) -> SearchResult {
+    search_until(params, sensitivities, nominal, evaluate, |_| false).0
+}
+
+/// [`search`] that gives up as soon as `enough(worst)` holds for the worst value found so far,
+/// for a caller that only needs to know whether the margin falls that low (the worst value
+/// only decreases as the search goes on, and never exceeds `nominal`). Returns the result so
+/// far and whether it gave up; without giving up the result is exactly [`search`]'s.
+pub(crate) fn search_until(
+    params: &[Parameter],
+    sensitivities: &[(Option<f64>, Option<f64>)],
+    nominal: f64,
+    mut evaluate: impl FnMut(&[(Parameter, Setting)]) -> Option<f64>,
+    mut enough: impl FnMut(f64) -> bool,
+) -> (SearchResult, bool) {
     let mut evaluations = 0;
     let mut assignment: Vec<(Parameter, Setting)> = params
         .iter()
@@ -234,7 +276,11 @@ pub(crate) fn search(
     // Values at the opposite end of each parameter, from the last pass: when a pass changes
     // nothing, they say how much each parameter limits the margin.
     let mut limiting: Vec<(Parameter, f64)> = Vec::new();
+    let mut gave_up = enough(worst);
     for pass in 0..5 {
+        if gave_up {
+            break;
+        }
         let mut changed = false;
         // The first pass skips parameters that did nothing on their own at nominal; later
         // passes try every one, because a parameter can matter only once others have moved
@@ -263,15 +309,14 @@ pub(crate) fn search(
                 if candidate == current {
                     continue;
                 }
-                let mut trial = assignment.clone();
-                if let Some(slot) = trial.get_mut(index) {
+                // Try the candidate in place; it is put back unless it makes the margin worse.
+                if let Some(slot) = assignment.get_mut(index) {
                     slot.1 = candidate;
                 }
                 evaluations += 1;
-                if let Some(value) = evaluate(&trial) {
+                if let Some(value) = evaluate(&assignment) {
                     if value < worst - 1e-12 * worst.abs().max(1e-30) {
                         worst = value;
-                        assignment = trial;
                         changed = true;
                         break;
                     }
@@ -283,7 +328,17 @@ pub(crate) fn search(
                         limiting.push((parameter, value - worst));
                     }
                 }
+                if let Some(slot) = assignment.get_mut(index) {
+                    slot.1 = current;
+                }
             }
+            if changed && enough(worst) {
+                gave_up = true;
+                break;
+            }
+        }
+        if gave_up {
+            break;
         }
         if !changed && !skip_inert {
             break;
@@ -292,7 +347,7 @@ pub(crate) fn search(
     limiting.sort_by(|a, b| b.1.total_cmp(&a.1));
     limiting.truncate(4);
     let off_nominal = assignment.into_iter().filter(|(_, s)| *s != Setting::Nominal).collect();
-    (worst, off_nominal, limiting, evaluations)
+    ((worst, off_nominal, limiting, evaluations), gave_up)
 }
 
 /// Ebers–Moll models of both transistors at a corner.
@@ -441,6 +496,20 @@ pub fn loop_gain_worst_case(
     params: &[Parameter],
     nominal_corner: &Corner,
 ) -> (WorstCase, usize) {
+    loop_gain_worst_case_until(design, base_model, params, nominal_corner, |_| false).0
+}
+
+/// [`loop_gain_worst_case`] that gives up as soon as `enough(bound)` holds for a value the
+/// worst gain cannot exceed (the nominal gain, then each lower gain the search finds); the
+/// flag says it gave up, and the worst case is then incomplete. Without giving up the result
+/// is exactly [`loop_gain_worst_case`]'s.
+pub(crate) fn loop_gain_worst_case_until(
+    design: &StageDesign,
+    base_model: &EbersMoll,
+    params: &[Parameter],
+    nominal_corner: &Corner,
+    mut enough: impl FnMut(f64) -> bool,
+) -> ((WorstCase, usize), bool) {
     let Some(nominal_gain) = loop_gain_at(design, base_model, nominal_corner) else {
         let none = WorstCase {
             kind: MarginKind::LoopGain,
@@ -451,15 +520,28 @@ pub fn loop_gain_worst_case(
             limiting: Vec::new(),
             evaluations: 1,
         };
-        return (none, 0);
+        return ((none, 0), false);
     };
     let nominal = nominal_gain.loop_gain;
+    let gave_up_at_nominal = enough(nominal);
     // The saturation-voltage spreads belong to the piecewise model only.
     let params: Vec<Parameter> = params
         .iter()
         .copied()
         .filter(|p| !matches!(p, Parameter::VceSat(_) | Parameter::VbeSat(_)))
         .collect();
+    if gave_up_at_nominal {
+        let at_nominal = WorstCase {
+            kind: MarginKind::LoopGain,
+            nominal,
+            worst: nominal,
+            corner: Vec::new(),
+            temperature_c: nominal_corner.temperature_c,
+            limiting: Vec::new(),
+            evaluations: 1,
+        };
+        return ((at_nominal, 0), true);
+    }
     let sensitivities: Vec<(Option<f64>, Option<f64>)> = params
         .iter()
         .map(|&p| {
@@ -471,7 +553,7 @@ pub fn loop_gain_worst_case(
         .collect();
     let mut gain_cache: std::collections::HashMap<Vec<Setting>, Option<f64>> =
         std::collections::HashMap::new();
-    let (worst, corner, limiting, evaluations) = search(&params, &sensitivities, nominal, |assignment| {
+    let evaluate = |assignment: &[(Parameter, Setting)]| {
         let key: Vec<Setting> = assignment.iter().map(|(_, s)| *s).collect();
         // No middle equilibrium found at a corner counts as no regeneration there.
         *gain_cache.entry(key).or_insert_with(|| {
@@ -480,7 +562,9 @@ pub fn loop_gain_worst_case(
                     .map_or(0.0, |g| g.loop_gain),
             )
         })
-    });
+    };
+    let ((worst, corner, limiting, evaluations), gave_up) =
+        search_until(&params, &sensitivities, nominal, evaluate, enough);
     let temperature_c = corner_for(design, &corner).temperature_c;
     let worst_case = WorstCase {
         kind: MarginKind::LoopGain,
@@ -491,7 +575,7 @@ pub fn loop_gain_worst_case(
         limiting,
         evaluations,
     };
-    (worst_case, 2 * params.len() + evaluations)
+    ((worst_case, 2 * params.len() + evaluations), gave_up)
 }
 
 /// Exhaustive search over every low/high combination (and, for temperature, also nominal),

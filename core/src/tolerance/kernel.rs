@@ -18,7 +18,7 @@ use crate::device::Material;
 use crate::physics::{kelvin, BOLTZMANN_J_PER_K, ELEMENTARY_CHARGE_C, REFERENCE_TEMPERATURE_C};
 use crate::stage::margins::{max_junction_temperature_c, DC_MARGINS};
 use crate::stage::network::Corner;
-use crate::stage::worst_case::{corner_for, parameters, search, Parameter, Setting};
+use crate::stage::worst_case::{corner_for_distinct, parameters, search_until, Parameter, Setting};
 use crate::stage::{BiasScheme, Load, StageDesign, Steering};
 
 /// Number of DC margins the kernel evaluates, in the order of [`DC_MARGINS`].
@@ -210,8 +210,34 @@ impl MarginKernel {
     /// is not read). Non-finite results (a corner with no usable state) come out as NaN or
     /// infinities, which fail every threshold.
     pub fn evaluate(&self, corner: &Corner, capacitors: &Capacitors, thermal: &ThermalPoint) -> DcMargins {
+        self.evaluate_with(corner, capacitors, thermal, |voltage, resistance_ohm| {
+            self.steering_current(voltage, resistance_ohm, thermal)
+        })
+    }
+
+    /// [`Self::evaluate`] with the steering-diode current, a pure function of (voltage across
+    /// diode and Rt, Rt, thermal point), from `steering_current` (which may memoise it).
+    fn evaluate_with(
+        &self,
+        corner: &Corner,
+        capacitors: &Capacitors,
+        thermal: &ThermalPoint,
+        mut steering_current: impl FnMut(f64, f64) -> f64,
+    ) -> DcMargins {
         let devices = [self.device(corner, 0, thermal), self.device(corner, 1, thermal)];
-        let states = [self.state(corner, thermal, &devices, 0), self.state(corner, thermal, &devices, 1)];
+        let mut steering_a = [0.0; 2];
+        if self.steering == Some(Steering::Base) {
+            for (on, current) in steering_a.iter_mut().enumerate() {
+                *current = steering_current(
+                    devices[on].vbe_sat_v - devices[on].vce_sat_v,
+                    corner.trigger_resistor_ohm[on],
+                );
+            }
+        }
+        let states = [
+            self.state(corner, thermal, &devices, 0, steering_a[0]),
+            self.state(corner, thermal, &devices, 1, steering_a[1]),
+        ];
         let mut overdrive = f64::INFINITY;
         let mut cutoff = f64::INFINITY;
         let mut swing = f64::INFINITY;
@@ -318,7 +344,16 @@ impl MarginKernel {
         }
     }
 
-    fn state(&self, corner: &Corner, thermal: &ThermalPoint, devices: &[Device; 2], on: usize) -> State {
+    /// The state with `on` conducting; `steering` is the current its base-steering diode takes
+    /// from its base (0 without base steering).
+    fn state(
+        &self,
+        corner: &Corner,
+        thermal: &ThermalPoint,
+        devices: &[Device; 2],
+        on: usize,
+        steering: f64,
+    ) -> State {
         let off = 1 - on;
         let on_device = devices[on];
         let off_device = devices[off];
@@ -333,14 +368,6 @@ impl MarginKernel {
         let g_x = [1.0 / corner.cross_resistor_ohm[0], 1.0 / corner.cross_resistor_ohm[1]];
         let g_r2 = [1.0 / corner.base_resistor_ohm[0], 1.0 / corner.base_resistor_ohm[1]];
         let load = [self.load_terms(corner, 0), self.load_terms(corner, 1)];
-        let steering = match self.steering {
-            Some(Steering::Base) => self.steering_current(
-                on_device.vbe_sat_v - on_device.vce_sat_v,
-                corner.trigger_resistor_ohm[on],
-                thermal,
-            ),
-            _ => 0.0,
-        };
         let vbe = on_device.vbe_sat_v;
         let vce = on_device.vce_sat_v;
         // Affine forms c0 + c1·E of the OFF collector and base.
@@ -400,6 +427,68 @@ impl MarginKernel {
     }
 }
 
+/// A `u64`-keyed hasher for the screening caches: the keys are settings packed into bits or
+/// raw bit patterns of floats, so no hash-flooding defence is needed, and SipHash (the
+/// default) was a tenth of the screening's time.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct ScreeningHasher(u64);
+
+impl std::hash::Hasher for ScreeningHasher {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+
+    fn write(&mut self, bytes: &[u8]) {
+        // A slice of words (an array key) arrives as its bytes: fold them a word at a time.
+        for chunk in bytes.chunks(8) {
+            let mut word = [0u8; 8];
+            word[..chunk.len()].copy_from_slice(chunk);
+            self.write_u64(u64::from_le_bytes(word));
+        }
+    }
+
+    fn write_usize(&mut self, value: usize) {
+        // Array keys write their length first; one word, not eight bytes one by one.
+        self.write_u64(value as u64);
+    }
+
+    fn write_u64(&mut self, value: u64) {
+        // Folded 128-bit multiply: every input bit reaches the high bits the table probes by.
+        let product = u128::from(self.0 ^ value) * 0x9e37_79b9_7f4a_7c15_u128;
+        self.0 = (product as u64) ^ ((product >> 64) as u64);
+    }
+}
+
+type ScreeningMap<K, V> = HashMap<K, V, std::hash::BuildHasherDefault<ScreeningHasher>>;
+
+/// What screening many candidate designs shares between them: the thermal points and the
+/// steering-diode currents, pure functions of their inputs memoised under the exact bits of
+/// those inputs (so a hit returns the very value a fresh evaluation would), and the corner
+/// cache's allocation. Any designs may share one; it only saves work.
+#[derive(Debug, Default)]
+pub struct ScreeningCache {
+    /// The thermal points hold for these constants (`thermal_constants`).
+    thermal_constants: [u64; 9],
+    thermal_points: Vec<ThermalPoint>,
+    steering_currents: ScreeningMap<[u64; 4], f64>,
+    corners: ScreeningMap<u64, DcMargins>,
+}
+
+/// Everything `MarginKernel::thermal_point` reads besides the temperature, as bits.
+fn thermal_constants(kernel: &MarginKernel) -> [u64; 9] {
+    [
+        kernel.hfe_tempco_per_c.to_bits(),
+        kernel.vbe_tempco_v_per_c.to_bits(),
+        kernel.icbo_25c_a.to_bits(),
+        kernel.icbo_doubling_c.to_bits(),
+        max_junction_temperature_c(kernel.material).to_bits(),
+        kernel.ptot_w.to_bits(),
+        kernel.diode_saturation_25c_a.to_bits(),
+        kernel.diode_emission.to_bits(),
+        kernel.diode_band_gap_ev.to_bits(),
+    ]
+}
+
 /// The worst value of each DC margin (order of [`DC_MARGINS`]) over the design's tolerances,
 /// supplies, device spread and temperature: the start from one-at-a-time sensitivities and
 /// the coordinate search of `worst_case::analyse`, with every corner evaluated by the kernel
@@ -408,6 +497,20 @@ impl MarginKernel {
 /// finds the same values within the kernel's agreement (a test checks it). A corner with no
 /// usable state counts as failing (−∞), as it does there.
 pub fn worst_dc_margins(design: &StageDesign) -> DcMargins {
+    worst_dc_margins_until(design, &mut ScreeningCache::default(), |_, _| false).0
+}
+
+/// [`worst_dc_margins`] for a screen that only asks whether a margin can fall to some level:
+/// `enough(k, bound)` is told, as the search goes on, values that margin `k`'s worst case
+/// cannot exceed (its nominal value first, then each worse value the search finds); once it
+/// returns true the search stops and the second result is true (the margins are then
+/// incomplete). Without stopping the margins are exactly [`worst_dc_margins`]'s: `cache` only
+/// memoises.
+pub fn worst_dc_margins_until(
+    design: &StageDesign,
+    cache: &mut ScreeningCache,
+    mut enough: impl FnMut(usize, f64) -> bool,
+) -> (DcMargins, bool) {
     let kernel = MarginKernel::new(design);
     let params = parameters(design);
     // Each corner once: keyed by its settings, two bits per parameter (a design has at most
@@ -423,17 +526,24 @@ pub fn worst_dc_margins(design: &StageDesign) -> DcMargins {
             })
         })
     };
-    // The design's corners sit at three temperatures at most: their thermal points once.
-    let mut thermal_points: Vec<ThermalPoint> = Vec::with_capacity(3);
     let capacitors = kernel.nominal_capacitors();
-    let mut cache: HashMap<u64, DcMargins> = HashMap::new();
+    let ScreeningCache { thermal_constants: constants, thermal_points, steering_currents, corners } = cache;
+    let these_constants = thermal_constants(&kernel);
+    if *constants != these_constants {
+        *constants = these_constants;
+        thermal_points.clear();
+    }
+    corners.clear();
     let mut at = |assignment: &[(Parameter, Setting)]| -> DcMargins {
         let key = key_of(assignment);
-        if let Some(hit) = key.and_then(|k| cache.get(&k)) {
+        if let Some(hit) = key.and_then(|k| corners.get(&k)) {
             return *hit;
         }
-        let corner = corner_for(design, assignment);
-        let thermal = match thermal_points.iter().find(|t| t.temperature_c == corner.temperature_c) {
+        // Assignments here range over `params`, each parameter once.
+        let corner = corner_for_distinct(design, assignment);
+        let cached =
+            thermal_points.iter().find(|t| t.temperature_c.to_bits() == corner.temperature_c.to_bits());
+        let thermal = match cached {
             Some(point) => *point,
             None => {
                 let point = kernel.thermal_point(corner.temperature_c);
@@ -441,7 +551,18 @@ pub fn worst_dc_margins(design: &StageDesign) -> DcMargins {
                 point
             }
         };
-        let margins = kernel.evaluate(&corner, &capacitors, &thermal).map(|m| {
+        let steering = |voltage: f64, resistance_ohm: f64| {
+            let key = [
+                voltage.to_bits(),
+                resistance_ohm.to_bits(),
+                thermal.diode_saturation_a.to_bits(),
+                thermal.diode_n_vt_v.to_bits(),
+            ];
+            *steering_currents
+                .entry(key)
+                .or_insert_with(|| kernel.steering_current(voltage, resistance_ohm, &thermal))
+        };
+        let margins = kernel.evaluate_with(&corner, &capacitors, &thermal, steering).map(|m| {
             if m.is_nan() {
                 f64::NEG_INFINITY
             } else {
@@ -449,39 +570,54 @@ pub fn worst_dc_margins(design: &StageDesign) -> DcMargins {
             }
         });
         if let Some(k) = key {
-            cache.insert(k, margins);
+            corners.insert(k, margins);
         }
         margins
     };
     let nominal_assignment: Vec<(Parameter, Setting)> =
         params.iter().map(|&p| (p, Setting::Nominal)).collect();
+    let nominal = at(&nominal_assignment);
+    // Every worst case is at most its nominal value.
+    if nominal.iter().enumerate().any(|(k, &value)| enough(k, value)) {
+        return (nominal, true);
+    }
     let one_at_a_time: Vec<(DcMargins, DcMargins)> = (0..params.len())
         .map(|i| {
-            let mut pair = [nominal_assignment.clone(), nominal_assignment.clone()];
-            for (assignment, setting) in pair.iter_mut().zip([Setting::Low, Setting::High]) {
+            let mut assignment = nominal_assignment.clone();
+            let mut pair = [nominal; 2];
+            for (margins, setting) in pair.iter_mut().zip([Setting::Low, Setting::High]) {
                 if let Some(slot) = assignment.get_mut(i) {
                     slot.1 = setting;
                 }
+                *margins = at(&assignment);
             }
-            (at(&pair[0]), at(&pair[1]))
+            (pair[0], pair[1])
         })
         .collect();
-    let nominal = at(&nominal_assignment);
     let mut worst = nominal;
     for (k, slot) in worst.iter_mut().enumerate() {
         let sensitivities: Vec<(Option<f64>, Option<f64>)> =
             one_at_a_time.iter().map(|(low, high)| (Some(low[k]), Some(high[k]))).collect();
-        let (value, _, _, _) =
-            search(&params, &sensitivities, nominal[k], |assignment| Some(at(assignment)[k]));
+        let ((value, _, _, _), gave_up) = search_until(
+            &params,
+            &sensitivities,
+            nominal[k],
+            |assignment| Some(at(assignment)[k]),
+            |bound| enough(k, bound),
+        );
         *slot = value;
+        if gave_up {
+            return (worst, true);
+        }
     }
-    worst
+    (worst, false)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
     use crate::stage::margins::{evaluate_corner, margin_value};
+    use crate::stage::worst_case::corner_for;
     use crate::tolerance::test_designs::variants;
 
     /// Relative agreement the closed form must reach with the LU solve of the same network:
@@ -534,6 +670,32 @@ mod tests {
                     fast[k],
                     full.worst
                 );
+            }
+        }
+    }
+
+    /// Synthesis rejects a candidate on the bounds the screen reports, and shares one cache
+    /// between candidates; both are safe only if every bound is at least the margin's final
+    /// worst value and the cache never changes a result, whatever design used it before.
+    #[test]
+    fn screening_bounds_hold_and_a_shared_cache_changes_nothing() {
+        let designs = variants();
+        let mut shared = ScreeningCache::default();
+        // Twice round, so every design meets a cache filled by the others.
+        for (name, design) in designs.iter().chain(designs.iter()) {
+            let alone = worst_dc_margins(design);
+            let mut bounds: Vec<(usize, f64)> = Vec::new();
+            let (worst, gave_up) = worst_dc_margins_until(design, &mut shared, |k, bound| {
+                bounds.push((k, bound));
+                false
+            });
+            assert!(!gave_up, "{name}: gave up though never told to");
+            for (k, (a, b)) in alone.iter().zip(&worst).enumerate() {
+                assert_eq!(a.to_bits(), b.to_bits(), "{name}: margin {k} {a} alone, {b} with a shared cache");
+            }
+            assert!(bounds.len() > MARGIN_COUNT, "{name}: only {} bounds reported", bounds.len());
+            for (k, bound) in bounds {
+                assert!(bound >= worst[k], "{name}: margin {k} bound {bound} below its worst {}", worst[k]);
             }
         }
     }
