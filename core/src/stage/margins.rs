@@ -136,9 +136,12 @@ pub fn evaluate_corner(
         resistor_dissipation_w: network.resistors.iter().map(|r| (r.name, 0.0)).collect(),
         supply_power_w: 0.0,
     };
-    let c1 = values.commutating_capacitor_f;
     for state in &states {
         let on_device = devices[state.on_side];
+        // C1 from the collector that falls (the side turning on) to the base turning off, and
+        // that base's own Ct, at the corner's values.
+        let c1 = corner.commutating_capacitor_f[state.on_side];
+        let ct = corner.trigger_capacitor_f[1 - state.on_side];
         metrics.overdrive = metrics.overdrive.min(state.overdrive);
         metrics.cutoff_margin_v = metrics.cutoff_margin_v.min(state.cutoff_margin_v);
         metrics.output_swing_v = metrics.output_swing_v.min(state.output_swing_v);
@@ -154,7 +157,7 @@ pub fn evaluate_corner(
                 let amplitude = available_trigger_amplitude(design, state.output_swing_v);
                 let knee = steering_diode_knee_v(design, state.on_base_current_a, corner.temperature_c);
                 let gap = base_steering_gap_v(knee, on_device.vbe_sat_v, on_device.vce_sat_v);
-                ((amplitude - gap).max(0.0) * t.trigger_capacitor_f, t.trigger_capacitor_f)
+                ((amplitude - gap).max(0.0) * ct, ct)
             }
             _ => (0.0, 0.0),
         };

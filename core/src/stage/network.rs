@@ -38,6 +38,11 @@ pub struct Corner {
     pub emitter_resistor_ohm: f64,
     pub load_resistance_factor: [f64; 2],
     pub trigger_resistor_ohm: [f64; 2],
+    /// Per side: C1 from that side's collector to the other base, and Ct on that side's
+    /// steering input. They enter only the transient estimate of the reverse base–emitter
+    /// voltage (and the collector–base voltage it adds to), not the DC network.
+    pub commutating_capacitor_f: [f64; 2],
+    pub trigger_capacitor_f: [f64; 2],
     #[serde(skip)]
     pub spread: [SpreadPoint; 2],
 }
@@ -48,6 +53,7 @@ impl Corner {
         let values = design.values();
         let supplies = &design.input().supplies;
         let rt = values.trigger.map(|t| t.trigger_resistor_ohm).unwrap_or(0.0);
+        let ct = values.trigger.map(|t| t.trigger_capacitor_f).unwrap_or(0.0);
         Corner {
             temperature_c,
             collector_supply_v: supplies.collector_supply_v,
@@ -61,6 +67,8 @@ impl Corner {
             emitter_resistor_ohm: values.emitter_resistor_ohm,
             load_resistance_factor: [1.0; 2],
             trigger_resistor_ohm: [rt; 2],
+            commutating_capacitor_f: [values.commutating_capacitor_f; 2],
+            trigger_capacitor_f: [ct; 2],
             spread: [SpreadPoint::default(); 2],
         }
     }

@@ -31,6 +31,8 @@ pub enum Parameter {
     Temperature,
     LoadResistance(u8),
     TriggerResistor(u8),
+    CommutatingCapacitor(u8),
+    TriggerCapacitor(u8),
 }
 
 impl Parameter {
@@ -48,6 +50,8 @@ impl Parameter {
             Parameter::Temperature => "temperature".to_string(),
             Parameter::LoadResistance(s) => format!("load resistance on Q{}", s + 1),
             Parameter::TriggerResistor(s) => format!("steering resistor Rt on the Q{} side", s + 1),
+            Parameter::CommutatingCapacitor(s) => format!("C1 from Q{} collector to Q{} base", s + 1, 2 - s),
+            Parameter::TriggerCapacitor(s) => format!("trigger capacitor Ct on the Q{} side", s + 1),
         }
     }
 }
@@ -98,6 +102,20 @@ pub fn parameters(design: &StageDesign) -> Vec<Parameter> {
             list.push(Parameter::TriggerResistor(1));
         }
     }
+    // C1 and (with base steering) Ct set the charge that drives a base negative at a
+    // transition, so they move the reverse base–emitter and collector–base margins.
+    if conditions.capacitor_tolerance > 0.0 {
+        if values.commutating_capacitor_f > 0.0 {
+            list.push(Parameter::CommutatingCapacitor(0));
+            list.push(Parameter::CommutatingCapacitor(1));
+        }
+        if let Some(trigger) = values.trigger {
+            if trigger.steering == super::Steering::Base && trigger.trigger_capacitor_f > 0.0 {
+                list.push(Parameter::TriggerCapacitor(0));
+                list.push(Parameter::TriggerCapacitor(1));
+            }
+        }
+    }
     list
 }
 
@@ -124,6 +142,7 @@ fn apply_from(
 ) {
     let input = design.input();
     let r_tol = input.conditions.resistor_tolerance;
+    let c_tol = input.conditions.capacitor_tolerance;
     let s_tol = input.supplies.tolerance;
     let factor = |tol: f64| match setting {
         Setting::Low => 1.0 - tol,
@@ -164,6 +183,12 @@ fn apply_from(
         Parameter::LoadResistance(s) => corner.load_resistance_factor[side(s)] = factor(r_tol),
         Parameter::TriggerResistor(s) => {
             corner.trigger_resistor_ohm[side(s)] = nominal.trigger_resistor_ohm[side(s)] * factor(r_tol)
+        }
+        Parameter::CommutatingCapacitor(s) => {
+            corner.commutating_capacitor_f[side(s)] = nominal.commutating_capacitor_f[side(s)] * factor(c_tol)
+        }
+        Parameter::TriggerCapacitor(s) => {
+            corner.trigger_capacitor_f[side(s)] = nominal.trigger_capacitor_f[side(s)] * factor(c_tol)
         }
     }
 }

@@ -39,6 +39,13 @@ pub struct Capacitors {
     pub trigger_f: [f64; 2],
 }
 
+impl Capacitors {
+    /// The capacitor values a worst-case corner carries.
+    pub fn of(corner: &Corner) -> Capacitors {
+        Capacitors { commutating_f: corner.commutating_capacitor_f, trigger_f: corner.trigger_capacitor_f }
+    }
+}
+
 /// Everything that depends only on the temperature (shared by every stage of a build, which
 /// sits at one ambient temperature).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -201,9 +208,9 @@ impl MarginKernel {
         }
     }
 
-    /// Margins at a corner with the design's capacitors, at the corner's temperature.
+    /// Margins at a corner with the corner's capacitors, at the corner's temperature.
     pub fn evaluate_corner(&self, corner: &Corner) -> DcMargins {
-        self.evaluate(corner, &self.nominal_capacitors, &self.thermal_point(corner.temperature_c))
+        self.evaluate(corner, &Capacitors::of(corner), &self.thermal_point(corner.temperature_c))
     }
 
     /// Margins at a corner; the temperature is the thermal point's (`corner.temperature_c`
@@ -526,7 +533,6 @@ pub fn worst_dc_margins_until(
             })
         })
     };
-    let capacitors = kernel.nominal_capacitors();
     let ScreeningCache { thermal_constants: constants, thermal_points, steering_currents, corners } = cache;
     let these_constants = thermal_constants(&kernel);
     if *constants != these_constants {
@@ -562,7 +568,7 @@ pub fn worst_dc_margins_until(
                 .entry(key)
                 .or_insert_with(|| kernel.steering_current(voltage, resistance_ohm, &thermal))
         };
-        let margins = kernel.evaluate_with(&corner, &capacitors, &thermal, steering).map(|m| {
+        let margins = kernel.evaluate_with(&corner, &Capacitors::of(&corner), &thermal, steering).map(|m| {
             if m.is_nan() {
                 f64::NEG_INFINITY
             } else {
