@@ -171,7 +171,7 @@ fn render(view: &ChainView) -> String {
                 let limit = view.stage_max_toggle_rate_hz.unwrap_or(f64::INFINITY);
                 let _ = writeln!(
                     out,
-                    "    stage {}: average {} , must toggle at {}{}",
+                    "    stage {}: average {}, must toggle at {}{}",
                     stage.stage + 1,
                     format_quantity(stage.average_trigger_rate_hz, Unit::Hertz),
                     format_quantity(stage.required_toggle_rate_hz, Unit::Hertz),

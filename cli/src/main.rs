@@ -88,6 +88,7 @@ USAGE
   flipwright devices                  list the generic device archetypes
   flipwright series-tables            print the stored IEC 60063 E-series tables
   flipwright help                     this text
+  flipwright --version                the version of this program
 
 Values in files are SI numbers (ohms, farads, volts, amperes, seconds) or strings with a
 unit or IEC 60062 code (\"4k7\", \"100 nF\").
@@ -194,6 +195,10 @@ fn run(args: &[String]) -> Result<u8, Failure> {
     match command.as_str() {
         "help" | "--help" | "-h" => {
             print!("{HELP}");
+            Ok(0)
+        }
+        "version" | "--version" | "-V" => {
+            println!("flipwright {}", env!("CARGO_PKG_VERSION"));
             Ok(0)
         }
         "demo" => {

@@ -49,7 +49,7 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
     let _ = writeln!(out, "Diode:      {}", design.diode().label);
     let _ = writeln!(
         out,
-        "Supplies:   collector {} , bias {} (±{:.0} %);  {} bias",
+        "Supplies:   collector {}, bias {} (±{:.0} %); {} bias",
         q(sign * input.supplies.collector_supply_v, Unit::Volt),
         q(-sign * input.supplies.bias_supply_v, Unit::Volt),
         100.0 * input.supplies.tolerance,
@@ -245,8 +245,9 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
     let _ = writeln!(out, "  {}", parts.join(", "));
     let _ = writeln!(
         out,
-        "  transistor {} (derated Ptot {}); supply power {} nominal, {} worst case",
+        "  transistor {} nominal, {} worst case (derated Ptot {}); supply power {} nominal, {} worst case",
         q(report.nominal_metrics.max_transistor_dissipation_w, Unit::Watt),
+        q(report.worst_case.transistor_dissipation_w, Unit::Watt),
         q(report.nominal_metrics.derated_ptot_w, Unit::Watt),
         q(report.nominal_metrics.supply_power_w, Unit::Watt),
         q(report.worst_case.supply_power_w, Unit::Watt)

@@ -199,6 +199,16 @@ fn bad_command_lines_exit_2() {
 }
 
 #[test]
+fn version_names_the_package_version() {
+    let scratch = Scratch::new("version");
+    for flag in ["--version", "-V", "version"] {
+        let output = run(&[flag], &scratch.0);
+        check_exit(&output, 0, flag);
+        assert_eq!(stdout(&output).trim(), format!("flipwright {}", env!("CARGO_PKG_VERSION")));
+    }
+}
+
+#[test]
 fn help_documents_the_exit_codes() {
     let scratch = Scratch::new("help");
     for args in [vec![], vec!["help"], vec!["--help"]] {

@@ -444,7 +444,7 @@ pub fn reset_network_table(network: &crate::chain::reset_driver::DrivenResetNetw
                     String::new(),
                     String::new(),
                     format!(
-                        "{} , {}",
+                        "{}, {}",
                         format_quantity(part.voltage_v, Unit::Volt),
                         format_quantity(part.current_a, Unit::Ampere)
                     ),

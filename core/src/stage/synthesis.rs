@@ -75,7 +75,7 @@ pub fn synthesise(input: &StageInput) -> Result<SynthesisOutcome, SynthesisError
     StageDesign::new(probe_input.clone()).map_err(SynthesisError::Invalid)?;
     let mut collector_current = first_collector_current(input);
     steps.push(format!(
-        "collector current {} ({})",
+        "collector current aimed at {} ({}; the preferred values chosen give the ON current of the states table)",
         format_quantity(collector_current, Unit::Ampere),
         if input.requirements.collector_current_a.is_some() {
             "as required"
