@@ -163,7 +163,10 @@ function callNow(name, ...args) {
 // ---- form ----
 function fieldRow(path, label, kind, options) {
   const row = document.createElement("div");
-  row.className = "field";
+  // A device's description and the design's name are too long for the control column: they
+  // take the form's width under their label. A choice is as wide as its longest option.
+  const stacked = kind === "transistor" || kind === "diode" || path === "name";
+  row.className = "field" + (stacked ? " stacked" : kind === "select" ? " choice" : "");
   row.dataset.path = path;
   const id = "f-" + path.replace(/\W/g, "-");
   const lab = document.createElement("label");

@@ -816,3 +816,27 @@ test("results of an earlier design never print, and New from demo clears them an
   assert.deepEqual(problems, []);
   await context.close();
 });
+
+// ---- layout ----
+
+test("at 1366 × 900 every choice of the form shows its whole text and the design name fits", async () => {
+  const context = await browser.newContext({ viewport: { width: 1366, height: 900 } });
+  const { page, problems } = await open(pagePath, context);
+  // For each select, its longest option against the room inside it (its width less padding and
+  // the drop-down arrow, 20 px in Chromium); for the name, the demo's name against the field.
+  const cut = await page.$$eval("form select, #f-name", (els) => els.filter((e) => e.offsetParent).map((e) => {
+    const style = getComputedStyle(e);
+    const measure = document.createElement("canvas").getContext("2d");
+    measure.font = style.font;
+    const texts = e.tagName === "SELECT" ? [...e.options].map((o) => o.text) : [e.value];
+    const widest = Math.max(...texts.map((t) => measure.measureText(t).width));
+    const room = e.clientWidth - parseFloat(style.paddingLeft) - parseFloat(style.paddingRight) - (e.tagName === "SELECT" ? 20 : 0);
+    return { id: e.id, widest: Math.round(widest), room: Math.round(room) };
+  }).filter((f) => f.widest > f.room));
+  assert.deepEqual(cut, [], "controls too narrow for their text");
+  const labels = await page.$$eval("form .field label", (els) => els.filter((e) => e.scrollWidth > e.clientWidth + 1).map((e) => e.textContent));
+  assert.deepEqual(labels, [], "labels cut off");
+  await page.screenshot({ path: join(shots, "form-1366.png") });
+  assert.deepEqual(problems, []);
+  await context.close();
+});
