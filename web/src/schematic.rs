@@ -393,9 +393,15 @@ mod tests {
         element.split(&key).nth(1).and_then(|rest| rest.split('"').next()).unwrap_or("")
     }
 
-    /// Every drawn diode as (anode end, cathode end) in page coordinates, read from the symbol
+    /// A diode's lead ends as drawn, in page coordinates.
+    struct DrawnDiode {
+        anode: (f64, f64),
+        cathode: (f64, f64),
+    }
+
+    /// Every drawn diode's anode and cathode ends in page coordinates, read from the symbol
     /// itself: the triangle's tip points at the cathode bar, its flat side faces the anode.
-    fn drawn_diodes(svg: &str) -> Vec<((f64, f64), (f64, f64))> {
+    fn drawn_diodes(svg: &str) -> Vec<DrawnDiode> {
         let mut diodes = Vec::new();
         for group in svg.split("<g ").skip(1) {
             let group = group.split("</g>").next().unwrap_or("");
@@ -419,7 +425,7 @@ mod tests {
             let (anode_x, cathode_x) = if flat_x < tip.0 { (near, far) } else { (far, near) };
             let (sin, cos) = angle_deg.to_radians().sin_cos();
             let global = |x: f64| (tx + x * cos, ty + x * sin);
-            diodes.push((global(anode_x), global(cathode_x)));
+            diodes.push(DrawnDiode { anode: global(anode_x), cathode: global(cathode_x) });
         }
         diodes
     }
@@ -452,10 +458,11 @@ mod tests {
             let labels: Vec<_> = net_labels(&svg, net).into_iter().filter(|l| l.1 > 420.0).collect();
             assert_eq!(labels.len(), 1, "{transistor_id} {steering:?}: one trigger-network label {net}");
             let label = labels[0];
-            let nearest = |end: fn(&((f64, f64), (f64, f64))) -> (f64, f64)| {
-                diodes.iter().map(|d| distance(end(d), label)).fold(f64::MAX, f64::min)
+            let nearest = |ends: &mut dyn Iterator<Item = (f64, f64)>| {
+                ends.map(|end| distance(end, label)).fold(f64::MAX, f64::min)
             };
-            let (to_anode, to_cathode) = (nearest(|d| d.0), nearest(|d| d.1));
+            let to_anode = nearest(&mut diodes.iter().map(|d| d.anode));
+            let to_cathode = nearest(&mut diodes.iter().map(|d| d.cathode));
             assert_eq!(
                 to_anode < to_cathode,
                 anode_at_net,
