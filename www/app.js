@@ -163,7 +163,10 @@ function callNow(name, ...args) {
 // ---- form ----
 function fieldRow(path, label, kind, options) {
   const row = document.createElement("div");
-  row.className = "field";
+  // A device's description and the design's name are too long for the control column: they
+  // take the form's width under their label. A choice is as wide as its longest option.
+  const stacked = kind === "transistor" || kind === "diode" || path === "name";
+  row.className = "field" + (stacked ? " stacked" : kind === "select" ? " choice" : "");
   row.dataset.path = path;
   const id = "f-" + path.replace(/\W/g, "-");
   const lab = document.createElement("label");
@@ -728,6 +731,7 @@ function workerLane({ onCrash, onUnavailable = onCrash, replaceRunning = false }
     },
     /** Starts the worker ahead of the first job. */
     warm() { if (!laneWorker && !unavailable) start(); },
+    get busy() { return laneJob !== null; },
     get unavailable() { return unavailable; },
   };
 }
@@ -746,6 +750,10 @@ function cancelWorkerJob() {
 // ---- verification view ----
 let stageRun = null;        // { view, designJson, ms } of the last stage verification
 let chainRun = null;        // { view, designJson, ms, stages } of the last chain run
+let assumptionsDesignJson = null;  // the design of the run whose assumptions are shown
+// Bumped when a new or opened design clears every result: a job started before must not
+// report into the new design's page.
+let resultsEpoch = 0;
 let elapsedTimer = null;
 
 function setRunning(text) {
@@ -776,11 +784,14 @@ function designForSimulation() {
 async function runJob(name, args, label, onProgress) {
   setRunning(label);
   const started = performance.now();
+  const epoch = resultsEpoch;
   try {
     const outcome = await workerJob(name, args, onProgress);
+    if (epoch !== resultsEpoch) return null;
     return { outcome, ms: performance.now() - started };
   } catch (error) {
     if (simulation.unavailable) { /* onUnavailable said why */ }
+    else if (epoch !== resultsEpoch) showStatus("Stopped: the run was for the previous design.");
     else if (error.cancelled) showStatus("Cancelled; any results shown are from earlier runs.");
     else if (error.crashed) showStatus("The simulation engine failed: " + error.message + ". It was restarted; try again or change the design.", "error");
     else showStatus("The simulation could not run: " + error.message, "error");
@@ -948,7 +959,7 @@ function renderStageRun() {
       ["Output period · duty cycle", { text: t.output_period_s == null ? "—" : `${s(t.output_period_s)} · ${(100 * t.output_duty).toFixed(1)} %`, className: "num" }, { text: `${si(2 / v.pulse.rate_hz, "s")} · 50 % (two input periods)`, className: "num" }],
     ]);
   }
-  showAssumptions(view.assumptions);
+  showAssumptions(view.assumptions, stageRun.designJson);
   drawCharts();
   $("stage-svg").innerHTML = printChart("waveform_chart_svg", view.chart, 600, 400);
   $("verify").classList.add("has-results");
@@ -967,7 +978,7 @@ function renderChainRun() {
   countsInto($("chain-counts"), view.check, 64);
   $("chain-engine").textContent = engineLine(view.check.statistics, ms, view.pulse, view.polarity_sign);
   $("chain-canvas").style.height = chainHeight(stages) + "px";
-  showAssumptions(view.assumptions);
+  showAssumptions(view.assumptions, chainRun.designJson);
   drawCharts();
   $("chain-svg").innerHTML = printChart("timing_diagram_svg", view.diagram, 600, Math.round(0.85 * chainHeight(stages)));
   $("verify").classList.add("has-results");
@@ -978,7 +989,8 @@ function chainHeight(stages) {
   return 70 + 46 * (stages + 1);
 }
 
-function showAssumptions(list) {
+function showAssumptions(list, designJson) {
+  assumptionsDesignJson = designJson;
   $("verify-assumptions-box").hidden = false;
   const ul = $("verify-assumptions");
   ul.textContent = "";
@@ -1044,10 +1056,15 @@ function drawCharts() {
   document.body.dataset.lastDrawMs = (performance.now() - started).toFixed(1);
 }
 
+/** Marks each run made for another version of the design; print leaves those out. */
 function markStale() {
   const design = designForSimulation();
-  const stale = [stageRun, chainRun].some(r => r && r.designJson !== design);
-  $("verify-stale").hidden = !stale;
+  const staleStage = Boolean(stageRun && stageRun.designJson !== design);
+  const staleChain = Boolean(chainRun && chainRun.designJson !== design);
+  $("stage-result").classList.toggle("stale-run", staleStage);
+  $("chain-result").classList.toggle("stale-run", staleChain);
+  $("verify-assumptions-box").classList.toggle("stale-run", assumptionsDesignJson !== design);
+  $("verify-stale").hidden = !(staleStage || staleChain);
 }
 
 function initVerification() {
@@ -1097,14 +1114,16 @@ async function computeTolerance() {
   toleranceStatus("Computing the worst case and the temperature sweep…");
   const started = performance.now();
   let result;
+  const epoch = resultsEpoch;
   try {
     result = await overviewLane.run("tolerance_overview", { design, chain: JSON.stringify(chain), points: TEMPERATURE_POINTS });
   } catch (error) {
-    if (error.cancelled) return;  // a newer design replaced it
+    if (error.cancelled || epoch !== resultsEpoch) return;  // a newer design replaced it
     toleranceStatus("The tolerances could not be computed: " + error.message, "error");
     document.body.dataset.tolerance = "failed";
     return;
   }
+  if (epoch !== resultsEpoch) return;
   const problem = outcomeProblem(result.worst_case) || outcomeProblem(result.temperature);
   if (problem) {
     toleranceStatus("The tolerances could not be computed: " + problem, "error");
@@ -1223,16 +1242,19 @@ async function runYield() {
   setYieldRunning(label());
   yieldTimer = setInterval(() => { $("yield-phase").textContent = label(); }, 500);
   let outcome;
+  const epoch = resultsEpoch;
   try {
     outcome = await yieldLane.run("monte_carlo_yield_design", { design, chain: JSON.stringify(chain), options: JSON.stringify(options) }, onProgress);
   } catch (error) {
     setYieldRunning(null);
     document.body.dataset.yield = error.cancelled ? "cancelled" : "failed";
-    if (error.cancelled) yieldStatus("Cancelled; any result shown is from an earlier run.");
+    if (epoch !== resultsEpoch) yieldStatus("Stopped: the run was for the previous design.");
+    else if (error.cancelled) yieldStatus("Cancelled; any result shown is from an earlier run.");
     else yieldStatus("The Monte Carlo run failed: " + error.message + (error.crashed ? ". Its worker was replaced; try again." : ""), "error");
     return;
   }
   setYieldRunning(null);
+  if (epoch !== resultsEpoch) return;
   const ms = performance.now() - started;
   if (outcome.status === "invalid") {
     const rest = [];
@@ -1328,16 +1350,19 @@ async function runAim() {
     $("aim-phase").textContent = `${step.done_candidates} of at most ${step.candidates} design aims tried`;
   };
   let outcome;
+  const epoch = resultsEpoch;
   try {
     outcome = await aimLane.run("synthesise_for_yield_design", { design, goal: JSON.stringify(goal) }, onProgress);
   } catch (error) {
     document.body.dataset.aim = error.cancelled ? "cancelled" : "failed";
+    if (epoch !== resultsEpoch) { aimStatus("Stopped: the run was for the previous design."); return; }
     aimStatus(error.cancelled ? "Cancelled; the design is unchanged." : "The run failed: " + error.message + (error.crashed ? ". Its worker was replaced; try again." : ""), error.cancelled ? "" : "error");
     return;
   } finally {
     $("aim-run").disabled = false;
     $("aim-progress").hidden = true;
   }
+  if (epoch !== resultsEpoch) return;
   if (outcome.status === "invalid") {
     const ids = { "options.min_yield": "aim-yield", "options.trials": "yield-trials", "options.seed": "yield-seed" };
     const rest = [];
@@ -1376,6 +1401,7 @@ function renderAim() {
   for (const line of r.explanation) { const li = document.createElement("li"); li.textContent = line; list.appendChild(li); }
   $("aim-use").textContent = r.met ? "Use this design" : "Use the best design found";
   $("tolerance").classList.add("has-aim");
+  markToleranceStale();
 }
 
 async function useAimedDesign() {
@@ -1389,9 +1415,17 @@ async function useAimedDesign() {
   await compute();
 }
 
+/** Marks the tolerance results made for another version of the design; print leaves those
+ * out. Values chosen for a yield stay current once their design is used. */
 function markToleranceStale() {
   const design = designForSimulation();
-  $("yield-stale").hidden = !(yieldRun && yieldRun.designJson !== design);
+  $("tolerance").classList.toggle("stale-overview", Boolean(toleranceShown && toleranceShown.designJson !== design));
+  const staleYield = Boolean(yieldRun && yieldRun.designJson !== design);
+  $("yield-result").classList.toggle("stale-run", staleYield);
+  $("yield-stale").hidden = !staleYield;
+  const staleAim = Boolean(aimRun && aimRun.designJson !== design && aimRun.view.analysis.design_json !== design);
+  $("aim-result").classList.toggle("stale-run", staleAim);
+  $("aim-stale").hidden = !staleAim;
 }
 
 function drawToleranceCharts() {
@@ -1413,6 +1447,32 @@ function initTolerance() {
   $("aim-yield").addEventListener("input", () => yieldFieldError("aim-yield", ""));
   $("yield-cancel").addEventListener("click", () => yieldLane.cancel());
   for (const id of ["yield-trials", "yield-seed"]) $(id).addEventListener("input", () => yieldFieldError(id, ""));
+}
+
+// ---- a new or opened design ----
+/** Stops every running job and clears every result: a new or opened design starts with none
+ * of the last design's verification, tolerances, yield or chosen values, on screen or in print. */
+function clearResults() {
+  resultsEpoch += 1;
+  for (const lane of [simulation, overviewLane, yieldLane, aimLane]) if (lane.busy) lane.cancel();
+  stageRun = chainRun = toleranceShown = yieldRun = aimRun = null;
+  assumptionsDesignJson = null;
+  for (const id of ["stage-result", "chain-result", "verify-assumptions-box", "yield-result", "aim-result",
+    "verify-stale", "yield-stale", "aim-stale"]) $(id).hidden = true;
+  for (const id of ["stage-verdict", "stage-counts", "stage-engine", "stage-measured", "stage-timings", "stage-svg",
+    "chain-verdict", "chain-counts", "chain-engine", "chain-svg", "verify-assumptions",
+    "tolerance-chain", "worst-verdict", "worst-table", "temperature-hint", "temperature-svg",
+    "yield-verdict", "yield-summary", "yield-failures", "yield-svg", "yield-notes",
+    "aim-verdict", "aim-candidates", "aim-explanation"]) $(id).textContent = "";
+  for (const id of ["worst-verdict", "stage-verdict", "chain-verdict", "yield-verdict", "aim-verdict"]) $(id).className = "verdict";
+  for (const id of ["stage-canvas", "chain-canvas", "temperature-canvas", "yield-canvas"]) $(id).width = 0;
+  $("verify").classList.remove("has-results");
+  $("tolerance").classList.remove("has-yield", "has-aim", "stale-overview");
+  showStatus("");
+  toleranceStatus("");
+  yieldStatus("");
+  aimStatus("");
+  for (const key of ["yield", "aim", "tolerance"]) delete document.body.dataset[key];
 }
 
 // ---- keeping work ----
@@ -1440,6 +1500,7 @@ async function openFile(file) {
     banner(`Cannot open ${file.name}: ${list}. The current design is unchanged.`, "error");
     return;
   }
+  clearResults();
   current = JSON.parse(result.design_json);
   $("auto-values").checked = current.values == null;
   showInForm(current);
@@ -1468,6 +1529,7 @@ async function init() {
   showInForm(current);
   syncValueLock();
   $("new-demo").addEventListener("click", () => {
+    clearResults();
     current = JSON.parse(engine.demo_design());
     $("auto-values").checked = true;
     showInForm(current);

@@ -45,11 +45,11 @@ USAGE
   flipwright parts FILE [--csv] [--stage N]
                                       print the component table (text or CSV)
   flipwright simulate FILE [--csv OUT] [--probe NAME,...] [--stop TIME]
-                                      transient run of the circuit file FILE: writes the
-                                      waveforms to OUT (default: FILE with .csv) and prints
-                                      the run and each probe's min/max, toggles and edges;
-                                      NAME is a node, a voltage source (its current), or
-                                      voltage(NODE) / current(SOURCE)
+                                      transient run of the circuit file FILE: prints the
+                                      run and each probe's min/max, toggles and edges, and
+                                      with --csv writes the waveforms to OUT (none without
+                                      it); NAME is a node, a voltage source (its current),
+                                      or voltage(NODE) / current(SOURCE)
   flipwright simulate DESIGN [--stages N | --divide N] [--edges K] [--temperature T]
                       [--method binary|feedback|reset] [--corners nominal|worst|all]
                       [--quick] [--csv OUT] [--probe NAME,...]
@@ -66,6 +66,8 @@ USAGE
                                       its count sequence over two output periods at each
                                       corner asked for (worst: slow and fast from the
                                       design's tolerances), with the reset pulse measured.
+                                      --csv OUT writes the waveforms (input, collectors,
+                                      bases; --probe chooses others), none without it.
                                       Exit 1 if any count is wrong.
   flipwright chain N [DESIGN] [--json] [--natural-binary]
                                       plan a divide-by-N chain (N from 2 to 65536): stages,

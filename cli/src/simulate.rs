@@ -1,6 +1,6 @@
 //! `flipwright simulate FILE`: a transient run of the document in FILE, chosen by its
-//! `format` field (circuit files today), with the waveforms written as CSV and a summary of
-//! the run and of every probe printed.
+//! `format` field (circuit files today), with a summary of the run and of every probe printed
+//! and the waveforms written as CSV when `--csv OUT` asks for them.
 
 use std::fmt::Write;
 use std::path::{Path, PathBuf};
@@ -31,7 +31,9 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
     };
     let text = read(&path)?;
     let request = Request {
-        csv: options.value("csv").map(PathBuf::from).unwrap_or_else(|| path.with_extension("csv")),
+        // Only on request: a long chain's run has hundreds of millions of samples, more than a
+        // gigabyte of CSV that used to land beside the input unasked.
+        csv: options.value("csv").map(PathBuf::from),
         probes: options.value("probe").map(String::from),
         stop: options.value("stop").map(String::from),
     };
@@ -41,6 +43,9 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
             if request.stop.is_some() {
                 return Err(usage("--stop is for circuit files; a design run is set by --edges"));
             }
+            if request.probes.is_some() && request.csv.is_none() {
+                return Err(usage("--probe chooses the columns of the waveform CSV: give --csv OUT too"));
+            }
             let design_request = DesignRequest::parse(
                 options.value("stages"),
                 options.value("divide"),
@@ -49,7 +54,7 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
                 options.has("quick"),
             )?
             .with_chain_choices(options.value("method"), options.value("corners"))?;
-            simulate_design_file(&path, &design_request, &request.csv, request.probes.as_deref())
+            simulate_design_file(&path, &design_request, request.csv.as_deref(), request.probes.as_deref())
         }
         other => Err(input_error(format!(
             "{}: format \"{other}\" is not one `simulate` runs (expected \"{}\" or \"{}\")",
@@ -62,7 +67,8 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
 
 /// What the command line asks of the run, whatever the kind of file.
 struct Request {
-    csv: PathBuf,
+    /// `--csv OUT`: where to write the waveforms; none are written without it.
+    csv: Option<PathBuf>,
     /// `--probe` as written: comma-separated names.
     probes: Option<String>,
     /// `--stop` as written: a time with or without unit.
@@ -127,10 +133,42 @@ fn simulate_circuit_file(path: &Path, text: &str, request: &Request) -> Result<u
         | SimulationError::UnknownHintNode { .. } => input_error(format!("{}: {e}", path.display())),
         other => Failure { code: EXIT_MARGINS_FAIL, message: format!("the simulation failed: {other}") },
     })?;
-    let csv = to_csv(&result, &probes).map_err(|e| input_error(e.to_string()))?;
-    write(&request.csv, &csv)?;
-    print!("{}", render(&file, &result, &probes, &request.csv));
+    let written = match &request.csv {
+        Some(out) => {
+            let table = to_csv(&result, &probes).map_err(|e| input_error(e.to_string()))?;
+            write(out, &table)?;
+            Some((out.as_path(), table.len()))
+        }
+        None => None,
+    };
+    print!("{}", render(&file, &result, &probes, written));
     Ok(0)
+}
+
+/// What became of the waveforms: the CSV written with its size, or how to ask for it.
+pub fn waveform_line(written: Option<(&Path, usize)>, time_points: usize, probe_count: usize) -> String {
+    match written {
+        Some((path, bytes)) => format!(
+            "Wrote {} ({time_points} time points, {probe_count} probe(s), {}).",
+            path.display(),
+            byte_size(bytes)
+        ),
+        None => format!(
+            "Waveforms not written ({time_points} time points, {probe_count} probe(s)); --csv OUT writes them."
+        ),
+    }
+}
+
+/// A size in bytes, kB or MB (decimal prefixes), for a line the reader glances at.
+fn byte_size(bytes: usize) -> String {
+    let b = bytes as f64;
+    if b < 1e3 {
+        format!("{bytes} bytes")
+    } else if b < 1e6 {
+        format!("{:.1} kB", b / 1e3)
+    } else {
+        format!("{:.1} MB", b / 1e6)
+    }
 }
 
 fn method_name(method: OperatingPointMethod) -> &'static str {
@@ -143,7 +181,12 @@ fn method_name(method: OperatingPointMethod) -> &'static str {
 }
 
 /// The run statistics and one line of measurements per probe.
-fn render(file: &CircuitFile, result: &TransientResult, probes: &[Probe], csv: &Path) -> String {
+fn render(
+    file: &CircuitFile,
+    result: &TransientResult,
+    probes: &[Probe],
+    written: Option<(&Path, usize)>,
+) -> String {
     let mut out = String::new();
     let stats = result.statistics;
     let _ = writeln!(out, "{}", file.name);
@@ -156,13 +199,7 @@ fn render(file: &CircuitFile, result: &TransientResult, probes: &[Probe], csv: &
         stats.rejected_steps,
         stats.newton_iterations
     );
-    let _ = writeln!(
-        out,
-        "Wrote {} ({} time points, {} probe(s))",
-        csv.display(),
-        result.time_s.len(),
-        probes.len()
-    );
+    let _ = writeln!(out, "{}", waveform_line(written, result.time_s.len(), probes.len()));
     let _ = writeln!(out);
     let labels: Vec<String> = probes.iter().map(Probe::label).collect();
     let width = labels.iter().map(|l| l.chars().count()).max().unwrap_or(0).max("probe".len());

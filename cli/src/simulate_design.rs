@@ -1,7 +1,7 @@
 //! `flipwright simulate DESIGN`: the designed stage (or a ripple chain of it, or a planned
 //! divide-by-N chain by any method, at chosen corners) simulated, its count checked after
 //! every input edge, and trigger sensitivity and maximum toggle rate measured beside the
-//! handbook estimates.
+//! handbook estimates; the waveforms go to a CSV only when `--csv OUT` asks.
 
 use std::fmt::Write;
 use std::io::{IsTerminal, Write as _};
@@ -17,6 +17,7 @@ use flipwright::verify::{
     SimulationCorner, VerifyError, VerifyOptions,
 };
 
+use crate::simulate::waveform_line;
 use crate::{load_design, usage, write, Failure, EXIT_MARGINS_FAIL};
 
 /// Design-file options of `simulate`.
@@ -152,7 +153,7 @@ fn verify_failure(error: VerifyError) -> Failure {
 pub fn simulate_design_file(
     path: &Path,
     request: &DesignRequest,
-    csv: &Path,
+    csv: Option<&Path>,
     probes: Option<&str>,
 ) -> Result<u8, Failure> {
     let (_, design) = load_design(path)?;
@@ -305,24 +306,26 @@ pub fn simulate_design_file(
     };
     let result = in_real_polarity(result, sign);
     let probes = choose_probes(&built, &result, probes)?;
-    let table = to_csv(&result, &probes).map_err(|e| usage(e.to_string()))?;
-    write(csv, &table)?;
+    let written = match csv {
+        Some(out) => {
+            let table = to_csv(&result, &probes).map_err(|e| usage(e.to_string()))?;
+            write(out, &table)?;
+            Some((out, table.len()))
+        }
+        None => None,
+    };
     let mut head = String::new();
     render_run(&mut head, &what, &design, &built, &check, shown_temperature_c);
-    let _ = writeln!(
-        head,
-        "Wrote {} ({} time points, {} probe(s)).",
-        csv.display(),
-        result.time_s.len(),
-        probes.len()
-    );
+    let _ = writeln!(head, "{}", waveform_line(written, result.time_s.len(), probes.len()));
     print!("{head}{}", if out.is_empty() { String::new() } else { format!("\n{out}") });
     println!("\nAssumptions of the simulated circuit:");
     for line in &built.assumptions {
         println!("  - {line}");
     }
-    if sign < 0.0 {
+    if sign < 0.0 && written.is_some() {
         println!("  - simulated as the NPN mirror; the CSV holds the real (negative) PNP voltages");
+    } else if sign < 0.0 {
+        println!("  - simulated as the NPN mirror");
     }
     Ok(if check.correct { 0 } else { EXIT_MARGINS_FAIL })
 }

@@ -324,11 +324,19 @@ fn simulate_probe_and_stop_override_the_file() {
     let scratch = Scratch::new("simulate-options");
     let path = write_json(&scratch, "rc.json", &rc_circuit());
     let output = run(
-        &["simulate", path.to_str().expect("utf-8"), "--probe", "out,VIN,voltage(in)", "--stop", "5 us"],
+        &[
+            "simulate",
+            path.to_str().expect("utf-8"),
+            "--probe",
+            "out,VIN,voltage(in)",
+            "--stop",
+            "5 us",
+            "--csv",
+            "rc.csv",
+        ],
         &scratch.0,
     );
     check_exit(&output, 0, "simulate --probe --stop");
-    // Default CSV name: FILE with .csv.
     let (header, rows) = read_waveform_csv(&scratch.path("rc.csv"));
     assert_eq!(header, ["time_s", "voltage(out)_v", "current(VIN)_a", "voltage(in)_v"]);
     // RC step response (closed form, any circuits text): at the 5 µs stop, 4 time constants
@@ -338,7 +346,7 @@ fn simulate_probe_and_stop_override_the_file() {
     assert!((last[0] - 5e-6).abs() < 1e-18, "{last:?}");
     assert!((last[1] - 5.0 * (1.0 - (-4.0f64).exp())).abs() < 0.01, "{last:?}");
     // Without --probe, the file's default probes: every named node.
-    let output = run(&["simulate", path.to_str().expect("utf-8")], &scratch.0);
+    let output = run(&["simulate", path.to_str().expect("utf-8"), "--csv", "rc.csv"], &scratch.0);
     check_exit(&output, 0, "simulate, default probes");
     let (header, _) = read_waveform_csv(&scratch.path("rc.csv"));
     assert_eq!(header, ["time_s", "voltage(in)_v", "voltage(out)_v"]);
@@ -415,7 +423,7 @@ fn demo_design_file(scratch: &Scratch) -> PathBuf {
 fn simulate_a_design_verifies_the_stage_and_measures_beside_the_estimates() {
     let scratch = Scratch::new("simulate-design");
     let design = demo_design_file(&scratch);
-    let output = run(&["simulate", design.to_str().expect("utf-8")], &scratch.0);
+    let output = run(&["simulate", design.to_str().expect("utf-8"), "--csv", "waves.csv"], &scratch.0);
     check_exit(&output, 0, "simulate demo design");
     let text = stdout(&output);
     // A toggle stage changes state on every edge (common practice): 8 edges give 1 0 1 0 ….
@@ -430,8 +438,8 @@ fn simulate_a_design_verifies_the_stage_and_measures_beside_the_estimates() {
         );
     }
     assert!(text.contains("resolution") && text.contains("searched"), "{text}");
-    // Waveforms next to the design file: the input and both collectors and bases.
-    let (header, rows) = read_waveform_csv(&scratch.path("demo.csv"));
+    // The waveforms asked for: the input and both collectors and bases.
+    let (header, rows) = read_waveform_csv(&scratch.path("waves.csv"));
     assert_eq!(
         header,
         ["time_s", "voltage(in)_v", "voltage(c1)_v", "voltage(c2)_v", "voltage(b1)_v", "voltage(b2)_v"]
@@ -465,6 +473,71 @@ fn simulate_a_chain_of_the_design_counts_modulo_its_length() {
     assert!(header.contains(&"voltage(s3.c1)_v".to_string()), "{header:?}");
 }
 
+/// The size the report gives for a written CSV, in bytes, read back from "…, 12.3 kB)."
+fn reported_size_bytes(text: &str) -> f64 {
+    let line =
+        text.lines().find(|l| l.starts_with("Wrote ")).unwrap_or_else(|| panic!("no Wrote line:\n{text}"));
+    let size = line.rsplit(", ").next().unwrap_or("").trim_end_matches(").");
+    let (number, unit) = size.split_once(' ').unwrap_or_else(|| panic!("{line}"));
+    let scale = match unit {
+        "bytes" => 1.0,
+        "kB" => 1e3,
+        "MB" => 1e6,
+        other => panic!("unit {other} in {line}"),
+    };
+    number.parse::<f64>().unwrap_or_else(|_| panic!("{line}")) * scale
+}
+
+/// Regression: `simulate DESIGN --stages 11 --quick` wrote more than a gigabyte of CSV beside
+/// the design unasked. Waveforms are written only with --csv, and the report gives the size.
+#[test]
+fn simulate_writes_waveforms_only_when_asked_and_reports_their_size() {
+    let scratch = Scratch::new("simulate-no-csv");
+    let design = demo_design_file(&scratch);
+    let file = design.to_str().expect("utf-8");
+    let listing = || {
+        let mut names: Vec<String> = std::fs::read_dir(&scratch.0)
+            .expect("scratch listing")
+            .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        names
+    };
+    let before = listing();
+    let output = run(&["simulate", file, "--stages", "2", "--quick"], &scratch.0);
+    check_exit(&output, 0, "a chain of two without --csv");
+    assert_eq!(listing(), before, "no file written without --csv");
+    assert!(
+        stdout(&output).contains("Waveforms not written") && stdout(&output).contains("--csv OUT"),
+        "{}",
+        stdout(&output)
+    );
+    let circuit = write_json(&scratch, "rc.json", &rc_circuit());
+    let before = listing();
+    let output = run(&["simulate", circuit.to_str().expect("utf-8")], &scratch.0);
+    check_exit(&output, 0, "a circuit file without --csv");
+    assert_eq!(listing(), before, "no file written for a circuit file without --csv");
+    assert!(stdout(&output).contains("Waveforms not written"), "{}", stdout(&output));
+    // With --csv the report's size is the file's, to the one decimal it prints.
+    for (args, out) in [
+        (vec!["simulate", file, "--stages", "2", "--quick", "--csv", "chain.csv"], "chain.csv"),
+        (vec!["simulate", circuit.to_str().expect("utf-8"), "--csv", "rc.csv"], "rc.csv"),
+    ] {
+        let output = run(&args, &scratch.0);
+        check_exit(&output, 0, &args.join(" "));
+        let bytes = std::fs::metadata(scratch.path(out)).expect("CSV written").len() as f64;
+        let reported = reported_size_bytes(&stdout(&output));
+        let resolution = if bytes < 1e3 {
+            0.5
+        } else if bytes < 1e6 {
+            50.0
+        } else {
+            5e4
+        };
+        assert!((reported - bytes).abs() <= resolution, "{out}: reported {reported} bytes, file has {bytes}");
+    }
+}
+
 #[test]
 fn simulate_a_design_refuses_bad_options_with_exit_2() {
     let scratch = Scratch::new("simulate-design-usage");
@@ -476,7 +549,8 @@ fn simulate_a_design_refuses_bad_options_with_exit_2() {
         (vec!["simulate", file, "--edges", "many"], "--edges"),
         (vec!["simulate", file, "--temperature", "900"], "--temperature"),
         (vec!["simulate", file, "--stop", "1m"], "--stop"),
-        (vec!["simulate", file, "--quick", "--probe", "nowhere"], "nowhere"),
+        (vec!["simulate", file, "--quick", "--csv", "w.csv", "--probe", "nowhere"], "nowhere"),
+        (vec!["simulate", file, "--quick", "--probe", "c1"], "give --csv OUT too"),
     ] {
         let output = run(&args, &scratch.0);
         check_exit(&output, 2, &args.join(" "));

@@ -742,11 +742,101 @@ test("values chosen for a yield: the plain synthesis falls short, a raised aim r
   await waitCompute(page);
   await waitTolerance(page, { chainKind: "divide" });
   assert.equal(Number(await page.inputValue("#f-requirements-target_overdrive")), chosen.target_overdrive);
+  // The chosen values are the design now shown, so they are not marked as from an earlier one.
+  assert.equal(await page.isHidden("#aim-stale"), true, "the aim result is current for the design it chose");
   assert.equal(await runYield(page, { trials: 4000, seed: 5 }), "ready");
   const run = await page.evaluate(() => window.flipwright.yieldRun.view.report);
   assert.equal(run.passed, chosen.passed);
   assert.equal(run.digest, result.report.digest);
   assert.ok(run.lower_bound >= 0.99);
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+// ---- results belong to one design ----
+
+/** The PDF text of the page printed on A4 now. */
+async function printedText(page, name) {
+  await page.emulateMedia({ media: "print" });
+  const file = join(shots, name + ".pdf");
+  await page.pdf({ path: file, format: "A4", printBackground: true, preferCSSPageSize: true });
+  await page.emulateMedia({ media: "screen" });
+  return execFileSync("pdftotext", ["-layout", file, "-"]).toString();
+}
+
+test("results of an earlier design never print, and New from demo clears them and stops a running job", async () => {
+  const { page, problems, context } = await open();
+  await planFor(page, 5);
+  await waitTolerance(page, { chainKind: "divide" });
+  await page.click("#plan-run");
+  await page.waitForSelector("#chain-result:not([hidden])", { timeout: 180000 });
+  assert.match(await page.textContent("#chain-verdict"), /^PASS — the planned divide-by-5 chain counted correctly/);
+  assert.equal(await runYield(page, { trials: 2000, seed: 3 }), "ready");
+  const oldYield = (await page.textContent("#yield-verdict")).trim();
+  assert.match(oldYield, /^Yield .* builds pass every DC margin/);
+  // Printed for its own design, both results are there (so the checks below can fail).
+  const own = await printedText(page, "print-results-own");
+  assert.ok(own.includes("planned divide-by-5 chain counted correctly"), "the chain verdict prints for its design");
+  assert.ok(own.includes(oldYield.slice(0, 40)), "the yield verdict prints for its design");
+  // An edit makes both stale: they stay on screen with the note, but do not print.
+  const ran = await page.evaluate(() => window.flipwright.designJson);
+  await setField(page, "requirements.min_cutoff_margin_v", "0.35");
+  await page.waitForFunction((ran) => window.flipwright.designJson !== ran, ran, { timeout: 30000 });
+  await waitCompute(page);
+  await waitTolerance(page, { chainKind: "divide" });
+  assert.equal(await page.isVisible("#verify-stale"), true);
+  assert.equal(await page.isVisible("#yield-stale"), true);
+  const edited = await printedText(page, "print-results-stale");
+  assert.ok(!edited.includes("counted correctly") && !edited.includes("builds pass every DC margin"), "stale results are not printed");
+  assert.ok(edited.includes("Results from an earlier version of the design are not printed"), "the print says why they are missing");
+  // A long Monte Carlo is running when New from demo is pressed: it stops, and nothing of the
+  // last design is left on screen or in print.
+  await page.fill("#yield-trials", "1000000");
+  await page.click("#yield-run");
+  await page.waitForFunction(() => Number(document.body.dataset.yieldProgress) >= 5000, null, { timeout: 30000 });
+  assert.equal(await page.getAttribute("body", "data-yield"), "busy");
+  await page.click("#new-demo");
+  await waitCompute(page);
+  await waitTolerance(page, { chainKind: "stages" });
+  assert.equal(await page.isHidden("#yield-progress"), true, "the Monte Carlo run stopped");
+  assert.match(await page.textContent("#yield-status"), /previous design/);
+  for (const id of ["#stage-result", "#chain-result", "#verify-assumptions-box", "#yield-result", "#aim-result",
+    "#verify-stale", "#yield-stale", "#aim-stale"]) {
+    assert.equal(await page.isHidden(id), true, `${id} is hidden after New`);
+  }
+  for (const id of ["#chain-verdict", "#chain-counts", "#yield-verdict", "#yield-summary", "#stage-verdict"]) {
+    assert.equal((await page.textContent(id)).trim(), "", `${id} is empty after New`);
+  }
+  assert.equal(await page.evaluate(() => window.flipwright.yieldRun), null);
+  const fresh = await printedText(page, "print-results-new");
+  for (const old of ["counted correctly", "divide-by-5", "builds pass every DC margin", "Monte Carlo yield", "Verify by simulation"]) {
+    assert.ok(!fresh.includes(old), `the print after New still has "${old}"`);
+  }
+  assert.ok(fresh.includes("Component table"), "the new design itself prints");
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
+// ---- layout ----
+
+test("at 1366 × 900 every choice of the form shows its whole text and the design name fits", async () => {
+  const context = await browser.newContext({ viewport: { width: 1366, height: 900 } });
+  const { page, problems } = await open(pagePath, context);
+  // For each select, its longest option against the room inside it (its width less padding and
+  // the drop-down arrow, 20 px in Chromium); for the name, the demo's name against the field.
+  const cut = await page.$$eval("form select, #f-name", (els) => els.filter((e) => e.offsetParent).map((e) => {
+    const style = getComputedStyle(e);
+    const measure = document.createElement("canvas").getContext("2d");
+    measure.font = style.font;
+    const texts = e.tagName === "SELECT" ? [...e.options].map((o) => o.text) : [e.value];
+    const widest = Math.max(...texts.map((t) => measure.measureText(t).width));
+    const room = e.clientWidth - parseFloat(style.paddingLeft) - parseFloat(style.paddingRight) - (e.tagName === "SELECT" ? 20 : 0);
+    return { id: e.id, widest: Math.round(widest), room: Math.round(room) };
+  }).filter((f) => f.widest > f.room));
+  assert.deepEqual(cut, [], "controls too narrow for their text");
+  const labels = await page.$$eval("form .field label", (els) => els.filter((e) => e.scrollWidth > e.clientWidth + 1).map((e) => e.textContent));
+  assert.deepEqual(labels, [], "labels cut off");
+  await page.screenshot({ path: join(shots, "form-1366.png") });
   assert.deepEqual(problems, []);
   await context.close();
 });

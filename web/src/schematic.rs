@@ -125,6 +125,14 @@ impl Svg {
             m + 7.0
         );
     }
+    /// A diode whose anode-to-cathode direction is given in the NPN frame. A PNP stage is the
+    /// NPN stage with every current reversed, so each of its diodes is drawn turned round.
+    fn polar_diode(&mut self, npn_anode: (f64, f64), npn_cathode: (f64, f64), polarity: Polarity) {
+        match polarity {
+            Polarity::Npn => self.diode(npn_anode, npn_cathode),
+            Polarity::Pnp => self.diode(npn_cathode, npn_anode),
+        }
+    }
     /// Transistor with its base bar at `bar_x`; `facing` +1 when the base lead goes right.
     /// Returns (collector, emitter) lead ends.
     fn transistor(
@@ -309,8 +317,8 @@ pub fn stage_svg(design: &StageDesign) -> String {
                     );
                     let node = (x0 + 70.0, y);
                     s.dot(node.0, node.1);
-                    // Diode anode at the base, cathode at the steering node.
-                    s.diode((x0 + 150.0, y), node);
+                    // NPN: anode at the base, cathode at the steering node (PNP reversed).
+                    s.polar_diode((x0 + 150.0, y), node, polarity);
                     s.net_label(x0 + 154.0, y, "start", base_net);
                     s.label(x0 + 110.0, y - 18.0, "middle", &format!("D10{index}"), "");
                     s.resistor(node, (node.0, y + 50.0));
@@ -343,8 +351,8 @@ pub fn stage_svg(design: &StageDesign) -> String {
                 for (index, dx, net) in [(1, 90.0, "C1"), (2, 200.0, "C2")] {
                     let end = (node.0 + dx + 60.0, y);
                     s.line(node.0, y, node.0 + dx - 20.0, y);
-                    // Anode at the collector, cathode at the common node.
-                    s.diode(end, (node.0 + dx - 20.0, y));
+                    // NPN: anode at the collector, cathode at the common node (PNP reversed).
+                    s.polar_diode(end, (node.0 + dx - 20.0, y), polarity);
                     s.net_label(end.0 + 4.0, y, "start", net);
                     s.label(node.0 + dx + 20.0, y + 22.0, "middle", &format!("D10{index}"), "");
                 }
@@ -359,7 +367,122 @@ pub fn stage_svg(design: &StageDesign) -> String {
 
 #[cfg(test)]
 mod tests {
-    use flipwright::design_file::DesignFile;
+    use flipwright::design_file::{DesignFile, DeviceChoice};
+    use flipwright::stage::{StageDesign, Steering};
+
+    /// The demo requirements with another transistor and steering, values synthesised.
+    fn designed(transistor_id: &str, steering: Steering) -> StageDesign {
+        let mut file = DesignFile::demo();
+        file.transistor = DeviceChoice::Archetype(transistor_id.to_string());
+        file.requirements.steering = steering;
+        let input = file.synthesis_input().unwrap_or_else(|e| unreachable!("{e:?}"));
+        let outcome =
+            flipwright::stage::synthesis::synthesise(&input).unwrap_or_else(|e| unreachable!("{e}"));
+        file.values = Some(outcome.values);
+        file.stage_input(None).and_then(StageDesign::new).unwrap_or_else(|e| unreachable!("{e:?}"))
+    }
+
+    fn numbers(text: &str) -> Vec<f64> {
+        text.split(|c: char| !(c.is_ascii_digit() || c == '.' || c == '-'))
+            .filter_map(|t| t.parse().ok())
+            .collect()
+    }
+
+    fn attribute<'a>(element: &'a str, name: &str) -> &'a str {
+        let key = format!(r#"{name}=""#);
+        element.split(&key).nth(1).and_then(|rest| rest.split('"').next()).unwrap_or("")
+    }
+
+    /// A diode's lead ends as drawn, in page coordinates.
+    struct DrawnDiode {
+        anode: (f64, f64),
+        cathode: (f64, f64),
+    }
+
+    /// Every drawn diode's anode and cathode ends in page coordinates, read from the symbol
+    /// itself: the triangle's tip points at the cathode bar, its flat side faces the anode.
+    fn drawn_diodes(svg: &str) -> Vec<DrawnDiode> {
+        let mut diodes = Vec::new();
+        for group in svg.split("<g ").skip(1) {
+            let group = group.split("</g>").next().unwrap_or("");
+            let Some(triangle) = group.split("<polygon").nth(1) else { continue };
+            let place = numbers(attribute(group, "transform"));
+            let [tx, ty, angle_deg] = place[..] else { continue };
+            let points = numbers(attribute(triangle, "points"));
+            let vertices: Vec<(f64, f64)> = points.chunks(2).map(|p| (p[0], p[1])).collect();
+            let Some(tip) = vertices.iter().find(|v| v.1 == 0.0) else { continue };
+            let flat_x = vertices.iter().filter(|v| v.1 != 0.0).map(|v| v.0).sum::<f64>() / 2.0;
+            let lead_xs: Vec<f64> = group
+                .split("<line")
+                .skip(1)
+                .flat_map(|l| [attribute(l, "x1"), attribute(l, "x2")])
+                .filter_map(|x| x.parse().ok())
+                .collect();
+            let (near, far) = (
+                lead_xs.iter().cloned().fold(f64::MAX, f64::min),
+                lead_xs.iter().cloned().fold(f64::MIN, f64::max),
+            );
+            let (anode_x, cathode_x) = if flat_x < tip.0 { (near, far) } else { (far, near) };
+            let (sin, cos) = angle_deg.to_radians().sin_cos();
+            let global = |x: f64| (tx + x * cos, ty + x * sin);
+            diodes.push(DrawnDiode { anode: global(anode_x), cathode: global(cathode_x) });
+        }
+        diodes
+    }
+
+    /// Where the net label `name` is written, for every label of that name.
+    fn net_labels(svg: &str, name: &str) -> Vec<(f64, f64)> {
+        svg.split("<text ")
+            .skip(1)
+            .filter(|t| {
+                attribute(t, "class") == "net"
+                    && t.split('>').nth(1).and_then(|r| r.split('<').next()) == Some(name)
+            })
+            .filter_map(|t| Some((attribute(t, "x").parse().ok()?, attribute(t, "y").parse().ok()?)))
+            .collect()
+    }
+
+    fn distance(a: (f64, f64), b: (f64, f64)) -> f64 {
+        ((a.0 - b.0).powi(2) + (a.1 - b.1).powi(2)).sqrt()
+    }
+
+    /// Each steering diode's end at the trigger network's label of `nets` (a base in base
+    /// steering, a collector in collector steering) must be its anode for NPN and its cathode
+    /// for PNP: the PNP stage is the NPN one with every current reversed (the simulation runs
+    /// that mirror). Labels below the stage (y > 420) are the trigger network's.
+    fn check_diodes(transistor_id: &str, steering: Steering, nets: [&str; 2], anode_at_net: bool) {
+        let svg = super::stage_svg(&designed(transistor_id, steering));
+        let diodes = drawn_diodes(&svg);
+        assert_eq!(diodes.len(), 2, "{transistor_id} {steering:?}: two steering diodes drawn");
+        for net in nets {
+            let labels: Vec<_> = net_labels(&svg, net).into_iter().filter(|l| l.1 > 420.0).collect();
+            assert_eq!(labels.len(), 1, "{transistor_id} {steering:?}: one trigger-network label {net}");
+            let label = labels[0];
+            let nearest = |ends: &mut dyn Iterator<Item = (f64, f64)>| {
+                ends.map(|end| distance(end, label)).fold(f64::MAX, f64::min)
+            };
+            let to_anode = nearest(&mut diodes.iter().map(|d| d.anode));
+            let to_cathode = nearest(&mut diodes.iter().map(|d| d.cathode));
+            assert_eq!(
+                to_anode < to_cathode,
+                anode_at_net,
+                "{transistor_id} {steering:?}: at {net} the diode's anode is {to_anode:.1} away, its cathode {to_cathode:.1}"
+            );
+        }
+    }
+
+    #[test]
+    fn steering_diodes_point_by_polarity_with_base_steering() {
+        check_diodes("si-npn-switch-40v", Steering::Base, ["B1", "B2"], true);
+        check_diodes("si-pnp-switch-40v", Steering::Base, ["B1", "B2"], false);
+        check_diodes("ge-pnp-alloy-15v", Steering::Base, ["B1", "B2"], false);
+    }
+
+    #[test]
+    fn steering_diodes_point_by_polarity_with_collector_steering() {
+        check_diodes("si-npn-switch-40v", Steering::Collector, ["C1", "C2"], true);
+        check_diodes("si-pnp-switch-40v", Steering::Collector, ["C1", "C2"], false);
+    }
 
     /// Regression: the schematic's unscoped `line, polyline, text` rules once restyled every
     /// other SVG on the page (the printed charts came out black, in the schematic's font).
