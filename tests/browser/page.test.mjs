@@ -133,6 +133,10 @@ test("printing gives A4 and Letter pages with the component table and cautions",
     }
     assert.ok(!text.includes("Open…"), "buttons are not printed");
     assert.ok(!text.includes("Verify by simulation"), "no verification section until one was run");
+    // Every page is numbered in its footer, and the summary line gives figures as a reader
+    // writes them (SI prefixes, per cent), not as the file stores them.
+    for (let k = 1; k <= pages; k++) assert.ok(text.includes(`page ${k} of ${pages}`), `${format}: no "page ${k} of ${pages}"`);
+    assert.ok(/toggle\s+rate\s+100\s+kHz/.test(text) && /resistors\s+±5\s+%/.test(text), `${format}: summary line not in SI: ${text.slice(0, 400)}`);
   }
   execFileSync("pdftoppm", ["-png", "-r", "60", join(shots, "print-A4.pdf"), join(shots, "print-A4")]);
   assert.deepEqual(problems, []);
