@@ -535,7 +535,7 @@ function render(view, synthesis) {
   const percent = (x) => `±${+(100 * x).toFixed(2)} %`;
   const named = (list, key) => (list.find(([value]) => value === key) || [key, key])[1];
   const transistorName = typeof d.transistor === "string" ? named(archetypeList.transistors, d.transistor) : d.transistor.label;
-  p.textContent = `Printed ${new Date().toISOString().slice(0, 10)} · supplies ${si(d.supplies.collector_supply_v, "V")} / ${si(d.supplies.bias_supply_v, "V")} ${percent(d.supplies.tolerance)} · ${d.conditions.t_min_c}…${d.conditions.t_max_c} °C · resistors ${percent(d.conditions.resistor_tolerance)}, capacitors ${percent(d.conditions.capacitor_tolerance)} · toggle rate ${si(d.requirements.toggle_rate_hz, "Hz")} · transistor ${transistorName}` +
+  p.textContent = `Printed ${new Date().toISOString().slice(0, 10)} · collector supply ${si(d.supplies.collector_supply_v, "V")}, bias supply ${si(d.supplies.bias_supply_v, "V")} (magnitudes) ${percent(d.supplies.tolerance)} · ${d.conditions.t_min_c}…${d.conditions.t_max_c} °C · resistors ${percent(d.conditions.resistor_tolerance)}, capacitors ${percent(d.conditions.capacitor_tolerance)} · toggle rate ${si(d.requirements.toggle_rate_hz, "Hz")} · transistor ${transistorName}` +
     (plan ? ` · divide by ${plan.divide_by} (${plan.stage_count} stages, ${plan.chosen_name})` : "");
   $("print-header").append(h, p);
 }
