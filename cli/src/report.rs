@@ -12,20 +12,11 @@ fn q(value: f64, unit: Unit) -> String {
     format_quantity(value, unit)
 }
 
-fn unit_of(name: &str) -> Option<Unit> {
-    match name {
-        "V" => Some(Unit::Volt),
-        "A" => Some(Unit::Ampere),
-        "W" => Some(Unit::Watt),
-        _ => None,
-    }
-}
-
 fn margin_value(value: f64, unit: &str) -> String {
     if !value.is_finite() {
         return "—".to_string();
     }
-    match unit_of(unit) {
+    match Unit::from_symbol(unit) {
         Some(u) => q(value, u),
         None => format!("{value:.2}"),
     }

@@ -34,12 +34,10 @@ impl Unit {
         [Unit::Ohm, Unit::Farad, Unit::Volt, Unit::Ampere, Unit::Second, Unit::Hertz, Unit::Watt];
 
     /// SI symbol; the ohm uses U+03A9 GREEK CAPITAL LETTER OMEGA, which Unicode prefers over U+2126.
-    /// The unit whose SI symbol is `symbol` ("V", "A", "Ω" or "ohm", …), if any.
+    /// The unit whose SI symbol is `symbol` ("V", "A", "Ω" or "ohm", …), if any: the same
+    /// lookup the quantity parser uses for a value's unit.
     pub fn from_symbol(symbol: &str) -> Option<Unit> {
-        match symbol {
-            "ohm" => Some(Unit::Ohm),
-            _ => Unit::ALL.into_iter().find(|unit| unit.symbol() == symbol),
-        }
+        quantity::unit_from_symbol(symbol)
     }
 
     pub fn symbol(self) -> &'static str {

@@ -160,7 +160,7 @@ fn prefix_exponent(prefix: char) -> Option<i32> {
 }
 
 /// The unit a symbol names; both omega code points and the word "ohm(s)" are accepted.
-fn unit_from_symbol(symbol: &str) -> Option<Unit> {
+pub(super) fn unit_from_symbol(symbol: &str) -> Option<Unit> {
     if symbol.eq_ignore_ascii_case("ohm") || symbol.eq_ignore_ascii_case("ohms") {
         return Some(Unit::Ohm);
     }
