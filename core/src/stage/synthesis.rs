@@ -332,10 +332,8 @@ fn neighbourhood_search(
                     candidates += 1;
                     // Prefer passing candidates near the first cut: small penalty per step.
                     let penalty = 0.002 * (drc.abs() + dr1.abs() + dr2.abs() + dre.abs()) as f64;
-                    let to_beat = best.as_ref().map_or(f64::NEG_INFINITY, |(s, _)| *s + penalty);
                     let best_score = best.as_ref().map(|(s, _)| *s);
-                    let Some(score) = dc_score(&design, base_model, to_beat, best_score, penalty, &mut cache)
-                    else {
+                    let Some(score) = dc_score(&design, base_model, best_score, penalty, &mut cache) else {
                         continue;
                     };
                     let adjusted = score.min(1.0) - penalty;
@@ -355,8 +353,8 @@ fn neighbourhood_search(
 /// Smallest normalised worst-case margin of the DC margins and the loop gain (≥ 0 means all
 /// pass). The DC margins come from the closed-form kernel's worst case; the loop gain (exact
 /// model, the costly part) is searched only when the DC score, capped at 1 as the caller caps
-/// it, beats `to_beat`: otherwise the candidate loses whatever its loop gain, and the DC score
-/// alone is returned.
+/// it, beats the best so far plus `penalty`: otherwise the candidate loses whatever its loop
+/// gain, and the DC score alone is returned.
 ///
 /// `None` also when the candidate provably loses to the best so far (`best_score`, against
 /// which the caller compares `score.min(1.0) - penalty`): a margin's worst case only falls as
@@ -366,20 +364,24 @@ fn neighbourhood_search(
 fn dc_score(
     design: &StageDesign,
     base_model: &EbersMoll,
-    to_beat: f64,
     best_score: Option<f64>,
     penalty: f64,
     cache: &mut ScreeningCache,
 ) -> Option<f64> {
-    let cannot_win = |k: usize, bound: f64| {
-        let (Some(best), Some(&kind)) = (best_score, DC_MARGINS.get(k)) else { return false };
-        let (required, scale) = room_terms(kind, design);
-        // The room is monotonic in the worst value only on a finite, positive scale.
-        required.is_finite()
-            && scale.is_finite()
-            && scale > 0.0
-            && ((bound - required) / scale).min(1.0) - penalty <= best
+    let to_beat = best_score.map_or(f64::NEG_INFINITY, |best| best + penalty);
+    // A bound on a margin's worst value, with that margin's (requirement, scale), already
+    // loses to the best so far. The room is monotonic in the worst value only on a finite,
+    // positive scale.
+    let loses = |(required, scale): (f64, f64), bound: f64| {
+        best_score.is_some_and(|best| {
+            required.is_finite()
+                && scale.is_finite()
+                && scale > 0.0
+                && ((bound - required) / scale).min(1.0) - penalty <= best
+        })
     };
+    let dc_terms = DC_MARGINS.map(|kind| room_terms(kind, design));
+    let cannot_win = |k: usize, bound: f64| dc_terms.get(k).is_some_and(|&terms| loses(terms, bound));
     let (worst, gave_up) = worst_dc_margins_until(design, cache, cannot_win);
     if gave_up {
         return None;
@@ -394,15 +396,8 @@ fn dc_score(
     let params = worst_case::parameters(design);
     let nominal_corner = Corner::nominal(design, nominal_temperature_c(design));
     // The same bound as for the DC margins, on the loop gain's search.
-    let (gain_required, gain_scale) = room_terms(MarginKind::LoopGain, design);
-    let gain_cannot_win = |bound: f64| {
-        best_score.is_some_and(|best| {
-            gain_required.is_finite()
-                && gain_scale.is_finite()
-                && gain_scale > 0.0
-                && ((bound - gain_required) / gain_scale).min(1.0) - penalty <= best
-        })
-    };
+    let gain_terms = room_terms(MarginKind::LoopGain, design);
+    let gain_cannot_win = |bound: f64| loses(gain_terms, bound);
     let ((gain, _), gave_up) =
         worst_case::loop_gain_worst_case_until(design, base_model, &params, &nominal_corner, gain_cannot_win);
     if gave_up {
