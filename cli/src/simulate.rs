@@ -133,16 +133,24 @@ fn simulate_circuit_file(path: &Path, text: &str, request: &Request) -> Result<u
         | SimulationError::UnknownHintNode { .. } => input_error(format!("{}: {e}", path.display())),
         other => Failure { code: EXIT_MARGINS_FAIL, message: format!("the simulation failed: {other}") },
     })?;
-    let written = match &request.csv {
-        Some(out) => {
-            let table = to_csv(&result, &probes).map_err(|e| input_error(e.to_string()))?;
-            write(out, &table)?;
-            Some((out.as_path(), table.len()))
-        }
-        None => None,
-    };
+    let written = write_waveforms(request.csv.as_deref(), &result, &probes, input_error)?;
     print!("{}", render(&file, &result, &probes, written));
     Ok(0)
+}
+
+/// Writes the probes' waveforms to `out` as CSV when it is given; returns where and how many
+/// bytes, for [`waveform_line`]. `export_failure` turns a probe the export refuses into the
+/// caller's kind of failure.
+pub fn write_waveforms<'a>(
+    out: Option<&'a Path>,
+    result: &TransientResult,
+    probes: &[Probe],
+    export_failure: fn(String) -> Failure,
+) -> Result<Option<(&'a Path, usize)>, Failure> {
+    let Some(out) = out else { return Ok(None) };
+    let table = to_csv(result, probes).map_err(|e| export_failure(e.to_string()))?;
+    write(out, &table)?;
+    Ok(Some((out, table.len())))
 }
 
 /// What became of the waveforms: the CSV written with its size, or how to ask for it.

@@ -9,7 +9,7 @@ use std::path::Path;
 
 use flipwright::chain::{plan_chain, ChainRequest, Method, MethodKind};
 use flipwright::stage::StageDesign;
-use flipwright::transient::export::{parse_probe, to_csv};
+use flipwright::transient::export::parse_probe;
 use flipwright::transient::{Probe, TransientResult};
 use flipwright::units::{format_quantity, Unit};
 use flipwright::verify::{
@@ -17,8 +17,8 @@ use flipwright::verify::{
     SimulationCorner, VerifyError, VerifyOptions,
 };
 
-use crate::simulate::waveform_line;
-use crate::{load_design, usage, write, Failure, EXIT_MARGINS_FAIL};
+use crate::simulate::{waveform_line, write_waveforms};
+use crate::{load_design, usage, Failure, EXIT_MARGINS_FAIL};
 
 /// Design-file options of `simulate`.
 pub struct DesignRequest {
@@ -306,14 +306,7 @@ pub fn simulate_design_file(
     };
     let result = in_real_polarity(result, sign);
     let probes = choose_probes(&built, &result, probes)?;
-    let written = match csv {
-        Some(out) => {
-            let table = to_csv(&result, &probes).map_err(|e| usage(e.to_string()))?;
-            write(out, &table)?;
-            Some((out, table.len()))
-        }
-        None => None,
-    };
+    let written = write_waveforms(csv, &result, &probes, usage)?;
     let mut head = String::new();
     render_run(&mut head, &what, &design, &built, &check, shown_temperature_c);
     let _ = writeln!(head, "{}", waveform_line(written, result.time_s.len(), probes.len()));
