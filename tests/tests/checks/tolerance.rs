@@ -153,10 +153,12 @@ fn chain_worst_case_combines_the_stage_worst_cases() {
 /// The worst case bounds every Monte Carlo trial (definition of a worst case over the same
 /// ranges; no outside source): with uniform draws inside the tolerance box, no trial may give
 /// a margin below the corner search's worst. A fresh-eyes review found the demo's reverse
-/// base–emitter margin 30 mV below its "worst case" in a run, because the search held C1 and
-/// Ct at nominal while the trials varied them; this fails if any varied quantity is left out
-/// of the search again. Tolerance: 1e-9 relative (the kernel and the stage model agree to
-/// that, see `kernel_worst_case_matches_the_stage_worst_case_search`).
+/// base–emitter margin 30 mV below its "worst case" in a 200 000-trial run, because the search
+/// held C1 and Ct at nominal while the trials varied them. The parameter and reverse-VBE
+/// assertions below fail on that old search; the 20 000-trial bound alone did not catch it
+/// (those trials stayed above the old worst value), so it guards the general property, not
+/// that defect. Tolerance: 1e-9 relative (the kernel and the stage model agree to that, see
+/// `kernel_worst_case_matches_the_stage_worst_case_search`).
 #[test]
 fn no_trial_falls_below_the_worst_case() {
     let design = demo();
