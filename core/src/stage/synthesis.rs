@@ -223,8 +223,14 @@ fn design_at_current(
     let mut capacitors = snapped;
     let mut values = snapped;
     for pass in 0..2 {
-        let (score, chosen, candidates) =
-            neighbourhood_search(input, &snapped, &capacitors, emitter_resistor, &base_model);
+        let (score, chosen, candidates) = neighbourhood_search(
+            input,
+            &snapped,
+            &capacitors,
+            emitter_resistor,
+            &base_model,
+            (pass > 0).then_some(&values),
+        );
         values = chosen;
         steps.push(format!(
             "pass {}: searched {candidates} neighbouring {} value sets; chose RC {}, R1 {}, R2 {}{} ({})",
@@ -289,17 +295,18 @@ fn design_at_current(
 }
 
 /// Searches the neighbouring series values of the snapped first cut, with the capacitors and
-/// trigger network of `capacitors`; returns (score, values, candidates tried).
+/// trigger network of `capacitors`, trying the resistors of `likely` first; returns (score,
+/// values, candidates tried).
 fn neighbourhood_search(
     input: &StageInput,
     snapped: &StageValues,
     capacitors: &StageValues,
     emitter_resistor: f64,
     base_model: &EbersMoll,
+    likely: Option<&StageValues>,
 ) -> (f64, StageValues, usize) {
     let series = input.requirements.resistor_series;
     let snapped = *snapped;
-    let mut best: Option<(f64, StageValues)> = None;
     let rc_steps: &[i32] = &[0, -1, 1];
     let re_steps: &[i32] = if emitter_resistor > 0.0 { &[0, 1, -1, 2] } else { &[0] };
     let mut candidates = 0;
@@ -312,41 +319,91 @@ fn neighbourhood_search(
     let r2_steps: Vec<(i32, f64)> = (-3i32..=3).map(|d| (d, stepped(snapped.base_resistor_ohm, d))).collect();
     let re_values: Vec<(i32, f64)> =
         re_steps.iter().map(|&d| (d, stepped(snapped.emitter_resistor_ohm, d))).collect();
+    // The neighbourhood in its listing order, which decides ties (the earlier candidate
+    // wins). The second pass tries the first pass's choice first: it usually wins again, and
+    // with its score known from the start, the bound that stops a losing candidate's search
+    // bites on every other candidate (9 % fewer instructions for the demo's synthesis under
+    // callgrind; trying the nearest candidates first instead cost 14 % more).
+    let mut neighbourhood =
+        Vec::with_capacity(rc_steps.len() * r1_steps.len() * r2_steps.len() * re_values.len());
     for &drc in rc_steps {
         let rc = stepped(snapped.collector_resistor_ohm, drc);
         for &(dr1, r1) in &r1_steps {
             for &(dr2, r2) in &r2_steps {
                 for &(dre, re) in &re_values {
-                    let mut values = snapped;
-                    values.commutating_capacitor_f = capacitors.commutating_capacitor_f;
-                    values.trigger = capacitors.trigger;
-                    values.collector_resistor_ohm = rc;
-                    values.cross_resistor_ohm = r1;
-                    values.base_resistor_ohm = r2;
-                    if emitter_resistor > 0.0 {
-                        values.emitter_resistor_ohm = re;
-                    }
-                    let mut candidate_input = input.clone();
-                    candidate_input.values = values;
-                    let Ok(design) = StageDesign::new(candidate_input) else { continue };
-                    candidates += 1;
-                    // Prefer passing candidates near the first cut: small penalty per step.
-                    let penalty = 0.002 * (drc.abs() + dr1.abs() + dr2.abs() + dre.abs()) as f64;
-                    let best_score = best.as_ref().map(|(s, _)| *s);
-                    let Some(score) = dc_score(&design, base_model, best_score, penalty, &mut cache) else {
-                        continue;
-                    };
-                    let adjusted = score.min(1.0) - penalty;
-                    if best.as_ref().is_none_or(|(s, _)| adjusted > *s) {
-                        best = Some((adjusted, values));
-                    }
+                    let steps = drc.abs() + dr1.abs() + dr2.abs() + dre.abs();
+                    neighbourhood.push((neighbourhood.len(), steps, [rc, r1, r2, re]));
                 }
             }
         }
     }
+    let is_likely = |r: &[f64; 4]| {
+        likely.is_some_and(|v| {
+            *r == [
+                v.collector_resistor_ohm,
+                v.cross_resistor_ohm,
+                v.base_resistor_ohm,
+                v.emitter_resistor_ohm,
+            ]
+        })
+    };
+    neighbourhood.sort_by_key(|(listed, _, r)| (!is_likely(r), *listed));
+    // (adjusted score, values, listing position) of the best so far.
+    let mut best: Option<(f64, StageValues, usize)> = None;
+    for &(listed, steps, [rc, r1, r2, re]) in &neighbourhood {
+        let mut values = snapped;
+        values.commutating_capacitor_f = capacitors.commutating_capacitor_f;
+        values.trigger = capacitors.trigger;
+        values.collector_resistor_ohm = rc;
+        values.cross_resistor_ohm = r1;
+        values.base_resistor_ohm = r2;
+        if emitter_resistor > 0.0 {
+            values.emitter_resistor_ohm = re;
+        }
+        let mut candidate_input = input.clone();
+        candidate_input.values = values;
+        let Ok(design) = StageDesign::new(candidate_input) else { continue };
+        candidates += 1;
+        // Prefer passing candidates near the first cut: small penalty per step.
+        let penalty = 0.002 * steps as f64;
+        // A candidate listed before the best so far wins a tie with it.
+        let rival = best.as_ref().map(|&(s, _, at)| Rival { score: s, ties_win: listed < at });
+        let Some(score) = dc_score(&design, base_model, rival, penalty, &mut cache) else {
+            continue;
+        };
+        let adjusted = score.min(1.0) - penalty;
+        let wins = match best.as_ref() {
+            None => true,
+            Some(&(s, _, at)) => adjusted > s || (adjusted == s && listed < at),
+        };
+        if wins {
+            best = Some((adjusted, values, listed));
+        }
+    }
+    let best = best.map(|(score, values, _)| (score, values));
     match best {
         Some((score, values)) => (score, values, candidates),
         None => (f64::NEG_INFINITY, snapped, candidates),
+    }
+}
+
+/// The best candidate so far, as a candidate being scored meets it.
+#[derive(Clone, Copy)]
+struct Rival {
+    /// Its adjusted score (capped score less its penalty).
+    score: f64,
+    /// The candidate being scored is listed before it, so an equal score wins.
+    ties_win: bool,
+}
+
+impl Rival {
+    /// The rival keeps its place against a candidate of adjusted score `adjusted`.
+    fn beats(self, adjusted: f64) -> bool {
+        if self.ties_win {
+            adjusted < self.score
+        } else {
+            adjusted <= self.score
+        }
     }
 }
 
@@ -356,29 +413,25 @@ fn neighbourhood_search(
 /// it, beats the best so far plus `penalty`: otherwise the candidate loses whatever its loop
 /// gain, and the DC score alone is returned.
 ///
-/// `None` also when the candidate provably loses to the best so far (`best_score`, against
-/// which the caller compares `score.min(1.0) - penalty`): a margin's worst case only falls as
-/// the search goes on, and its room only falls with it, so once one margin's room `r` has
-/// `r.min(1.0) - penalty <= best_score` (the caller's own comparison, rounding included), so
-/// does the score's, whatever the rest of the search finds.
+/// `None` also when the candidate provably loses to the best so far (`rival`, against which
+/// the caller compares `score.min(1.0) - penalty`): a margin's worst case only falls as the
+/// search goes on, and its room only falls with it, so once one margin's room `r` has
+/// `r.min(1.0) - penalty` lose to the rival (the caller's own comparison, rounding and ties
+/// included), so does the score's, whatever the rest of the search finds.
 fn dc_score(
     design: &StageDesign,
     base_model: &EbersMoll,
-    best_score: Option<f64>,
+    rival: Option<Rival>,
     penalty: f64,
     cache: &mut ScreeningCache,
 ) -> Option<f64> {
-    let to_beat = best_score.map_or(f64::NEG_INFINITY, |best| best + penalty);
+    // The caller's own comparison of a (bound on the) score with the best so far.
+    let loses_with = |score: f64| rival.is_some_and(|r| r.beats(score.min(1.0) - penalty));
     // A bound on a margin's worst value, with that margin's (requirement, scale), already
     // loses to the best so far. The room is monotonic in the worst value only on a finite,
     // positive scale.
     let loses = |(required, scale): (f64, f64), bound: f64| {
-        best_score.is_some_and(|best| {
-            required.is_finite()
-                && scale.is_finite()
-                && scale > 0.0
-                && ((bound - required) / scale).min(1.0) - penalty <= best
-        })
+        required.is_finite() && scale.is_finite() && scale > 0.0 && loses_with((bound - required) / scale)
     };
     let dc_terms = DC_MARGINS.map(|kind| room_terms(kind, design));
     let cannot_win = |k: usize, bound: f64| dc_terms.get(k).is_some_and(|&terms| loses(terms, bound));
@@ -390,7 +443,7 @@ fn dc_score(
     for (kind, value) in DC_MARGINS.iter().zip(worst) {
         score = score.min(normalised_room(*kind, value, design));
     }
-    if !score.is_finite() || score.min(1.0) <= to_beat {
+    if !score.is_finite() || loses_with(score) {
         return score.is_finite().then_some(score);
     }
     let params = worst_case::parameters(design);
