@@ -547,11 +547,12 @@ function bitsHeader(stages) {
   return `Q stage ${stages}…1`;
 }
 
-/** The count table, or its first and last rows when it is long (the print stays short). */
-const COUNT_ROWS = 64;
-function countRows(rows) {
-  if (rows.length <= COUNT_ROWS) return rows;
-  return rows.slice(0, COUNT_ROWS - 8).concat([null], rows.slice(-8));
+/** The count table as the bridge sends it (a long one as its first and last rows), with a
+ *  marker row where rows are left out. */
+function countRows(plan) {
+  const rows = plan.count_table;
+  if (!plan.count_rows_omitted) return rows;
+  return rows.slice(0, plan.count_head_rows).concat([null], rows.slice(plan.count_head_rows));
 }
 
 function loadText(load) {
@@ -592,13 +593,13 @@ function renderPlan(outcome) {
   const reasons = $("plan-reasons");
   reasons.textContent = "";
   for (const r of plan.recommendation_reasons) { const li = document.createElement("li"); li.textContent = r; reasons.appendChild(li); }
-  const shown = countRows(plan.count_table);
+  const shown = countRows(plan);
   table($("plan-count"), ["Pulse", "Count", bitsHeader(n), "Output", "Correction"],
     shown.map(r => r === null
-      ? [{ text: "…" }, { text: `${plan.count_table.length - COUNT_ROWS} rows` }, "", "", ""]
+      ? [{ text: "…" }, { text: `${plan.count_rows_omitted} rows` }, "", "", ""]
       : [{ text: String(r.pulse), className: "num" }, { text: String(r.state), className: "num" }, { text: r.bits, className: "bits" }, r.output_high ? "1" : "0", r.correction || ""]));
-  $("plan-count-note").textContent = plan.count_table.length > COUNT_ROWS
-    ? `First ${COUNT_ROWS - 8} and last 8 of ${plan.count_table.length} rows. The cycle starts from 0 (all stages cleared).`
+  $("plan-count-note").textContent = plan.count_rows_omitted
+    ? `First ${plan.count_head_rows} and last ${plan.count_table.length - plan.count_head_rows} of ${plan.count_rows} rows. The cycle starts from 0 (all stages cleared).`
     : "The cycle starts from 0 (all stages cleared).";
   const chosen = plan.methods.find(m => m.chosen);
   const t = chosen && chosen.timing;
@@ -1001,17 +1002,25 @@ function showAssumptions(list, designJson) {
 }
 
 /** Canvases at CSS size × devicePixelRatio; plotters draws with the same factor. */
+// What each canvas last showed: its data object and drawing size. A frame redraws only the
+// charts whose data or size changed (an edit replaces the plan's diagram, not the
+// verification's waveforms), so the frame after an edit draws one chart instead of all.
+const drawn = new WeakMap();
 function drawOn(canvas, exportName, data) {
   // The content box: the border is not part of the drawing surface.
   const width = canvas.clientWidth;
   const height = canvas.clientHeight;
   if (width === 0 || height === 0) return;
   const ratio = window.devicePixelRatio || 1;
+  const last = drawn.get(canvas);
+  if (last && last.data === data && last.width === width && last.height === height && last.ratio === ratio) return;
   canvas.width = Math.round(width * ratio);
   canvas.height = Math.round(height * ratio);
   try {
     callNow(exportName, canvas, data, ratio);
+    drawn.set(canvas, { data, width, height, ratio });
   } catch (error) {
+    drawn.delete(canvas);
     showStatus("Cannot draw the chart: " + error.message, "error");
   }
 }

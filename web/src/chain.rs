@@ -81,7 +81,16 @@ pub struct ChainPlanView {
     pub recommended: MethodKind,
     pub recommendation_reasons: Vec<String>,
     pub methods: Vec<MethodSummary>,
+    /// The count table as the page shows it: every row up to [`COUNT_ROWS_SHOWN`], else the
+    /// first rows and the last [`COUNT_TAIL_ROWS`] (a divide-by-1024 table is not read row by
+    /// row, and sending it whole cost the page a third of its recompute time).
     pub count_table: Vec<CountRow>,
+    /// Rows of the whole table (one per input pulse of the cycle).
+    pub count_rows: usize,
+    /// Rows of `count_table` before the rows left out (all of them when it is whole).
+    pub count_head_rows: usize,
+    /// Rows left out after the first `count_head_rows` (0 when the table is whole).
+    pub count_rows_omitted: usize,
     pub decoded_stages: Vec<u32>,
     pub feedback: Option<FeedbackView>,
     pub glitches: GlitchSummary,
@@ -100,9 +109,19 @@ fn bits(state: u32, stages: u32) -> String {
     (0..stages).rev().map(|bit| if state >> bit & 1 == 1 { '1' } else { '0' }).collect()
 }
 
-fn count_table(plan: &MethodPlan, stages: u32) -> Vec<CountRow> {
-    plan.count_sequence
-        .iter()
+/// Count-table rows shown whole; a longer table shows its first rows and the last
+/// [`COUNT_TAIL_ROWS`], this many in all.
+pub const COUNT_ROWS_SHOWN: usize = 64;
+pub const COUNT_TAIL_ROWS: usize = 8;
+
+/// The count table's rows as shown (see [`ChainPlanView::count_table`]), the rows before the
+/// gap, and the rows left out there.
+fn count_table(plan: &MethodPlan, stages: u32) -> (Vec<CountRow>, usize, usize) {
+    let rows = &plan.count_sequence;
+    let omitted = rows.len().saturating_sub(COUNT_ROWS_SHOWN);
+    let head = if omitted > 0 { COUNT_ROWS_SHOWN - COUNT_TAIL_ROWS } else { rows.len() };
+    let shown = rows.iter().take(head).chain(rows.iter().skip(head + omitted));
+    let table = shown
         .map(|row| CountRow {
             pulse: row.pulse,
             state: row.settled_state,
@@ -116,7 +135,8 @@ fn count_table(plan: &MethodPlan, stages: u32) -> Vec<CountRow> {
                 format!("{kind} from {} ({})", row.reached_state, bits(row.reached_state, stages))
             }),
         })
-        .collect()
+        .collect();
+    (table, head, omitted)
 }
 
 /// Glitch examples listed at most (the counts cover them all).
@@ -274,6 +294,7 @@ fn plan_view(chain: ChainDesign, input_rate_hz: f64) -> Result<ChainPlanView, St
             )
         }
     };
+    let (count_table, count_head_rows, count_rows_omitted) = count_table(chosen_plan, stages);
     let (loads, loads_problem) = match chain.loads {
         Ok(loads) => (loads, None),
         Err(problem) => (Vec::new(), Some(problem)),
@@ -287,7 +308,10 @@ fn plan_view(chain: ChainDesign, input_rate_hz: f64) -> Result<ChainPlanView, St
         recommended: chain.recommendation.method,
         recommendation_reasons: chain.recommendation.reasons.clone(),
         methods,
-        count_table: count_table(chosen_plan, stages),
+        count_table,
+        count_rows: chosen_plan.count_sequence.len(),
+        count_head_rows,
+        count_rows_omitted,
         decoded_stages,
         feedback,
         glitches: glitches(chosen_plan, stages),
@@ -441,6 +465,24 @@ mod tests {
             Some("reset from 10 (1010)")
         );
         assert!(plan.parts.iter().any(|p| p.designator == "R901"), "reset network in the parts");
+    }
+
+    #[test]
+    fn a_long_count_table_keeps_its_first_and_last_rows() {
+        // Divide by 1024 with ten binary stages: pulse k leaves the count k mod 1024 (a ripple
+        // counter's natural binary sequence, common practice).
+        let plan = plan_of(r#"{"divide_by": 1024}"#);
+        assert_eq!((plan.count_rows, plan.count_table.len()), (1024, COUNT_ROWS_SHOWN));
+        assert_eq!(plan.count_head_rows, COUNT_ROWS_SHOWN - COUNT_TAIL_ROWS);
+        assert_eq!(plan.count_rows_omitted, 1024 - COUNT_ROWS_SHOWN);
+        let pulses: Vec<u32> = plan.count_table.iter().map(|r| r.pulse).collect();
+        let expected: Vec<u32> = (1..=56).chain(1017..=1024).collect();
+        assert_eq!(pulses, expected);
+        assert!(plan.count_table.iter().all(|r| r.state == r.pulse % 1024));
+        assert_eq!(plan.count_table.last().map(|r| r.bits.as_str()), Some("0000000000"));
+        // A short table is whole.
+        let decade = plan_of(r#"{"divide_by": 10, "method": "reset_on_count"}"#);
+        assert_eq!((decade.count_rows, decade.count_head_rows, decade.count_rows_omitted), (10, 10, 0));
     }
 
     #[test]

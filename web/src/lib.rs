@@ -4,6 +4,7 @@
 #[cfg(feature = "bench")]
 mod bench;
 pub mod chain;
+mod packed;
 pub mod plots;
 mod schematic;
 pub mod tolerance_plots;
@@ -69,7 +70,9 @@ pub struct SynthesisView {
 }
 
 fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsError> {
-    let serializer = serde_wasm_bindgen::Serializer::json_compatible();
+    // Plain objects and null as JSON would give them, but bytes as a Uint8Array: the packed
+    // series (`packed`) are handed over in one copy instead of element by element.
+    let serializer = serde_wasm_bindgen::Serializer::json_compatible().serialize_bytes_as_arrays(false);
     value
         .serialize(&serializer)
         .map_err(|e| JsError::new(&format!("cannot pass the result to the page: {e}")))

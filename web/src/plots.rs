@@ -38,7 +38,9 @@ pub struct WaveformChart {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct TimingDiagram {
     pub run: DecimatedRun,
-    /// Start of every active input edge, and the end of the last period after them, s.
+    /// Start of every active input edge, and the end of the last period after them, s
+    /// (packed for the page, see [`crate::packed`]).
+    #[serde(with = "crate::packed")]
     pub edge_times_s: Vec<f64>,
     /// Count read after each edge; `None` where a stage sat between its states.
     pub counts: Vec<Option<u64>>,

@@ -17,7 +17,10 @@ pub struct DecimatedTrace {
     pub node: String,
     /// What the page calls it (`Q1 collector`).
     pub label: String,
+    /// Per bucket, packed for the page (see [`crate::packed`]).
+    #[serde(with = "crate::packed")]
     pub min_v: Vec<f64>,
+    #[serde(with = "crate::packed")]
     pub max_v: Vec<f64>,
 }
 
