@@ -191,8 +191,13 @@ pub fn logic_diagram(plan: &MethodPlan, stages: u32, input_rate_hz: f64) -> Timi
         let k = ((t - first_edge_s) / period_s).floor() as usize;
         plan.count_sequence.get(k.min(pulses.saturating_sub(1))).map_or(0, |r| r.settled_state)
     };
+    let last_edge_s = first_edge_s + pulses.saturating_sub(1) as f64 * period_s;
     let input_at = |t: f64| -> f64 {
-        // High for the half period before each edge.
+        // High for the half period before each edge, and low after the last one: the next
+        // cycle's first edge is not drawn, so neither is the pulse before it.
+        if t > last_edge_s {
+            return 0.0;
+        }
         let phase = ((t - first_edge_s) / period_s).rem_euclid(1.0);
         if phase >= 0.5 {
             1.0
@@ -200,16 +205,19 @@ pub fn logic_diagram(plan: &MethodPlan, stages: u32, input_rate_hz: f64) -> Timi
             0.0
         }
     };
-    // Sample each bucket at its two ends and at every edge or mid-period inside it, so the
-    // envelope holds every level the bucket spans.
+    // Sample each bucket just inside its two ends and on both sides of every edge or
+    // mid-period inside it, so the envelope holds every level the bucket spans and no other.
+    // The samples keep a small inset from every boundary and edge: a bucket that starts on an
+    // edge (8 buckets per period put every edge on a boundary) must not see the level before
+    // it, nor the rounding of the period arithmetic decide which side of the edge a sample is.
+    let inset = 1e-6 * width_s;
     let samples_in = |i: usize| -> Vec<f64> {
         let (a, b) = (start_s + i as f64 * width_s, start_s + (i + 1) as f64 * width_s);
-        let mut times = vec![a, b - 1e-9 * width_s];
+        let mut times = vec![a + inset, b - inset];
         let half = 0.5 * period_s;
         let mut t = first_edge_s + ((a - first_edge_s) / half).ceil() * half;
         while t < b {
-            times.push(t);
-            times.push(t - 1e-6 * half);
+            times.extend([t - inset, t + inset].into_iter().filter(|&x| a < x && x < b));
             t += half;
         }
         times
@@ -497,6 +505,44 @@ mod tests {
         let top = &d.run.traces[4];
         assert!(top.max_v.contains(&1.0) && top.min_v.contains(&0.0));
         assert!(d.run.traces.iter().all(|t| t.min_v.len() == d.run.buckets));
+    }
+
+    /// The logic diagram of a divide-by-60 chain (reset on count: the count sequence 1 … 59, 0
+    /// is the definition of a modulo-60 counter) read back from its buckets: the input is one
+    /// clean pulse per period, and the stage lanes spell each period's count in binary.
+    #[test]
+    fn the_logic_diagram_reads_back_as_the_count_sequence_with_clean_input_pulses() {
+        let plan = plan_of(r#"{"divide_by": 60, "method": "reset_on_count"}"#);
+        let d = &plan.diagram;
+        let run = &d.run;
+        assert_eq!(run.buckets, 8 * 61, "eight buckets per period, below the bucket cap");
+        // Every edge falls on a bucket boundary, so no bucket spans two levels.
+        for trace in &run.traces {
+            assert!(
+                trace.min_v.iter().zip(&trace.max_v).all(|(a, b)| a == b),
+                "{}: a bucket spans an edge",
+                trace.label
+            );
+        }
+        let input = &run.traces[0].max_v;
+        let rising = input.windows(2).filter(|w| w[0] < w[1]).count();
+        // High for the half period before every active edge: one rise per edge after the first
+        // (the input starts high, half a period before the first edge), then low to the end.
+        assert_eq!(rising, 59);
+        let (periods, after) = input.split_at(8 * 60);
+        assert!(periods.chunks(8).all(|p| p == [1.0, 1.0, 1.0, 1.0, 0.0, 0.0, 0.0, 0.0]), "{periods:?}");
+        assert!(after.iter().all(|&v| v == 0.0));
+        for (k, count) in d.counts.iter().enumerate() {
+            // Middle of the period after edge k (edges at 4, 12, 20, … buckets).
+            let middle = 8 + 8 * k;
+            let read: u64 = run.traces[1..]
+                .iter()
+                .enumerate()
+                .map(|(bit, t)| u64::from(t.max_v.get(middle).copied().unwrap_or(0.0) == 1.0) << bit)
+                .sum();
+            assert_eq!(Some(read), *count, "period after pulse {}", k + 1);
+            assert_eq!(read, (k as u64 + 1) % 60);
+        }
     }
 
     #[test]

@@ -363,27 +363,46 @@ fn timing_diagram_on<DB: DrawingBackend>(
         let small = m.font(10.0).color(&MUTED).pos(Pos::new(HPos::Right, VPos::Top));
         root.draw(&Text::new(levels, (px - m.px(8.0), py + m.px(2.0)), small)).map_err(fail)?;
     }
-    // Counts above the lanes, centred in the period each was read in, when they fit.
+    // Counts above the lanes, centred in the period each was read in. When they do not all
+    // fit, every s-th pulse's count (s from 1, 2, 5, 10, 20, 50, …, the least that fits);
+    // a count that could not be read ("?") is always shown.
     let widest = diagram.counts.iter().flatten().max().map_or(1, |c| c.to_string().len()) as f64;
-    if pixels_per_period >= f64::from(m.px(7.0 * widest + 4.0)) {
-        for (k, count) in diagram.counts.iter().enumerate() {
-            let (Some(start), Some(end)) = (diagram.edge_times_s.get(k), diagram.edge_times_s.get(k + 1))
-            else {
-                continue;
-            };
-            let (text, colour) = match count {
-                Some(c) => (c.to_string(), INK),
-                None => ("?".to_string(), FAIL),
-            };
-            let style = m.font(11.0).color(&colour).pos(Pos::new(HPos::Center, VPos::Center));
-            let at = (0.5 * (start + end) * factor, lanes as f64 + 0.5 * top_band);
-            plot.draw_series(std::iter::once(Text::new(text, at, style))).map_err(fail)?;
+    let stride = count_label_stride(f64::from(m.px(7.0 * widest + 4.0)), pixels_per_period);
+    for (k, count) in diagram.counts.iter().enumerate() {
+        if count.is_some() && (k + 1) % stride != 0 {
+            continue;
         }
+        let (Some(start), Some(end)) = (diagram.edge_times_s.get(k), diagram.edge_times_s.get(k + 1)) else {
+            continue;
+        };
+        let (text, colour) = match count {
+            Some(c) => (c.to_string(), INK),
+            None => ("?".to_string(), FAIL),
+        };
+        let style = m.font(11.0).color(&colour).pos(Pos::new(HPos::Center, VPos::Center));
+        let at = (0.5 * (start + end) * factor, lanes as f64 + 0.5 * top_band);
+        plot.draw_series(std::iter::once(Text::new(text, at, style))).map_err(fail)?;
     }
     let (px, py) = plot.backend_coord(&(x0, lanes as f64 + 0.5 * top_band));
     let label = m.bold(11.5).color(&INK).pos(Pos::new(HPos::Right, VPos::Center));
     root.draw(&Text::new("count".to_string(), (px - m.px(8.0), py), label)).map_err(fail)?;
     root.present().map_err(fail)
+}
+
+/// Label every `stride`-th count: the least of 1, 2, 5, 10, 20, 50, … whose labels, `needed_px`
+/// wide, fit periods `period_px` wide.
+fn count_label_stride(needed_px: f64, period_px: f64) -> usize {
+    let mut decade = 1usize;
+    loop {
+        for step in [1, 2, 5] {
+            let stride = step * decade;
+            // (A hundred million pulses is more than any diagram holds.)
+            if stride as f64 * period_px >= needed_px || decade >= 100_000_000 {
+                return stride;
+            }
+        }
+        decade *= 10;
+    }
 }
 
 /// The waveform chart as an SVG document `width` × `height` user units (for print).
@@ -491,6 +510,28 @@ mod tests {
         {
             assert!(svg.contains(expected), "SVG lacks {expected}");
         }
+    }
+
+    #[test]
+    fn counts_too_dense_to_label_each_are_labelled_every_few_pulses() {
+        assert_eq!(count_label_stride(18.0, 20.0), 1);
+        assert_eq!(count_label_stride(18.0, 7.5), 5);
+        assert_eq!(count_label_stride(18.0, 0.5), 50);
+        // Sixty periods in a 600-unit SVG: about 7 units a period, too few for "59".
+        let mut run = square_run();
+        run.stop_s = 61e-6;
+        let diagram = TimingDiagram {
+            run,
+            edge_times_s: (0..=60).map(|k| (0.5 + f64::from(k)) * 1e-6).collect(),
+            counts: (1..=60u64).map(|k| if k == 7 { None } else { Some(k % 60) }).collect(),
+            logic: true,
+        };
+        let svg = timing_diagram_svg(&diagram, 600, 300).unwrap_or_else(|e| unreachable!("{e}"));
+        let label = |text: &str| svg.contains(&format!("\n{text}\n</text>"));
+        // (15, 35 and 55 are not time ticks, which fall on the tens.)
+        assert!(label("15") && label("35") && label("55"), "every fifth count is labelled");
+        assert!(!label("11") && !label("54"), "the counts between are left out");
+        assert!(label("?"), "an unread count is always shown");
     }
 
     #[test]
