@@ -511,13 +511,13 @@ function render(view, synthesis) {
     ["Trigger: estimated minimum · available", `${si(s.min_trigger_amplitude_v, "V")} · ${si(s.available_trigger_amplitude_v, "V")}`],
   ]);
   const plan = view.chain && view.chain.status === "ok" ? view.chain : null;
-  const chainRows = plan ? plan.parts.map(p => [p.designator, p.value_text, "", "", "", "", p.function]) : [];
+  const partRow = (r) => [r.designator, r.value_text, r.code, r.tolerance_text, r.stress_text,
+    { text: r.rating_text + (r.meets ? "" : "  — NOT MET"), className: r.meets ? "" : "fail" }, r.function];
   table($("parts"), ["Ref", "Value", "Code", "Tolerance", "Worst-case stress", "Buy (rating)", "Function"],
-    view.table.map(r => [r.designator, r.value_text, r.code, r.tolerance_text, r.stress_text,
-      { text: r.rating_text + (r.meets ? "" : "  — NOT MET"), className: r.meets ? "" : "fail" }, r.function]).concat(chainRows));
+    view.table.concat(plan ? plan.parts : []).map(partRow));
   $("parts-chain-note").textContent = plan
     ? `Stage 1 is listed; stages 2…${plan.stage_count} repeat its parts as R201…, R${plan.stage_count}01… ` +
-      (plan.parts.length ? `The ${plan.chosen_name} parts are R9xx, C9xx, D9xx (steering diodes of the stage's type; ratings as for the stage's own).` : "")
+      (plan.parts.length ? `The ${plan.chosen_name} parts are numbered 9xx, with their own stresses and ratings.` : "")
     : "";
   renderPlan(view.chain);
   const cautions = $("cautions");

@@ -26,6 +26,8 @@ struct ChainView {
     timing: Vec<(MethodKind, ChainTiming)>,
     /// The reset with its driver transistor: the one built and simulated.
     reset: Option<DrivenResetNetwork>,
+    /// The driven reset's parts as component-table rows (with the design's tolerances).
+    reset_table: Vec<flipwright::table::ComponentRow>,
     /// The passive diode gate alone, for comparison (why the driver is there).
     passive_reset: Option<ResetNetwork>,
     recommendation: Recommendation,
@@ -49,6 +51,7 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
         plan,
         timing: Vec::new(),
         reset: None,
+        reset_table: Vec::new(),
         passive_reset: None,
         stage_max_toggle_rate_hz: None,
     };
@@ -63,6 +66,12 @@ pub fn run(args: &[String]) -> Result<u8, Failure> {
             match design_reset_driver_for_stage(&view.plan, &design, &timing) {
                 Ok(network) => {
                     view.recommendation = view.plan.recommend_with_driven_reset(&network);
+                    let conditions = &design.input().conditions;
+                    view.reset_table = flipwright::table::reset_network_table(
+                        &network,
+                        conditions.resistor_tolerance,
+                        conditions.capacitor_tolerance,
+                    );
                     view.reset = Some(network);
                 }
                 Err(e) => view.recommendation.reasons.push(format!("the reset cannot be built: {e}")),
@@ -203,11 +212,16 @@ fn render(view: &ChainView) -> String {
                 for problem in &reset.problems {
                     let _ = writeln!(out, "    problem: {problem}");
                 }
-                for row in flipwright::table::reset_network_table(reset) {
+                for row in &view.reset_table {
                     let _ = writeln!(
                         out,
-                        "    {:<5} {:<52} {:>8}  stress {:<18} buy {}",
-                        row.designator, row.function, row.value_text, row.stress_text, row.rating_text
+                        "    {:<5} {:<52} {:>8} {:>7}  stress {:<18} buy {}",
+                        row.designator,
+                        row.function,
+                        row.value_text,
+                        row.tolerance_text,
+                        row.stress_text,
+                        row.rating_text
                     );
                 }
                 if let Some(passive) = view.passive_reset.as_ref().filter(|p| !p.passes) {

@@ -5,7 +5,7 @@
 //! Ratings: resistor power rating at least twice the worst-case dissipation; capacitor voltage
 //! rating at least 1.5 times the largest voltage across it (both common practice).
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::stage::analysis::StageReport;
 use crate::stage::{BiasScheme, StageDesign, Steering};
@@ -21,7 +21,7 @@ pub const RESISTOR_POWER_DERATING: f64 = 2.0;
 pub const CAPACITOR_VOLTAGE_DERATING: f64 = 1.5;
 
 /// One line of the table.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ComponentRow {
     pub designator: String,
     pub part: String,
@@ -407,8 +407,13 @@ pub fn to_csv(rows: &[ComponentRow]) -> String {
 /// The rows of a driven reset network's parts (`chain::reset_driver`), with the same rating
 /// rules as the stage's parts: resistors at least twice their worst dissipation, the hold
 /// capacitor at least 1.5 times the supply, diodes and the driver with the voltage and
-/// current they must stand (common practice).
-pub fn reset_network_table(network: &crate::chain::reset_driver::DrivenResetNetwork) -> Vec<ComponentRow> {
+/// current they must stand (common practice). Resistors and the capacitor carry the design's
+/// tolerances.
+pub fn reset_network_table(
+    network: &crate::chain::reset_driver::DrivenResetNetwork,
+    resistor_tolerance: f64,
+    capacitor_tolerance: f64,
+) -> Vec<ComponentRow> {
     network
         .parts
         .iter()
@@ -456,6 +461,11 @@ pub fn reset_network_table(network: &crate::chain::reset_driver::DrivenResetNetw
                     true,
                 ),
             };
+            let tolerance_text = match part.kind.as_str() {
+                "resistor" => tolerance_text(resistor_tolerance),
+                "capacitor" => tolerance_text(capacitor_tolerance),
+                _ => String::new(),
+            };
             ComponentRow {
                 designator: part.designator.clone(),
                 part: part.kind.clone(),
@@ -463,7 +473,7 @@ pub fn reset_network_table(network: &crate::chain::reset_driver::DrivenResetNetw
                 value: part.value,
                 value_text,
                 code,
-                tolerance_text: String::new(),
+                tolerance_text,
                 stress_text,
                 rating_text,
                 meets,

@@ -6,7 +6,7 @@
 use serde::Serialize;
 use wasm_bindgen::prelude::*;
 
-use flipwright::chain::design::{design_chain, ChainDesign, ChainPartRow};
+use flipwright::chain::design::{design_chain, ChainDesign};
 use flipwright::chain::loads::StageLoads;
 use flipwright::chain::reset_driver::DrivenResetNetwork;
 use flipwright::chain::timing::ChainTiming;
@@ -99,7 +99,7 @@ pub struct ChainPlanView {
     pub loads: Vec<StageLoads>,
     pub loads_problem: Option<String>,
     pub stage_max_toggle_rate_hz: f64,
-    pub parts: Vec<ChainPartRow>,
+    pub parts: Vec<flipwright::table::ComponentRow>,
     pub notes: Vec<String>,
     /// Input and every stage's Q over one output period, ideal logic levels.
     pub diagram: TimingDiagram,
@@ -473,6 +473,45 @@ mod tests {
             Some("reset from 10 (1010)")
         );
         assert!(plan.parts.iter().any(|p| p.designator == "R901"), "reset network in the parts");
+    }
+
+    /// Every extra part of a chain carries what the stage's own parts carry: tolerance (for
+    /// passives), worst-case stress and what to buy, and it reaches the CSV export.
+    #[test]
+    fn the_chains_extra_parts_have_tolerance_stress_and_rating() {
+        for section in [
+            r#"{"divide_by": 10, "method": "reset_on_count"}"#,
+            r#"{"divide_by": 10, "method": "skip_feedback"}"#,
+        ] {
+            let Outcome::Ok(view) = synthesise_text(&demo_with_chain(section)) else {
+                unreachable!("synthesises")
+            };
+            let Some(Outcome::Ok(plan)) = &view.analysis.chain else { unreachable!("planned") };
+            assert!(!plan.parts.is_empty(), "{section}: the method adds parts");
+            for row in &plan.parts {
+                assert!(
+                    row.designator.chars().nth(1) == Some('9'),
+                    "{}: in the chain's 9xx range",
+                    row.designator
+                );
+                assert!(!row.stress_text.is_empty() && !row.rating_text.is_empty(), "{section}: {row:?}");
+                if matches!(row.part.as_str(), "resistor" | "capacitor") {
+                    assert!(
+                        row.tolerance_text.starts_with('±') && !row.code.is_empty(),
+                        "{section}: {row:?}"
+                    );
+                }
+                assert!(
+                    view.analysis.table_csv.contains(&format!("{},", row.designator)),
+                    "{} in the CSV",
+                    row.designator
+                );
+            }
+        }
+        // The hold capacitor's rating covers its voltage with the table's derating.
+        let plan = plan_of(r#"{"divide_by": 10, "method": "reset_on_count"}"#);
+        let hold = plan.parts.iter().find(|r| r.designator == "C901");
+        assert!(hold.is_some_and(|r| r.meets && r.tolerance_text.starts_with('±')), "{hold:?}");
     }
 
     #[test]

@@ -80,11 +80,18 @@ fn to_js<T: Serialize>(value: &T) -> Result<JsValue, JsError> {
 
 fn view(file: &DesignFile, design: &StageDesign, report: StageReport) -> AnalysisView {
     let table = component_table(design, &report, 1);
+    let chain = chain::chain_view(file.chain.as_ref(), design, &report);
+    // The CSV holds what the page's table shows: stage 1's parts, then the chain's own.
+    let chain_parts = match &chain {
+        Some(Outcome::Ok(plan)) => plan.parts.as_slice(),
+        _ => &[],
+    };
+    let table_csv = to_csv(&[table.as_slice(), chain_parts].concat());
     AnalysisView {
-        chain: chain::chain_view(file.chain.as_ref(), design, &report),
+        chain,
         design_json: file.to_json(),
         name: file.name.clone(),
-        table_csv: to_csv(&table),
+        table_csv,
         schematic_svg: schematic::stage_svg(design),
         table,
         report,

@@ -11,7 +11,7 @@ use super::timing::{chain_timing_with_reset_cycle, ChainTiming, StageTiming};
 use super::{plan_chain, ChainError, ChainPlan, ChainRequest, Method, MethodKind, Recommendation};
 use crate::stage::analysis::StageReport;
 use crate::stage::StageDesign;
-use crate::units::{format_quantity, Unit};
+use crate::table::{component_table, reset_network_table, ComponentRow};
 
 /// Spread of the stage times taken for chain timing: the slowest stage is 30 % slower than
 /// the estimate (our choice for identical stages built from one batch, stated in the notes).
@@ -22,17 +22,6 @@ pub const CHAIN_TIMING_SPREAD: f64 = 0.3;
 pub struct MethodTiming {
     pub method: MethodKind,
     pub timing: Result<ChainTiming, String>,
-}
-
-/// One extra part the method adds to the n binaries, with a designator in the chain's own
-/// range (9xx, so it never collides with stage k's k01…k99).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct ChainPartRow {
-    pub designator: String,
-    /// The value in SI units where the core chose one, `None` for a part named by type.
-    pub value_si: Option<f64>,
-    pub value_text: String,
-    pub function: String,
 }
 
 /// Everything about the chain of one designed stage.
@@ -55,7 +44,10 @@ pub struct ChainDesign {
     /// Loads on each stage of the chosen chain, or why they could not be worked out.
     pub loads: Result<Vec<StageLoads>, String>,
     /// Extra parts of the chosen method, for the component table.
-    pub parts: Vec<ChainPartRow>,
+    /// The method's extra parts (designators in the chain's own 9xx range, so they never
+    /// collide with stage k's k01…k99), as component-table rows with tolerance, stress and
+    /// rating like the stage's own.
+    pub parts: Vec<ComponentRow>,
     pub notes: Vec<String>,
 }
 
@@ -127,7 +119,7 @@ pub fn design_chain(
         if chosen == MethodKind::ResetOnCount { reset.as_ref().map(|r| r.decode_load) } else { None },
     )
     .map_err(|e| e.to_string());
-    let parts = extra_parts(&chosen_plan.method, reset.as_ref(), design);
+    let parts = extra_parts(&chosen_plan.method, reset.as_ref(), design, report);
     let notes = vec![format!(
         "chain timing takes the slowest stage {:.0} % slower than the stage's charge-control estimate",
         CHAIN_TIMING_SPREAD * 100.0
@@ -147,67 +139,63 @@ pub fn design_chain(
     })
 }
 
-fn part(designator: String, value: Option<(f64, Unit)>, text: &str, function: String) -> ChainPartRow {
-    ChainPartRow {
-        designator,
-        value_si: value.map(|(v, _)| v),
-        value_text: value.map_or_else(|| text.to_string(), |(v, unit)| format_quantity(v, unit)),
-        function,
-    }
-}
-
 /// The method's extra parts with designators in the 9xx range. The reset network's parts
-/// come from its design; the feedback's preset capacitors and diodes repeat the stage's own
-/// trigger network (one per receiving stage), as the loads module assumes.
+/// come from its design (stresses and ratings by the component table's rules); the
+/// feedback's preset capacitors, diodes and resistors repeat the stage's own trigger network
+/// (one set per receiving stage, as the loads module assumes), so each takes the stress and
+/// rating of the stage part it copies.
 fn extra_parts(
     method: &Method,
     reset: Option<&DrivenResetNetwork>,
     design: &StageDesign,
-) -> Vec<ChainPartRow> {
-    let diode = design.diode().label.clone();
-    let transistor = design.transistor().label.clone();
-    let mut rows = Vec::new();
+    report: &StageReport,
+) -> Vec<ComponentRow> {
     match method {
-        Method::PlainBinary => {}
+        Method::PlainBinary => Vec::new(),
         Method::ResetOnCount { .. } => {
-            // The driven network lists its own parts (gate, hold, driver, per-stage reset).
-            for p in reset.map_or(&[][..], |network| network.parts.as_slice()) {
-                let unit = match p.kind.as_str() {
-                    "resistor" => Some(Unit::Ohm),
-                    "capacitor" => Some(Unit::Farad),
-                    _ => None,
-                };
-                let text = match p.kind.as_str() {
-                    "diode" => diode.as_str(),
-                    "transistor" => transistor.as_str(),
-                    other => other,
-                };
-                rows.push(part(p.designator.clone(), p.value.zip(unit), text, p.function.clone()));
+            let conditions = &design.input().conditions;
+            let mut rows = reset.map_or_else(Vec::new, |network| {
+                reset_network_table(network, conditions.resistor_tolerance, conditions.capacitor_tolerance)
+            });
+            // Semiconductors are the stage's own types.
+            for row in &mut rows {
+                match row.part.as_str() {
+                    "diode" => row.value_text = design.diode().label.clone(),
+                    "transistor" => row.value_text = design.transistor().label.clone(),
+                    _ => {}
+                }
             }
+            rows
         }
         Method::SkipFeedback { source_stage, receiving_stages, .. } => {
-            let trigger = design.values().trigger;
+            let stage_rows = component_table(design, report, 1);
+            // Stage 1's Ct, first steering diode and Rt (C103, D101 and R108 with either
+            // steering): the preset network copies the trigger network.
+            let copy = |designator: &str| stage_rows.iter().find(|r| r.designator == designator).cloned();
+            let mut rows = Vec::new();
             for (k, stage) in receiving_stages.iter().enumerate() {
-                rows.push(part(
-                    format!("C9{:02}", k + 1),
-                    trigger.map(|t| (t.trigger_capacitor_f, Unit::Farad)),
-                    "as Ct",
-                    format!("preset capacitor from stage {} Q̄ to stage {}", source_stage + 1, stage + 1),
-                ));
-                rows.push(part(
-                    format!("D9{:02}", k + 1),
-                    None,
-                    &diode,
-                    format!("preset steering diode into stage {} Q2 base (sets it to 1)", stage + 1),
-                ));
-                rows.push(part(
-                    format!("R9{:02}", k + 1),
-                    trigger.map(|t| (t.trigger_resistor_ohm, Unit::Ohm)),
-                    "as Rt",
-                    format!("preset bias resistor of stage {}", stage + 1),
-                ));
+                let copies = [
+                    (
+                        copy("C103"),
+                        "C",
+                        format!("preset capacitor from stage {} Q̄ to stage {}", source_stage + 1, stage + 1),
+                    ),
+                    (
+                        copy("D101"),
+                        "D",
+                        format!("preset steering diode into stage {} Q2 base (sets it to 1)", stage + 1),
+                    ),
+                    (copy("R108"), "R", format!("preset bias resistor of stage {}", stage + 1)),
+                ];
+                for (row, letter, function) in copies {
+                    if let Some(mut row) = row {
+                        row.designator = format!("{letter}9{:02}", k + 1);
+                        row.function = format!("{function}; as the stage's {}", row.function);
+                        rows.push(row);
+                    }
+                }
             }
+            rows
         }
     }
-    rows
 }
