@@ -821,6 +821,33 @@ test("results of an earlier design never print, and New from demo clears them an
   await context.close();
 });
 
+test("Open of a valid file replaces the design and clears the last design's results", async () => {
+  const { page, problems, context } = await open();
+  await waitTolerance(page, { chainKind: "stages" });
+  assert.equal(await runYield(page, { trials: 2000, seed: 5 }), "ready");
+  assert.equal(await page.isVisible("#yield-result"), true, "a result to clear");
+  // A file of its own: the demo renamed, with a divide ratio.
+  const file = JSON.parse(await page.evaluate(() => window.flipwright.designJson));
+  file.name = "Opened divider";
+  file.chain = { divide_by: 12 };
+  const path = join(shots, "opened-divider.json");
+  writeFileSync(path, JSON.stringify(file, null, 2));
+  await page.setInputFiles("#open-file", path);
+  await page.waitForFunction(() => document.querySelector("#f-name").value === "Opened divider", null, { timeout: 30000 });
+  await page.waitForFunction(() => /divide by 12/.test(document.querySelector("#plan-title").textContent), null, { timeout: 30000 });
+  await waitCompute(page);
+  for (const id of ["#yield-result", "#stage-result", "#chain-result", "#aim-result"]) {
+    assert.equal(await page.isHidden(id), true, `${id} is hidden after Open`);
+  }
+  assert.equal((await page.textContent("#yield-verdict")).trim(), "", "the yield verdict is cleared");
+  assert.equal(await page.evaluate(() => window.flipwright.yieldRun), null);
+  const printed = await printedText(page, "print-after-open");
+  assert.ok(printed.includes("Opened divider"), "the opened design prints under its own name");
+  assert.ok(!printed.includes("builds pass every DC margin"), "the last design's yield does not print");
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
 // ---- layout ----
 
 test("at 1366 × 900 every choice of the form shows its whole text and the design name fits", async () => {
