@@ -255,13 +255,12 @@ pub fn stage_svg(design: &StageDesign) -> String {
             &ohms(values.cross_resistor_ohm),
         );
         if with_capacitor {
-            s.label(
-                r_at.0 + side * 16.0,
-                r_at.1 - 26.0,
-                if side > 0.0 { "start" } else { "end" },
-                c_name,
-                &farads(values.commutating_capacitor_f),
-            );
+            // Centred over C1's plates, which sit 22 off the diagonal on the collector-rail
+            // side (see `resistor_with_capacitor`): value baseline 16 above the plates' centre.
+            let length = (dx * dx + dy * dy).sqrt().max(1.0);
+            let offset = -side * 22.0;
+            let plates = (r_at.0 - offset * dy / length, r_at.1 + offset * dx / length);
+            s.label(plates.0, plates.1 - 28.0, "middle", c_name, &farads(values.commutating_capacitor_f));
         }
     }
     // Base resistors to the bias return.
@@ -300,17 +299,18 @@ pub fn stage_svg(design: &StageDesign) -> String {
     // Trigger network below, joined by net labels.
     let mut height = 420.0;
     if let Some(trigger) = values.trigger {
-        let y = 470.0;
-        height = 540.0;
-        s.text(40.0, y - 40.0, "start", "heading", "Trigger network (nets join by name)");
+        let y = 482.0;
+        height = 552.0;
+        s.text(40.0, y - 52.0, "start", "heading", "Trigger network (nets join by name)");
         match trigger.steering {
             Steering::Base => {
                 for (index, x0, base_net, collector_net) in [(1, 60.0, "B1", "C1"), (2, 330.0, "B2", "C2")] {
                     s.net_label(x0, y, "end", "IN");
                     s.capacitor((x0 + 4.0, y), (x0 + 70.0, y));
+                    // Above the plates (±10): value baseline 18 above the wire.
                     s.label(
                         x0 + 37.0,
-                        y - 18.0,
+                        y - 30.0,
                         "middle",
                         &format!("C10{}", 2 + index),
                         &farads(trigger.trigger_capacitor_f),
@@ -320,7 +320,7 @@ pub fn stage_svg(design: &StageDesign) -> String {
                     // NPN: anode at the base, cathode at the steering node (PNP reversed).
                     s.polar_diode((x0 + 150.0, y), node, polarity);
                     s.net_label(x0 + 154.0, y, "start", base_net);
-                    s.label(x0 + 110.0, y - 18.0, "middle", &format!("D10{index}"), "");
+                    s.label(x0 + 110.0, y - 30.0, "middle", &format!("D10{index}"), "");
                     s.resistor(node, (node.0, y + 50.0));
                     s.net_label(node.0, y + 62.0, "middle", collector_net);
                     s.label(
@@ -336,7 +336,7 @@ pub fn stage_svg(design: &StageDesign) -> String {
                 let x0 = 140.0;
                 s.net_label(x0, y, "end", "IN");
                 s.capacitor((x0 + 4.0, y), (x0 + 80.0, y));
-                s.label(x0 + 42.0, y - 18.0, "middle", "C103", &farads(trigger.trigger_capacitor_f));
+                s.label(x0 + 42.0, y - 30.0, "middle", "C103", &farads(trigger.trigger_capacitor_f));
                 let node = (x0 + 80.0, y);
                 s.dot(node.0, node.1);
                 s.resistor(node, (node.0, y - 60.0 + 10.0));
@@ -468,6 +468,83 @@ mod tests {
                 anode_at_net,
                 "{transistor_id} {steering:?}: at {net} the diode's anode is {to_anode:.1} away, its cathode {to_cathode:.1}"
             );
+        }
+    }
+
+    /// Every capacitor plate in page coordinates, as segments (groups without a diode's
+    /// triangle; a diode's bar is also a plate-class line).
+    fn capacitor_plates(svg: &str) -> Vec<[(f64, f64); 2]> {
+        let mut plates = Vec::new();
+        for group in svg.split("<g ").skip(1) {
+            let group = group.split("</g>").next().unwrap_or("");
+            if group.contains("<polygon") {
+                continue;
+            }
+            let place = numbers(attribute(group, "transform"));
+            let [tx, ty, angle_deg] = place[..] else { continue };
+            let (sin, cos) = angle_deg.to_radians().sin_cos();
+            let global = |x: f64, y: f64| (tx + x * cos - y * sin, ty + x * sin + y * cos);
+            for line in group.split("<line").skip(1).filter(|l| attribute(l, "class") == "plate") {
+                let n: Vec<f64> =
+                    ["x1", "y1", "x2", "y2"].iter().filter_map(|k| attribute(line, k).parse().ok()).collect();
+                if let [x1, y1, x2, y2] = n[..] {
+                    plates.push([global(x1, y1), global(x2, y2)]);
+                }
+            }
+        }
+        plates
+    }
+
+    /// Every text's box, generously estimated from the schematic's 11–12 px sans-serif: 0.62
+    /// em a character, from the cap height above the baseline to the descenders below.
+    fn text_boxes(svg: &str) -> Vec<(String, [f64; 4])> {
+        svg.split("<text ")
+            .skip(1)
+            .filter_map(|t| {
+                let text = t.split('>').nth(1)?.split('<').next()?.to_string();
+                let (x, y): (f64, f64) = (attribute(t, "x").parse().ok()?, attribute(t, "y").parse().ok()?);
+                let width = 0.62 * 11.0 * text.chars().count() as f64;
+                let left = match attribute(t, "text-anchor") {
+                    "middle" => x - width / 2.0,
+                    "end" => x - width,
+                    _ => x,
+                };
+                Some((text, [left, y - 9.0, left + width, y + 3.0]))
+            })
+            .collect()
+    }
+
+    /// Whether the segment from `a` to `b` passes through the box (sampled finely enough for
+    /// 20-unit plates).
+    fn crosses(a: (f64, f64), b: (f64, f64), [x0, y0, x1, y1]: [f64; 4]) -> bool {
+        (0..=40).map(|i| f64::from(i) / 40.0).any(|f| {
+            let (x, y) = (a.0 + f * (b.0 - a.0), a.1 + f * (b.1 - a.1));
+            x0 <= x && x <= x1 && y0 <= y && y <= y1
+        })
+    }
+
+    #[test]
+    fn no_label_runs_through_a_capacitor_plate() {
+        for (transistor, steering) in [
+            ("si-npn-switch-40v", Steering::Base),
+            ("si-npn-switch-40v", Steering::Collector),
+            ("si-pnp-switch-40v", Steering::Base),
+        ] {
+            let svg = super::stage_svg(&designed(transistor, steering));
+            let plates = capacitor_plates(&svg);
+            assert!(
+                plates.len() >= 6,
+                "{transistor} {steering:?}: C1 twice and Ct drawn, {} plates",
+                plates.len()
+            );
+            for (text, frame) in text_boxes(&svg) {
+                for [a, b] in &plates {
+                    assert!(
+                        !crosses(*a, *b, frame),
+                        "{transistor} {steering:?}: \"{text}\" runs through a plate at {a:?}–{b:?}"
+                    );
+                }
+            }
         }
     }
 
