@@ -95,6 +95,9 @@ impl ChainSection {
     }
 }
 
+/// How a reader's message for a key it does not know begins.
+pub(crate) const UNKNOWN_FIELD: &str = "unknown field";
+
 /// Collects every problem of a document while it is read (shared with the circuit file).
 pub(crate) struct Reader {
     pub(crate) errors: Vec<FieldError>,
@@ -180,7 +183,7 @@ impl Reader {
         for key in object.map.keys() {
             if !object.used.iter().any(|u| u == key) {
                 let expected = object.used.join(", ");
-                self.error(join(&object.path, key), format!("unknown field (expected one of: {expected})"));
+                self.error(join(&object.path, key), format!("{UNKNOWN_FIELD} (expected one of: {expected})"));
             }
         }
     }
@@ -617,10 +620,149 @@ fn read_chain(reader: &mut Reader, value: &Value) -> Option<ChainSection> {
     Some(ChainSection { divide_by, method, natural_binary_code })
 }
 
+/// One step of a field path: a key or a list index (`loads[0].kind` is `loads`, 0, `kind`).
+#[derive(Debug, Clone, PartialEq)]
+enum Step {
+    Key(String),
+    Index(usize),
+}
+
+/// The steps of a field path as the reader writes them, `None` for a path that names no
+/// field (`(document)`).
+fn steps(path: &str) -> Option<Vec<Step>> {
+    let mut out = Vec::new();
+    for part in path.split('.') {
+        let (key, mut rest) = part.split_once('[').map_or((part, ""), |(k, r)| (k, r));
+        if key.is_empty() || !key.chars().all(|c| c.is_ascii_alphanumeric() || c == '_') {
+            return None;
+        }
+        out.push(Step::Key(key.to_string()));
+        while !rest.is_empty() {
+            let (index, after) = rest.split_once(']')?;
+            out.push(Step::Index(index.parse().ok()?));
+            rest = after.strip_prefix('[').unwrap_or(after);
+        }
+    }
+    Some(out)
+}
+
+fn value_at<'a>(value: &'a Value, path: &[Step]) -> Option<&'a Value> {
+    path.iter().try_fold(value, |v, step| match step {
+        Step::Key(k) => v.get(k.as_str()),
+        Step::Index(i) => v.get(*i),
+    })
+}
+
+fn value_at_mut<'a>(value: &'a mut Value, path: &[Step]) -> Option<&'a mut Value> {
+    path.iter().try_fold(value, |v, step| match step {
+        Step::Key(k) => v.get_mut(k.as_str()),
+        Step::Index(i) => v.get_mut(*i),
+    })
+}
+
+/// Puts `replacement` at `path` in `document` (adding the last key if the object lacks it).
+fn put(document: &mut Value, path: &[Step], replacement: Value) -> bool {
+    let Some((last, parent)) = path.split_last() else { return false };
+    match (value_at_mut(document, parent), last) {
+        (Some(Value::Object(map)), Step::Key(k)) => {
+            map.insert(k.clone(), replacement);
+            true
+        }
+        (Some(Value::Array(items)), Step::Index(i)) => {
+            items.get_mut(*i).map(|slot| *slot = replacement).is_some()
+        }
+        _ => false,
+    }
+}
+
+fn remove(document: &mut Value, path: &[Step]) -> bool {
+    let Some((Step::Key(k), parent)) = path.split_last() else { return false };
+    match value_at_mut(document, parent) {
+        Some(Value::Object(map)) => map.remove(k).is_some(),
+        _ => false,
+    }
+}
+
+/// A complete file to take stand-in values from: the demo with its devices written out as
+/// datasheets, placeholder component values and a chain section, so that every field a
+/// design file can have is there.
+fn stand_in() -> Option<Value> {
+    let mut file = DesignFile::demo();
+    file.transistor = DeviceChoice::Custom(file.transistor_sheet()?);
+    file.diode = DeviceChoice::Custom(file.diode_sheet()?);
+    file.values = Some(crate::stage::synthesis::placeholder_values(file.requirements.bias));
+    file.chain = Some(ChainSection {
+        divide_by: 10,
+        method: ChainMethodChoice::Recommended,
+        natural_binary_code: false,
+    });
+    serde_json::to_value(&file).ok()
+}
+
+/// The range and consistency problems of a file that could not be read, in the fields that
+/// did read: each unreadable field (or, where the stand-in lacks it, its nearest enclosing
+/// section) takes the stand-in's value, an unknown key is dropped, and the repaired file is
+/// read and validated; its problems outside the stand-in parts are the file's own. So one
+/// pass names both a misspelt number and an out-of-range supply. Nothing is added for a
+/// file whose header (format, version) or JSON is at fault, or that the repair cannot read.
+fn range_problems_besides(text: &str, reading: &[FieldError]) -> Vec<FieldError> {
+    let (Ok(mut document), Some(fallback)) = (serde_json::from_str::<Value>(text), stand_in()) else {
+        return Vec::new();
+    };
+    let mut stood_in: Vec<Vec<Step>> = Vec::new();
+    for error in reading {
+        let Some(path) = steps(&error.path) else { return Vec::new() };
+        if matches!(path.first(), Some(Step::Key(k)) if k == "format" || k == "version") {
+            return Vec::new();
+        }
+        if error.message.starts_with(UNKNOWN_FIELD) {
+            if !remove(&mut document, &path) {
+                return Vec::new();
+            }
+            continue;
+        }
+        let Some(depth) = (1..=path.len()).rev().find(|&d| value_at(&fallback, &path[..d]).is_some()) else {
+            return Vec::new();
+        };
+        let (section, replacement) = (&path[..depth], value_at(&fallback, &path[..depth]).cloned());
+        if !replacement.is_some_and(|r| put(&mut document, section, r)) {
+            return Vec::new();
+        }
+        stood_in.push(section.to_vec());
+    }
+    let Ok(file) = DesignFile::read(&document.to_string()) else { return Vec::new() };
+    let had_values =
+        matches!(value_at(&document, &[Step::Key("values".to_string())]), Some(v) if !v.is_null());
+    let values =
+        file.values.unwrap_or_else(|| crate::stage::synthesis::placeholder_values(file.requirements.bias));
+    let problems = file.stage_input(Some(values)).and_then(StageDesign::new).err().unwrap_or_default();
+    problems
+        .into_iter()
+        .filter(|p| {
+            let Some(path) = steps(&p.path) else { return true };
+            let in_stand_in = stood_in.iter().any(|s| path.starts_with(s));
+            let in_placeholder_values =
+                !had_values && matches!(path.first(), Some(Step::Key(k)) if k == "values");
+            !in_stand_in && !in_placeholder_values && !reading.iter().any(|e| e.path == p.path)
+        })
+        .collect()
+}
+
 impl DesignFile {
     /// Parses and checks the structure of a design file. Semantic checks (ranges, consistency)
     /// follow in [`DesignFile::stage_input`]/[`StageDesign::new`]; [`DesignFile::load`] does both.
+    /// A file that cannot be read also gets the range problems of the fields that did read
+    /// (see `range_problems_besides`), so the user fixes everything in one round.
     pub fn parse(text: &str) -> Result<DesignFile, Vec<FieldError>> {
+        DesignFile::read(text).map_err(|mut errors| {
+            let more = range_problems_besides(text, &errors);
+            errors.extend(more);
+            errors
+        })
+    }
+
+    /// The reading pass alone.
+    fn read(text: &str) -> Result<DesignFile, Vec<FieldError>> {
         let root = parse_json(text)?;
         let mut reader = Reader { errors: Vec::new() };
         let mut o = reader.object(Some(&root), "").ok_or_else(|| {

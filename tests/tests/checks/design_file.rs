@@ -102,6 +102,53 @@ fn every_bad_field_is_reported_by_path() {
 }
 
 #[test]
+fn an_unreadable_field_and_out_of_range_fields_are_reported_in_one_round() {
+    // A hand-edited file with a number that does not read, a misspelt key, and two values
+    // out of range elsewhere: all four are named at once (the reader used to stop at the
+    // first kind, so the range problems showed only after the unreadable one was fixed).
+    let mut doc = demo_json();
+    doc["supplies"]["collector_supply_v"] = json!("nine volts");
+    doc["conditions"]["t_max_c"] = json!(400.0);
+    doc["requirements"]["min_overdrive"] = json!(0.2);
+    let values = doc["values"].as_object_mut().expect("object");
+    let rc = values.remove("cross_resistor_ohm").expect("field");
+    values.insert("cros_resistor_ohm".to_string(), rc);
+    let errors = errors_of(&doc);
+    check_paths(
+        &errors,
+        &[
+            "supplies.collector_supply_v",
+            "values.cros_resistor_ohm",
+            "values.cross_resistor_ohm",
+            "conditions.t_max_c",
+            "requirements.min_overdrive",
+        ],
+    );
+    assert_eq!(errors.len(), 5, "each once, nothing about the stand-in values: {errors:#?}");
+    // The range messages are the validator's own, as `load` gives them for a readable file.
+    let mut readable = demo_json();
+    readable["conditions"]["t_max_c"] = json!(400.0);
+    readable["requirements"]["min_overdrive"] = json!(0.2);
+    let Err(load_errors) = DesignFile::load(&readable.to_string()) else { panic!("out of range accepted") };
+    for path in ["conditions.t_max_c", "requirements.min_overdrive"] {
+        let message = |list: &[FieldError]| list.iter().find(|e| e.path == path).map(|e| e.message.clone());
+        assert_eq!(message(&errors), message(&load_errors), "{path}");
+    }
+    // A problem inside a field that stood in is not reported twice or against the stand-in:
+    // only the reading problem at the supply, though its stand-in is in range.
+    assert_eq!(errors.iter().filter(|e| e.path.starts_with("supplies")).count(), 1);
+    // Without values (synthesis), placeholder values stand in and say nothing.
+    let mut no_values = doc.clone();
+    no_values["values"] = Value::Null;
+    let errors = errors_of(&no_values);
+    assert!(errors.iter().all(|e| !e.path.starts_with("values")), "{errors:#?}");
+    check_paths(
+        &errors,
+        &["supplies.collector_supply_v", "conditions.t_max_c", "requirements.min_overdrive"],
+    );
+}
+
+#[test]
 fn newer_version_is_refused_with_a_clear_message() {
     let mut doc = demo_json();
     doc["version"] = json!(FORMAT_VERSION + 1);
