@@ -189,8 +189,8 @@ fn extra_parts(
                 ];
                 for (row, letter, function) in copies {
                     if let Some(mut row) = row {
+                        row.function = format!("{function}; the same part as {}", row.designator);
                         row.designator = format!("{letter}9{:02}", k + 1);
-                        row.function = format!("{function}; as the stage's {}", row.function);
                         rows.push(row);
                     }
                 }
