@@ -729,6 +729,7 @@ fn design_for_a_yield_writes_a_design_whose_yield_reaches_the_goal() {
     let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&demo).expect("demo")).expect("JSON");
     doc["supplies"]["tolerance"] = serde_json::json!(0.1);
     doc["conditions"]["resistor_tolerance"] = serde_json::json!(0.1);
+    doc["conditions"]["capacitor_tolerance"] = serde_json::json!(0.2);
     doc["conditions"]["t_min_c"] = serde_json::json!(-40.0);
     doc["conditions"]["t_max_c"] = serde_json::json!(85.0);
     doc["requirements"]["min_overdrive"] = serde_json::json!(1.5);

@@ -710,9 +710,11 @@ test("printing the tolerance section on A4 and Letter keeps headings with their 
 
 test("values chosen for a yield: the plain synthesis falls short, a raised aim reaches it, and a Monte Carlo of the design used confirms it", async () => {
   const { page, problems, context } = await open();
-  // Wide tolerances (±10 % resistors and rails, −40 … 85 °C, minimum overdrive 1.5) on a
-  // four-stage chain: the worst case cannot pass; the yield says how many builds work.
+  // Wide tolerances (±10 % resistors and rails, ±20 % capacitors, −40 … 85 °C, minimum
+  // overdrive 1.5) on a four-stage chain: the worst case cannot pass; the yield says how many
+  // builds work.
   for (const [path, value] of [["supplies.tolerance", "0.1"], ["conditions.resistor_tolerance", "0.1"],
+    ["conditions.capacitor_tolerance", "0.2"],
     ["conditions.t_min_c", "-40"], ["conditions.t_max_c", "85"], ["requirements.min_overdrive", "1.5"]]) {
     await setField(page, path, value);
   }

@@ -373,13 +373,14 @@ fn reset_chain_tolerances_use_the_driven_reset_network_loads() {
     }
 }
 
-/// The demo's requirements with wide tolerances (±10 % resistors and rails, −40 … 85 °C, a
-/// minimum overdrive of 1.5): a stage the worst case cannot pass, whose yield the design aims
+/// The demo's requirements with wide tolerances (±10 % resistors and rails, ±20 % capacitors,
+/// −40 … 85 °C, a minimum overdrive of 1.5): a stage the worst case cannot pass, whose yield the design aims
 /// can raise. Values left for synthesis.
 fn wide_tolerance_requirements() -> flipwright::stage::StageInput {
     let mut input = DesignFile::demo().synthesis_input().expect("demo input");
     input.supplies.tolerance = 0.1;
     input.conditions.resistor_tolerance = 0.1;
+    input.conditions.capacitor_tolerance = 0.2;
     input.conditions.t_min_c = -40.0;
     input.conditions.t_max_c = 85.0;
     input.requirements.min_overdrive = 1.5;
