@@ -506,6 +506,7 @@ function render(view, synthesis) {
     ["Charge to move at a transition", si(s.charge.total_c, "C")],
     ["C1: charge criterion minimum · rule 10·t/(R1∥R2) · rate maximum", `${si(s.commutating_min_f, "F")} · ${si(s.commutating_rule_f, "F")} · ${si(s.commutating_max_f, "F")}`],
     ["Transition time with C1", si(s.transition_s, "s")],
+    ["Collector voltage rise 10–90 % at turn-off, 2.2·RC·(C1 + Cob + Ct)", si(s.collector_voltage_rise_s, "s")],
     ["Maximum toggle rate (nominal · slow corner)", `${si(s.max_toggle_rate_hz, "Hz")} · ${si(report.worst_max_toggle_rate_hz, "Hz")}`],
     ["Rules 1/(2.3·C1·R1∥R2) · 1/(2·C1·R1∥R2)", `${si(s.max_rate_rule_bell_hz, "Hz")} · ${si(s.max_rate_rule_half_hz, "Hz")}`],
     ["Trigger: estimated minimum · available", `${si(s.min_trigger_amplitude_v, "V")} · ${si(s.available_trigger_amplitude_v, "V")}`],
@@ -959,7 +960,7 @@ function renderStageRun() {
       ["Input edge to output half swing", { text: s(t.toggle_delay_s), className: "num" }, "—"],
       ["Storage (input edge to 10 % of the collector rise)", { text: s(t.storage_s), className: "num" }, { text: s(v.estimated_storage_s) + " (storage alone)", className: "num" }],
       ["Collector fall 90–10 % (turn-on)", { text: s(t.collector_fall_s), className: "num" }, { text: s(v.estimated_current_rise_s) + " (current rise)", className: "num" }],
-      ["Collector rise 10–90 % (turn-off)", { text: s(t.collector_rise_s), className: "num" }, { text: s(v.estimated_current_fall_s) + " (current fall; RC and C1 add to it)", className: "num" }],
+      ["Collector rise 10–90 % (turn-off)", { text: s(t.collector_rise_s), className: "num" }, { text: s(v.estimated_collector_rise_s) + " (2.2·RC·(C1 + Cob + Ct))", className: "num", sub: `the current falls in ${s(v.estimated_current_fall_s)}; RC and the capacitors set the voltage edge` }],
       ["Output period · duty cycle", { text: t.output_period_s == null ? "—" : `${s(t.output_period_s)} · ${(100 * t.output_duty).toFixed(1)} %`, className: "num" }, { text: `${si(2 / v.pulse.rate_hz, "s")} · 50 % (two input periods)`, className: "num" }],
     ]);
   }

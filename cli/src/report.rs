@@ -203,10 +203,11 @@ pub fn render(file: &DesignFile, design: &StageDesign, report: &StageReport) -> 
     );
     let _ = writeln!(
         out,
-        "  transition {}, C1·(R1∥R2) {}, trigger recovery {}",
+        "  transition {}, C1·(R1∥R2) {}, trigger recovery {}; collector voltage rise 10–90 % {} (2.2·RC·(C1 + Cob + Ct))",
         q(s.transition_s, Unit::Second),
         q(s.recovery_time_constant_s, Unit::Second),
-        q(s.trigger_recovery_s, Unit::Second)
+        q(s.trigger_recovery_s, Unit::Second),
+        q(s.collector_voltage_rise_s, Unit::Second)
     );
     let _ = writeln!(
         out,

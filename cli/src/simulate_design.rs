@@ -522,8 +522,9 @@ fn render_timings(out: &mut String, verification: &verify::StageVerification) {
     );
     let _ = writeln!(
         out,
-        "  collector rise 10-90 %           {:>10}   estimate {} (current fall at turn-off; RC and C1 add to it)",
+        "  collector rise 10-90 %           {:>10}   estimate {} (2.2·RC·(C1 + Cob + Ct); the current falls in {})",
         time(t.collector_rise_s),
+        time(Some(verification.estimated_collector_rise_s)),
         time(Some(verification.estimated_current_fall_s))
     );
     if let (Some(period), Some(duty)) = (t.output_period_s, t.output_duty) {

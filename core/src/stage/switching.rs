@@ -116,6 +116,12 @@ pub struct SwitchingEstimate {
     pub min_trigger_amplitude_v: Option<f64>,
     /// Amplitude available at the input, V.
     pub available_trigger_amplitude_v: f64,
+    /// 10–90 % rise of a collector's voltage as its transistor turns off: RC charging the
+    /// capacitance on the collector, 2.2·RC·(C1 + Cob + Ct), Ct only with base steering (its
+    /// own Rt–Ct hangs on that collector; a collector-steered Ct sits behind a diode). The
+    /// single-pole 10–90 % time is ln 9·τ ≈ 2.2·τ (common practice). Against the transient
+    /// engine see the check `collector_rise_estimate_follows_the_measured_edge`, s.
+    pub collector_voltage_rise_s: f64,
 }
 
 /// Factor on the switching charge when sizing C1 (our choice, stated in reports).
@@ -239,6 +245,12 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
         (spare > 0.0).then(|| spare / (2.3 * r_parallel))
     };
     let available = input.requirements.trigger_amplitude_v.unwrap_or(state.output_swing_v);
+    let ct_on_collector = values
+        .trigger
+        .filter(|t| t.steering == Steering::Base)
+        .map_or(0.0, |t| t.trigger_capacitor_f * scale.capacitor);
+    let collector_voltage_rise_s =
+        9f64.ln() * values.collector_resistor_ohm * scale.resistor * (c1 + sheet.cob_f + ct_on_collector);
     let min_trigger_amplitude_v = values.trigger.map(|t| {
         let scaled = TriggerNetwork { trigger_capacitor_f: t.trigger_capacitor_f * scale.capacitor, ..t };
         minimum_trigger_amplitude(design, state, &scaled, c1, trigger_c)
@@ -262,6 +274,7 @@ pub fn estimate(design: &StageDesign, state: &StateAnalysis, scale: PassiveScale
         max_toggle_rate_hz: 1.0 / resolving.max(1e-15),
         min_trigger_amplitude_v,
         available_trigger_amplitude_v: available,
+        collector_voltage_rise_s,
     }
 }
 

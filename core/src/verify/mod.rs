@@ -80,6 +80,9 @@ pub struct StageVerification {
     pub estimated_storage_s: f64,
     pub estimated_current_rise_s: Option<f64>,
     pub estimated_current_fall_s: f64,
+    /// The collector's 10–90 % voltage rise, 2.2·RC·(C1 + Cob + Ct): the figure to set beside
+    /// the measured rise (the current fall is far shorter; RC and the capacitors set the edge).
+    pub estimated_collector_rise_s: f64,
     pub sensitivity: Option<Measured>,
     pub max_rate: Option<Measured>,
     pub assumptions: Vec<String>,
@@ -196,6 +199,7 @@ pub fn verify_stage(
             estimated_storage_s: switching.storage_s,
             estimated_current_rise_s: switching.rise_s,
             estimated_current_fall_s: switching.fall_s,
+            estimated_collector_rise_s: switching.collector_voltage_rise_s,
             sensitivity,
             max_rate,
             assumptions: built.assumptions,
