@@ -699,12 +699,14 @@ fn stand_in() -> Option<Value> {
     serde_json::to_value(&file).ok()
 }
 
-/// The range and consistency problems of a file that could not be read, in the fields that
-/// did read: each unreadable field (or, where the stand-in lacks it, its nearest enclosing
-/// section) takes the stand-in's value, an unknown key is dropped, and the repaired file is
-/// read and validated; its problems outside the stand-in parts are the file's own. So one
-/// pass names both a misspelt number and an out-of-range supply. Nothing is added for a
-/// file whose header (format, version) or JSON is at fault, or that the repair cannot read.
+/// The range problems of a file that could not be read, in the fields that did read: each
+/// unreadable field (or, where the stand-in lacks it, its nearest enclosing section) takes the
+/// stand-in's value, an unknown key is dropped, and the repaired file is read and checked
+/// field by field; its problems outside the stand-in parts are the file's own. So one pass
+/// names both a misspelt number and an out-of-range supply. Rules relating two fields (t_max_c
+/// not below t_min_c) wait for the file to read, as do the fields of a section that stood in
+/// whole. Nothing is added for a file whose header (format, version) or JSON is at fault, or
+/// that the repair cannot read.
 fn range_problems_besides(text: &str, reading: &[FieldError]) -> Vec<FieldError> {
     let (Ok(mut document), Some(fallback)) = (serde_json::from_str::<Value>(text), stand_in()) else {
         return Vec::new();
@@ -735,7 +737,10 @@ fn range_problems_besides(text: &str, reading: &[FieldError]) -> Vec<FieldError>
         matches!(value_at(&document, &[Step::Key("values".to_string())]), Some(v) if !v.is_null());
     let values =
         file.values.unwrap_or_else(|| crate::stage::synthesis::placeholder_values(file.requirements.bias));
-    let problems = file.stage_input(Some(values)).and_then(StageDesign::new).err().unwrap_or_default();
+    // Single-field checks only: a rule relating two fields could blame the user's field for
+    // the stand-in's value in the other (t_max_c "below t_min_c" when t_min_c stood in).
+    let Ok(input) = file.stage_input(Some(values)) else { return Vec::new() };
+    let problems = crate::stage::single_field_problems(&input);
     problems
         .into_iter()
         .filter(|p| {

@@ -176,13 +176,13 @@ pub struct StageDesign {
 impl StageDesign {
     /// Validates all fields at once; either every field is usable or every problem is listed.
     pub fn new(input: StageInput) -> Result<StageDesign, Vec<FieldError>> {
-        let mut errors = Vec::new();
-        validate_requirements(&input, &mut errors);
-        validate_values(&input.values, &input.supplies, "values", &mut errors);
-        if errors.is_empty() {
+        let mut problems = Problems { errors: Vec::new(), rules: true };
+        validate_requirements(&input, &mut problems);
+        validate_values(&input.values, &input.supplies, "values", &mut problems);
+        if problems.errors.is_empty() {
             Ok(StageDesign { input })
         } else {
-            Err(errors)
+            Err(problems.errors)
         }
     }
     pub fn input(&self) -> &StageInput {
@@ -205,20 +205,28 @@ impl StageDesign {
     }
 }
 
+/// Where validation puts its problems. `rules` false keeps only the checks of one field on its
+/// own (ranges, signs) and leaves out the rules that read another field too: the design file
+/// validates a repaired file that way, where the other field may be a stand-in.
+pub(crate) struct Problems {
+    pub(crate) errors: Vec<FieldError>,
+    rules: bool,
+}
+
 /// Collects field errors with a path prefix.
 pub(crate) struct Checker<'a> {
-    errors: &'a mut Vec<FieldError>,
+    problems: &'a mut Problems,
     prefix: String,
 }
 
 impl<'a> Checker<'a> {
-    pub(crate) fn new(errors: &'a mut Vec<FieldError>, prefix: &str) -> Self {
-        Checker { errors, prefix: prefix.to_string() }
+    pub(crate) fn new(problems: &'a mut Problems, prefix: &str) -> Self {
+        Checker { problems, prefix: prefix.to_string() }
     }
     fn push(&mut self, field: &str, message: String) {
         let path =
             if self.prefix.is_empty() { field.to_string() } else { format!("{}.{field}", self.prefix) };
-        self.errors.push(FieldError { path, message });
+        self.problems.errors.push(FieldError { path, message });
     }
     pub(crate) fn positive(&mut self, field: &str, value: f64, unit: &str) {
         if !(value.is_finite() && value > 0.0) {
@@ -230,14 +238,24 @@ impl<'a> Checker<'a> {
             self.push(field, format!("must be {what} between {low} and {high}, got {value}"));
         }
     }
+    /// A rule that reads other fields besides `field`.
     pub(crate) fn rule(&mut self, field: &str, holds: bool, message: &str) {
-        if !holds {
+        if !holds && self.problems.rules {
             self.push(field, message.to_string());
         }
     }
 }
 
-fn validate_requirements(input: &StageInput, errors: &mut Vec<FieldError>) {
+/// The problems of `input` that each concern one field alone: every range and sign check,
+/// none of the rules relating two fields (see [`Problems`]).
+pub(crate) fn single_field_problems(input: &StageInput) -> Vec<FieldError> {
+    let mut problems = Problems { errors: Vec::new(), rules: false };
+    validate_requirements(input, &mut problems);
+    validate_values(&input.values, &input.supplies, "values", &mut problems);
+    problems.errors
+}
+
+fn validate_requirements(input: &StageInput, errors: &mut Problems) {
     validate_transistor(&input.transistor, "transistor", errors);
     validate_diode(&input.diode, "diode", errors);
     let mut check = Checker::new(errors, "supplies");
@@ -307,7 +325,7 @@ pub(crate) fn validate_values(
     values: &StageValues,
     supplies: &Supplies,
     prefix: &str,
-    errors: &mut Vec<FieldError>,
+    errors: &mut Problems,
 ) {
     let mut check = Checker::new(errors, prefix);
     check.within("collector_resistor_ohm", values.collector_resistor_ohm, 1.0, 1e8, "ohms");
@@ -338,7 +356,7 @@ pub(crate) fn validate_values(
     }
 }
 
-fn validate_transistor(sheet: &TransistorDatasheet, prefix: &str, errors: &mut Vec<FieldError>) {
+fn validate_transistor(sheet: &TransistorDatasheet, prefix: &str, errors: &mut Problems) {
     let mut check = Checker::new(errors, prefix);
     check.within("hfe_min", sheet.hfe_min, 1.0, 5000.0, "a current gain");
     check.within("hfe_typ", sheet.hfe_typ, 1.0, 5000.0, "a current gain");
@@ -396,7 +414,7 @@ fn validate_transistor(sheet: &TransistorDatasheet, prefix: &str, errors: &mut V
     check.positive("ptot_w", sheet.ptot_w, "watts");
 }
 
-fn validate_diode(sheet: &DiodeDatasheet, prefix: &str, errors: &mut Vec<FieldError>) {
+fn validate_diode(sheet: &DiodeDatasheet, prefix: &str, errors: &mut Problems) {
     let mut check = Checker::new(errors, prefix);
     check.within("forward_voltage_v", sheet.forward_voltage_v, 0.05, 3.0, "volts");
     check.positive("forward_test_current_a", sheet.forward_test_current_a, "amperes");

@@ -146,6 +146,17 @@ fn an_unreadable_field_and_out_of_range_fields_are_reported_in_one_round() {
         &errors,
         &["supplies.collector_supply_v", "conditions.t_max_c", "requirements.min_overdrive"],
     );
+    // A stand-in never makes a correct field look wrong: with t_min_c unreadable (standing in
+    // at the demo's 0 °C), a valid t_max_c of −10 °C is not "below t_min_c"; with the bias
+    // scheme unreadable (standing in as fixed), a self-bias emitter resistor is not refused.
+    let mut cold = demo_json();
+    cold["conditions"]["t_min_c"] = json!("minus forty");
+    cold["conditions"]["t_max_c"] = json!(-10.0);
+    assert_eq!(paths(&errors_of(&cold)), vec!["conditions.t_min_c"]);
+    let mut self_bias = demo_json();
+    self_bias["values"]["bias"] = json!("self bias");
+    self_bias["values"]["emitter_resistor_ohm"] = json!(470.0);
+    assert_eq!(paths(&errors_of(&self_bias)), vec!["values.bias"]);
 }
 
 #[test]
