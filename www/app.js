@@ -128,6 +128,9 @@ async function startEngine() {
   if (!wasmModule) wasmModule = await WebAssembly.compile(decodeBase64(WASM_BASE64));
   await window.wasm_bindgen({ module_or_path: wasmModule });
   engine = window.wasm_bindgen;
+  // A restart may have come in the middle of a draw: draw every chart afresh.
+  drawn = new WeakMap();
+  if (typeof scheduleDraw === "function" && document.body.dataset.ready === "true") scheduleDraw();
 }
 
 async function call(name, ...args) {
@@ -144,9 +147,13 @@ async function call(name, ...args) {
   }
 }
 
+/** What `callNow` returns when the export did not run (no engine, or it failed and is
+ *  restarting), as against the export's own result. */
+const NOT_RUN = Symbol("not run");
+
 /** The same for the drawing exports, which the page needs synchronously. */
 function callNow(name, ...args) {
-  if (!engine) return null;
+  if (!engine) return NOT_RUN;
   try {
     return engine[name](...args);
   } catch (error) {
@@ -154,7 +161,7 @@ function callNow(name, ...args) {
       banner("The engine failed internally (" + error.message + ") and was restarted; your design is unchanged. Please report what you entered.", "error");
       engine = null;
       startEngine();
-      return null;
+      return NOT_RUN;
     }
     throw error;
   }
@@ -227,7 +234,7 @@ function startDatasheet() {
   if (!custom) { lastTransistorSheet = null; return; }
   if (picker.value !== CUSTOM_TRANSISTOR) return;
   const from = typeof current.transistor === "object" && current.transistor ? current.transistor : callNow("transistor_datasheet", current.transistor);
-  if (!from) return;
+  if (!from || from === NOT_RUN) return;
   lastTransistorSheet = Object.assign({}, from, { label: (from.label || "my part").replace(/^generic /, "my ") , approximate: false });
   fillDatasheet(lastTransistorSheet);
 }
@@ -1006,20 +1013,25 @@ function showAssumptions(list, designJson) {
 // What each canvas last showed: its data object and drawing size. A frame redraws only the
 // charts whose data or size changed (an edit replaces the plan's diagram, not the
 // verification's waveforms), so the frame after an edit draws one chart instead of all.
-const drawn = new WeakMap();
+// A canvas that loses its pixels (the browser may drop a 2D context) is drawn afresh.
+let drawn = new WeakMap();
 function drawOn(canvas, exportName, data) {
   // The content box: the border is not part of the drawing surface.
   const width = canvas.clientWidth;
   const height = canvas.clientHeight;
-  if (width === 0 || height === 0) return;
+  if (width === 0 || height === 0 || !engine) return;
   const ratio = window.devicePixelRatio || 1;
   const last = drawn.get(canvas);
   if (last && last.data === data && last.width === width && last.height === height && last.ratio === ratio) return;
+  if (!canvas.dataset.watched) {
+    canvas.dataset.watched = "true";
+    canvas.addEventListener("contextrestored", () => { drawn.delete(canvas); scheduleDraw(); });
+  }
   canvas.width = Math.round(width * ratio);
   canvas.height = Math.round(height * ratio);
   try {
-    callNow(exportName, canvas, data, ratio);
-    drawn.set(canvas, { data, width, height, ratio });
+    if (callNow(exportName, canvas, data, ratio) === NOT_RUN) drawn.delete(canvas);
+    else drawn.set(canvas, { data, width, height, ratio });
   } catch (error) {
     drawn.delete(canvas);
     showStatus("Cannot draw the chart: " + error.message, "error");
@@ -1044,7 +1056,8 @@ window.addEventListener("beforeprint", flushPrintCharts);
 
 function printChart(exportName, data, width, height) {
   try {
-    return callNow(exportName, data, width, height) || "";
+    const svg = callNow(exportName, data, width, height);
+    return svg === NOT_RUN ? "" : svg || "";
   } catch (error) {
     showStatus("Cannot draw the chart for print: " + error.message, "error");
     return "";

@@ -339,22 +339,29 @@ pub fn stage_svg(design: &StageDesign) -> String {
                 s.label(x0 + 42.0, y - 30.0, "middle", "C103", &farads(trigger.trigger_capacitor_f));
                 let node = (x0 + 80.0, y);
                 s.dot(node.0, node.1);
-                s.resistor(node, (node.0, y - 60.0 + 10.0));
+                // Rt down to the supply label, clear of the heading above.
+                s.resistor(node, (node.0, y + 50.0));
                 s.text(
                     node.0,
-                    y - 56.0,
+                    y + 64.0,
                     "middle",
                     "rail",
                     &format!("{:+} V", sign * input.supplies.collector_supply_v),
                 );
-                s.label(node.0 + 12.0, y - 30.0, "start", "R108", &ohms(trigger.trigger_resistor_ohm));
-                for (index, dx, net) in [(1, 90.0, "C1"), (2, 200.0, "C2")] {
-                    let end = (node.0 + dx + 60.0, y);
-                    s.line(node.0, y, node.0 + dx - 20.0, y);
+                s.label(node.0 + 12.0, y + 24.0, "start", "R108", &ohms(trigger.trigger_resistor_ohm));
+                // One diode to each collector, each on its own branch from the common node (a
+                // single line through both read as the two in series): D101 on the node's
+                // row, D102 on a branch 40 above it.
+                let branch = (node.0 + 40.0, y);
+                s.dot(branch.0, branch.1);
+                s.line(branch.0, y, branch.0, y - 40.0);
+                for (index, row, net, label_dy) in [(1, y, "C1", 22.0), (2, y - 40.0, "C2", 18.0)] {
+                    let (near, far) = (node.0 + 70.0, node.0 + 150.0);
+                    s.line(if index == 1 { node.0 } else { branch.0 }, row, near, row);
                     // NPN: anode at the collector, cathode at the common node (PNP reversed).
-                    s.polar_diode(end, (node.0 + dx - 20.0, y), polarity);
-                    s.net_label(end.0 + 4.0, y, "start", net);
-                    s.label(node.0 + dx + 20.0, y + 22.0, "middle", &format!("D10{index}"), "");
+                    s.polar_diode((far, row), (near, row), polarity);
+                    s.net_label(far + 4.0, row, "start", net);
+                    s.label(0.5 * (near + far), row + label_dy, "middle", &format!("D10{index}"), "");
                 }
             }
         }
@@ -524,7 +531,7 @@ mod tests {
     }
 
     #[test]
-    fn no_label_runs_through_a_capacitor_plate() {
+    fn no_label_runs_through_a_capacitor_plate_or_another_label() {
         for (transistor, steering) in [
             ("si-npn-switch-40v", Steering::Base),
             ("si-npn-switch-40v", Steering::Collector),
@@ -537,11 +544,22 @@ mod tests {
                 "{transistor} {steering:?}: C1 twice and Ct drawn, {} plates",
                 plates.len()
             );
-            for (text, frame) in text_boxes(&svg) {
+            let boxes = text_boxes(&svg);
+            for (text, frame) in &boxes {
                 for [a, b] in &plates {
                     assert!(
-                        !crosses(*a, *b, frame),
+                        !crosses(*a, *b, *frame),
                         "{transistor} {steering:?}: \"{text}\" runs through a plate at {a:?}–{b:?}"
+                    );
+                }
+            }
+            // Nor does any text sit on another.
+            for (i, (first, a)) in boxes.iter().enumerate() {
+                for (second, b) in boxes.iter().skip(i + 1) {
+                    let apart = a[2] <= b[0] || b[2] <= a[0] || a[3] <= b[1] || b[3] <= a[1];
+                    assert!(
+                        apart,
+                        "{transistor} {steering:?}: \"{first}\" {a:?} overlaps \"{second}\" {b:?}"
                     );
                 }
             }
