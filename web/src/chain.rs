@@ -512,6 +512,26 @@ mod tests {
         let plan = plan_of(r#"{"divide_by": 10, "method": "reset_on_count"}"#);
         let hold = plan.parts.iter().find(|r| r.designator == "C901");
         assert!(hold.is_some_and(|r| r.meets && r.tolerance_text.starts_with('±')), "{hold:?}");
+        // The network's diodes are the stage's type, held against what the network asks: the
+        // demo's 75 V diode passes; the same diode rated for 5 V reverse does not.
+        let diode = |plan: &ChainPlanView| plan.parts.iter().find(|r| r.designator == "D901").cloned();
+        let fitted = diode(&plan).unwrap_or_else(|| unreachable!("D901 listed"));
+        assert!(fitted.meets && fitted.rating_text.contains("the stage's diode has PIV 75 V"), "{fitted:?}");
+        let mut file = flipwright::design_file::DesignFile::demo();
+        let mut weak = flipwright::device::archetypes::diode("si-signal-diode")
+            .unwrap_or_else(|| unreachable!("archetype"));
+        weak.piv_v = 5.0;
+        file.diode = flipwright::design_file::DeviceChoice::Custom(weak);
+        let mut value: serde_json::Value = serde_json::from_str(&file.to_json()).unwrap_or_default();
+        value["chain"] = serde_json::json!({"divide_by": 10, "method": "reset_on_count"});
+        let Outcome::Ok(view) = synthesise_text(&value.to_string()) else { unreachable!("synthesises") };
+        let Some(Outcome::Ok(weak_plan)) = &view.analysis.chain else { unreachable!("planned") };
+        let weak_diode = diode(weak_plan).unwrap_or_else(|| unreachable!("D901 listed"));
+        assert!(
+            !weak_diode.meets,
+            "a 5 V diode cannot hold off the reset network's {}",
+            weak_diode.stress_text
+        );
     }
 
     #[test]

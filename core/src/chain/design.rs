@@ -157,11 +157,39 @@ fn extra_parts(
             let mut rows = reset.map_or_else(Vec::new, |network| {
                 reset_network_table(network, conditions.resistor_tolerance, conditions.capacitor_tolerance)
             });
-            // Semiconductors are the stage's own types.
-            for row in &mut rows {
+            // Semiconductors are the stage's own types: name them, and hold their ratings
+            // against what the network asks of them (the rows come in the parts' order).
+            let parts = reset.map_or(&[][..], |network| network.parts.as_slice());
+            let q = crate::units::format_quantity;
+            use crate::units::Unit;
+            for (row, part) in rows.iter_mut().zip(parts) {
                 match row.part.as_str() {
-                    "diode" => row.value_text = design.diode().label.clone(),
-                    "transistor" => row.value_text = design.transistor().label.clone(),
+                    "diode" => {
+                        let diode = design.diode();
+                        row.value_text = diode.label.clone();
+                        row.meets = diode.piv_v >= part.voltage_v && diode.if_max_a >= part.current_a;
+                        row.rating_text = format!(
+                            "{}; the stage's diode has PIV {}, IF(max) {}",
+                            row.rating_text,
+                            q(diode.piv_v, Unit::Volt),
+                            q(diode.if_max_a, Unit::Ampere)
+                        );
+                    }
+                    "transistor" => {
+                        let sheet = design.transistor();
+                        row.value_text = sheet.label.clone();
+                        row.meets = sheet.vceo_v >= part.voltage_v
+                            && sheet.ic_max_a >= part.current_a
+                            && sheet.ptot_w >= part.dissipation_w;
+                        row.rating_text = format!(
+                            "{}, {}; the stage's transistor has VCEO {}, IC(max) {}, Ptot(25 °C) {}",
+                            row.rating_text,
+                            q(part.dissipation_w, Unit::Watt),
+                            q(sheet.vceo_v, Unit::Volt),
+                            q(sheet.ic_max_a, Unit::Ampere),
+                            q(sheet.ptot_w, Unit::Watt)
+                        );
+                    }
                     _ => {}
                 }
             }

@@ -76,10 +76,12 @@ pub struct SwitchingCharge {
     pub junction_c: f64,
     pub total_c: f64,
     /// What a trigger must take out of the ON base to start the switch: the stored excess
-    /// and active charge, the emitter junction discharged from VBE(sat) to cut-in (Cib·VBE),
-    /// and the Miller charge Cob·ΔVCB while the ON collector rises to the middle of its swing,
-    /// where the other side's regeneration takes over (our charge-control estimate; against
-    /// the transient engine see the check `trigger_estimate_follows_the_measured_sensitivity`), C.
+    /// and active charge, the emitter junction discharged from VBE(sat) to 0 V
+    /// (Cib·VBE(sat)), and the Miller charge Cob·(swing/2 + VBE(sat)) while the base goes to
+    /// 0 V and the ON collector rises to the middle of its swing, where the other side's
+    /// regeneration takes over. Our charge-control estimate, with its terms chosen against the
+    /// transient engine's measured sensitivity on a handful of stages (the check
+    /// `trigger_estimate_follows_the_measured_sensitivity`), C.
     pub trigger_c: f64,
 }
 
@@ -126,9 +128,12 @@ pub struct SwitchingEstimate {
 
 /// Factor on the switching charge when sizing C1 (our choice, stated in reports).
 pub const COMMUTATING_CHARGE_SAFETY: f64 = 2.0;
-/// Factor on the trigger charge when sizing Ct (our choice): above the 1.5 the trigger margin
-/// asks for, the rest for the capacitor tolerance. (It was 3 on a charge that left out the
-/// junction charge, 1.4 times smaller for the demo, which gave about the same Ct.)
+/// Factor on the trigger charge when sizing Ct (our choice), above the 1.5 the trigger margin
+/// asks for; Ct is also sized at its low tolerance edge. With base steering the factor is on
+/// the charge term alone, so the margin at nominal is 2·A/(A + gap), 1.5 or more while the
+/// gap is under a third of the amplitude A; with collector steering it is on the whole
+/// amplitude, gap included (C1 and Ct in series: `fit_capacitors`). It was 3 on a charge that
+/// left out the junction charge, 1.4 times smaller for the demo, which gave about the same Ct.
 pub const TRIGGER_CHARGE_SAFETY: f64 = 2.0;
 /// Share of the input period the trigger network may take to recover (our choice).
 pub const TRIGGER_RECOVERY_SHARE: f64 = 0.2;
