@@ -8,7 +8,7 @@ use faer::sparse::linalg::{LuError, SupernodalThreshold};
 use faer::sparse::{SparseColMatRef, SymbolicSparseColMatRef};
 use faer::{Conj, MatMut, Par};
 
-use crate::numeric::{larger, DenseMatrix};
+use crate::numeric::{larger, DenseLu, DenseMatrix};
 
 /// Occurs when factorisation finds no usable pivot in `column` (an unknown's index).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -31,6 +31,14 @@ pub trait LinearSolver {
     /// terms of each row, Σ|a_ij·x_j|, into `magnitude` (the scale of a residual test). Both
     /// are resized to the size.
     fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>);
+    /// Solves against the factors of the last successful [`LinearSolver::solve_in_place`],
+    /// whatever has been accumulated since (the chord iterations of Newton, which keep one
+    /// Jacobian for several right-hand sides). Returns false, leaving `rhs` alone, when the
+    /// solver keeps no factors; true otherwise, even if the result is not finite (the caller
+    /// checks it).
+    fn solve_with_last_factors(&mut self, _rhs: &mut Vec<f64>) -> bool {
+        false
+    }
 }
 
 fn prepare(size: usize, product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
@@ -48,11 +56,13 @@ const ZERO_PIVOT_SHARE: f64 = 1e-300;
 #[derive(Debug, Clone)]
 pub struct DenseSolver {
     matrix: DenseMatrix,
+    /// The factors of the last successful solve, for chord iterations.
+    factors: Option<DenseLu>,
 }
 
 impl Default for DenseSolver {
     fn default() -> Self {
-        DenseSolver { matrix: DenseMatrix::zeros(0) }
+        DenseSolver { matrix: DenseMatrix::zeros(0), factors: None }
     }
 }
 
@@ -62,6 +72,7 @@ impl LinearSolver for DenseSolver {
             self.matrix.clear();
         } else {
             self.matrix = DenseMatrix::zeros(size);
+            self.factors = None;
         }
     }
     fn add(&mut self, row: usize, column: usize, value: f64) {
@@ -70,8 +81,20 @@ impl LinearSolver for DenseSolver {
         }
     }
     fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
-        *rhs = self.matrix.solve(rhs).map_err(|e| SingularColumn { column: e.column })?;
+        self.factors = None;
+        let factors = self.matrix.factor().map_err(|e| SingularColumn { column: e.column })?;
+        *rhs = factors.solve(rhs).map_err(|e| SingularColumn { column: e.column })?;
+        self.factors = Some(factors);
         Ok(())
+    }
+    fn solve_with_last_factors(&mut self, rhs: &mut Vec<f64>) -> bool {
+        let Some(factors) = &self.factors else { return false };
+        match factors.solve(rhs) {
+            Ok(x) => *rhs = x,
+            // Not finite: the caller sees it in the result.
+            Err(_) => rhs.iter_mut().for_each(|v| *v = f64::NAN),
+        }
+        true
     }
     fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
         let size = self.matrix.size();
@@ -203,6 +226,9 @@ pub struct SparseSolver {
     frozen: Option<FrozenFactors>,
     /// Pivot afresh at every solve (faer only), for comparison.
     always_pivot: bool,
+    /// True while the factors are those of the last successful solve, for
+    /// [`LinearSolver::solve_with_last_factors`].
+    factors_valid: bool,
     statistics: SparseStatistics,
 }
 
@@ -260,6 +286,29 @@ impl SparseSolver {
         }
         let numeric = self.numeric.as_ref()?;
         Some(numeric.lu.l_factor_unsorted().compute_nnz() + numeric.lu.u_factor_unsorted().compute_nnz())
+    }
+
+    /// Solves with the factors in place (frozen, else faer's); false when there are none.
+    fn solve_with_factors(&mut self, rhs: &mut [f64]) -> bool {
+        let size = self.pattern.size;
+        if let Some(frozen) = self.frozen.as_mut() {
+            frozen.solve(rhs);
+            return true;
+        }
+        let (Some(symbolic), Some(numeric)) = (self.symbolic.as_mut(), self.numeric.as_ref()) else {
+            return false;
+        };
+        let row_order = PermRef::new_checked(&numeric.row_order, &numeric.row_order_inverse, size);
+        let column_order = PermRef::new_checked(&symbolic.column_order, &symbolic.column_order_inverse, size);
+        numeric.lu.solve_in_place_with_conj(
+            row_order,
+            column_order,
+            Conj::No,
+            MatMut::from_column_major_slice_mut(rhs, size, 1),
+            Par::Seq,
+            MemStack::new(&mut symbolic.workspace),
+        );
+        true
     }
 
     fn analyse(&mut self) -> Result<(), SingularColumn> {
@@ -377,6 +426,8 @@ impl LinearSolver for SparseSolver {
     fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
         let size = self.pattern.size;
         rhs.resize(size, 0.0);
+        // A failed refactorisation leaves the factors half overwritten.
+        self.factors_valid = false;
         if size == 0 {
             return Ok(());
         }
@@ -417,28 +468,22 @@ impl LinearSolver for SparseSolver {
                 });
             }
         }
-        if let Some(frozen) = self.frozen.as_mut() {
-            frozen.solve(rhs);
-        } else {
-            let (Some(symbolic), Some(numeric)) = (self.symbolic.as_mut(), self.numeric.as_ref()) else {
-                return Err(SingularColumn { column: 0 });
-            };
-            let row_order = PermRef::new_checked(&numeric.row_order, &numeric.row_order_inverse, size);
-            let column_order =
-                PermRef::new_checked(&symbolic.column_order, &symbolic.column_order_inverse, size);
-            numeric.lu.solve_in_place_with_conj(
-                row_order,
-                column_order,
-                Conj::No,
-                MatMut::from_column_major_slice_mut(rhs.as_mut_slice(), size, 1),
-                Par::Seq,
-                MemStack::new(&mut symbolic.workspace),
-            );
+        if !self.solve_with_factors(rhs) {
+            return Err(SingularColumn { column: 0 });
         }
+        self.factors_valid = true;
         match rhs.iter().position(|v| !v.is_finite()) {
             Some(column) => Err(SingularColumn { column }),
             None => Ok(()),
         }
+    }
+
+    fn solve_with_last_factors(&mut self, rhs: &mut Vec<f64>) -> bool {
+        if !self.factors_valid {
+            return false;
+        }
+        rhs.resize(self.pattern.size, 0.0);
+        self.solve_with_factors(rhs)
     }
 
     fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
@@ -717,6 +762,13 @@ impl LinearSolver for AutomaticSolver {
             self.sparse.multiply(x, product, magnitude);
         } else {
             self.dense.multiply(x, product, magnitude);
+        }
+    }
+    fn solve_with_last_factors(&mut self, rhs: &mut Vec<f64>) -> bool {
+        if self.use_sparse {
+            self.sparse.solve_with_last_factors(rhs)
+        } else {
+            self.dense.solve_with_last_factors(rhs)
         }
     }
 }
