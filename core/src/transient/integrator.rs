@@ -9,7 +9,7 @@ use super::linear::{AutomaticSolver, LinearSolver};
 use super::operating_point::{
     default_tolerances, solve_operating_point, OperatingPointHints, OperatingPointMethod,
 };
-use super::system::{Conditions, Failure, Integration, NewtonTolerances, System};
+use super::system::{Conditions, Evaluations, Failure, Integration, NewtonTolerances, Reuse, System};
 use crate::numeric::larger;
 
 /// Step reduction after a failed Newton solve.
@@ -120,6 +120,10 @@ pub struct RunStatistics {
     /// Those of the rejected steps whose Newton solve did not converge.
     pub newton_failures: usize,
     pub newton_iterations: usize,
+    /// Junction devices evaluated by their law during the steps, and those reused from an
+    /// earlier evaluation (bypass; see `system::Evaluations`).
+    pub device_evaluations: usize,
+    pub bypassed_evaluations: usize,
 }
 
 /// Waveforms of a run: one entry per accepted time point.
@@ -230,6 +234,9 @@ pub fn simulate_with<S: LinearSolver>(
     // Accepted (time, charges) since the last restart, oldest first, at most 3.
     let mut history: Vec<(f64, Vec<f64>)> = vec![(0.0, charges.clone())];
     let mut step = initial_step;
+    // Device evaluations are pure functions of the junction voltages, so they carry over
+    // rejected steps as well as accepted ones.
+    let mut evaluations = Evaluations::new(settings.relative_tolerance);
     // Every accepted or rejected step counts, so the loop is bounded even if steps shrink.
     let attempt_limit = settings.max_steps.saturating_mul(20);
     for _ in 0..attempt_limit {
@@ -274,7 +281,12 @@ pub fn simulate_with<S: LinearSolver>(
             }
         }
         let mut trial_junctions = junctions.clone();
-        let solved = match system.newton(solver, &start, &mut trial_junctions, &conditions, tolerances) {
+        let reuse = Reuse { evaluations: Some(&mut evaluations), chord: true };
+        let outcome =
+            system.newton_with(solver, &start, &mut trial_junctions, &conditions, tolerances, reuse);
+        result.statistics.device_evaluations = evaluations.evaluated;
+        result.statistics.bypassed_evaluations = evaluations.reused;
+        let solved = match outcome {
             Ok(solved) => solved,
             Err(Failure::Singular { unknown }) => {
                 return Err(SimulationError::Singular {

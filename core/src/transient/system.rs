@@ -8,7 +8,7 @@ use super::devices::{critical_voltage, depletion_charge, junction_current, limit
 use super::error::SimulationError;
 use super::linear::LinearSolver;
 use super::waveform::Waveform;
-use crate::device::ebers_moll::EbersMoll;
+use crate::device::ebers_moll::{BjtOperatingPoint, EbersMoll};
 use crate::numeric::larger;
 use crate::physics::thermal_voltage;
 
@@ -21,6 +21,30 @@ pub const MIN_INTERNAL_RESISTANCE_OHM: f64 = 1e-3;
 /// when a node is reached only through capacitors or cut-off junctions. 1 pS shifts a 10 V,
 /// 10 kΩ node by about 1 µV.
 pub const GMIN_S: f64 = 1e-12;
+
+/// Share of the Newton relative tolerance that reusing a junction's last evaluation may cost
+/// (bypass, see [`Evaluations`]). Continuing an exponential I(V) linearly from V0 errs by
+/// ½(ΔV/(n·VT))² of its current, so a device is reused while every junction voltage lies
+/// within n·VT·√(2·share·relative) of where it was last evaluated: at the default relative
+/// tolerance 1e-3, 0.01·n·VT (0.26 mV), an error of 5e-5 of the current — a twentieth of what
+/// the residual test accepts anyway.
+pub const BYPASS_SHARE_OF_TOLERANCE: f64 = 0.05;
+
+/// A chord iteration (Newton with the factors of an earlier iteration) must shrink the update
+/// at least this much from the previous iteration, or the next iteration factorises afresh.
+const CHORD_MAX_CONTRACTION: f64 = 0.5;
+
+/// A transistor's operating point continued linearly by (ΔVBE, ΔVBC) from where it was
+/// evaluated; the derivatives stay those of the evaluation.
+fn continued(op: &BjtOperatingPoint, dvbe: f64, dvbc: f64) -> BjtOperatingPoint {
+    BjtOperatingPoint {
+        collector_current_a: op.collector_current_a + op.dic_dvbe * dvbe + op.dic_dvbc * dvbc,
+        base_current_a: op.base_current_a + op.dib_dvbe * dvbe + op.dib_dvbc * dvbc,
+        forward_current_a: op.forward_current_a + op.forward_conductance_s * dvbe,
+        reverse_current_a: op.reverse_current_a + op.reverse_conductance_s * dvbc,
+        ..*op
+    }
+}
 
 /// A terminal: an unknown's index, or `None` for ground.
 type Pin = Option<usize>;
@@ -117,6 +141,74 @@ pub(crate) struct NewtonTolerances {
     pub voltage_v: f64,
     pub current_a: f64,
     pub max_iterations: usize,
+}
+
+/// A junction device's last full evaluation: the junction voltages it was made at and what
+/// the stamp needs from the device law there.
+#[derive(Debug, Clone, Copy)]
+enum Evaluation {
+    None,
+    Diode {
+        v: f64,
+        current_a: f64,
+        conductance_s: f64,
+        charge_c: f64,
+        capacitance_f: f64,
+    },
+    Transistor {
+        vbe: f64,
+        vbc: f64,
+        op: BjtOperatingPoint,
+        /// Charge and capacitance of the B–E and B–C branches (NPN frame).
+        q_be: f64,
+        c_be: f64,
+        q_bc: f64,
+        c_bc: f64,
+    },
+}
+
+/// Device bypass across Newton iterations and time steps: each junction device's last full
+/// evaluation, reused, continued linearly to the present junction voltages, while those stay
+/// within `window_share · n·VT` of it (the device law is a pure function of its junction
+/// voltages, so an evaluation never goes stale otherwise). The continuation makes the
+/// stamp exactly the one of the reused evaluation, and the charges first-order right, so
+/// charge bookkeeping stays consistent; only the second-order remainder is lost (see
+/// [`BYPASS_SHARE_OF_TOLERANCE`]).
+#[derive(Debug, Clone)]
+pub(crate) struct Evaluations {
+    window_share: f64,
+    /// Indexed by the device's first junction.
+    slots: Vec<Evaluation>,
+    pub reused: usize,
+    pub evaluated: usize,
+}
+
+impl Evaluations {
+    /// For Newton solves at `relative` tolerance (the window shrinks with it).
+    pub(crate) fn new(relative: f64) -> Evaluations {
+        Evaluations {
+            window_share: (2.0 * BYPASS_SHARE_OF_TOLERANCE * relative).sqrt(),
+            slots: Vec::new(),
+            reused: 0,
+            evaluated: 0,
+        }
+    }
+}
+
+/// What a Newton solve may reuse from earlier work.
+#[derive(Debug)]
+pub(crate) struct Reuse<'a> {
+    /// Device bypass, when given.
+    pub evaluations: Option<&'a mut Evaluations>,
+    /// Chord iterations: after the first iteration, keep the factors while they converge.
+    pub chord: bool,
+}
+
+impl Reuse<'_> {
+    /// Every device evaluated and every matrix factorised at every iteration.
+    pub(crate) fn nothing() -> Reuse<'static> {
+        Reuse { evaluations: None, chord: false }
+    }
 }
 
 /// What one assembly produces besides the matrix: the right-hand side, and the charges and
@@ -424,8 +516,14 @@ impl System {
         junctions: &[f64],
         conditions: &Conditions,
         out: &mut Linearised,
+        mut evaluations: Option<&mut Evaluations>,
     ) {
         let Linearised { rhs, charges, charge_currents } = out;
+        if let Some(cache) = evaluations.as_deref_mut() {
+            if cache.slots.len() != self.junction_count {
+                cache.slots = vec![Evaluation::None; self.junction_count];
+            }
+        }
         let size = self.size();
         solver.reset(size);
         rhs.clear();
@@ -477,17 +575,60 @@ impl System {
                 }
                 Stamp::Diode { anode, cathode, law, charge, junction } => {
                     let v = junctions.get(*junction).copied().unwrap_or(0.0);
-                    let (id, gd) = junction_current(v, law.saturation_current_a, law.n_vt);
+                    let slot = evaluations.as_deref_mut().and_then(|cache| {
+                        let window = cache.window_share * law.n_vt;
+                        cache
+                            .slots
+                            .get_mut(*junction)
+                            .map(|slot| (slot, window, &mut cache.reused, &mut cache.evaluated))
+                    });
+                    let (id, gd, q, c) = match slot {
+                        Some((
+                            &mut Evaluation::Diode {
+                                v: v0,
+                                current_a,
+                                conductance_s,
+                                charge_c,
+                                capacitance_f,
+                            },
+                            window,
+                            reused,
+                            _,
+                        )) if (v - v0).abs() <= window => {
+                            *reused += 1;
+                            let dv = v - v0;
+                            (
+                                current_a + conductance_s * dv,
+                                conductance_s,
+                                charge_c + capacitance_f * dv,
+                                capacitance_f,
+                            )
+                        }
+                        other => {
+                            let (id, gd) = junction_current(v, law.saturation_current_a, law.n_vt);
+                            let (qj, cj) = depletion_charge(
+                                v,
+                                law.junction_capacitance_f,
+                                law.junction_potential_v,
+                                law.junction_grading,
+                            );
+                            let q = qj + law.transit_time_s * id;
+                            let c = cj + law.transit_time_s * gd;
+                            if let Some((slot, _, _, evaluated)) = other {
+                                *evaluated += 1;
+                                *slot = Evaluation::Diode {
+                                    v,
+                                    current_a: id,
+                                    conductance_s: gd,
+                                    charge_c: q,
+                                    capacitance_f: c,
+                                };
+                            }
+                            (id, gd, q, c)
+                        }
+                    };
                     let (i, g) = (id + GMIN_S * v, gd + GMIN_S);
                     assembly.branch(*anode, *cathode, g, i - g * v);
-                    let (qj, cj) = depletion_charge(
-                        v,
-                        law.junction_capacitance_f,
-                        law.junction_potential_v,
-                        law.junction_grading,
-                    );
-                    let q = qj + law.transit_time_s * id;
-                    let c = cj + law.transit_time_s * gd;
                     charge_branch(&mut assembly, *anode, *cathode, *charge, v, q, c);
                 }
                 Stamp::Transistor {
@@ -502,7 +643,51 @@ impl System {
                     let model = &law.model;
                     let vbe = junctions.get(*je).copied().unwrap_or(0.0);
                     let vbc = junctions.get(*jc).copied().unwrap_or(0.0);
-                    let op = model.evaluate(vbe, vbc);
+                    let slot = evaluations.as_deref_mut().and_then(|cache| {
+                        let window = cache.window_share * law.vt;
+                        cache
+                            .slots
+                            .get_mut(*je)
+                            .map(|slot| (slot, window, &mut cache.reused, &mut cache.evaluated))
+                    });
+                    let (op, q_be, c_be, q_bc, c_bc) = match slot {
+                        Some((
+                            &mut Evaluation::Transistor { vbe: vbe0, vbc: vbc0, op, q_be, c_be, q_bc, c_bc },
+                            window,
+                            reused,
+                            _,
+                        )) if (vbe - vbe0).abs() <= window && (vbc - vbc0).abs() <= window => {
+                            *reused += 1;
+                            let (dbe, dbc) = (vbe - vbe0, vbc - vbc0);
+                            (continued(&op, dbe, dbc), q_be + c_be * dbe, c_be, q_bc + c_bc * dbc, c_bc)
+                        }
+                        other => {
+                            let op = model.evaluate(vbe, vbc);
+                            // Charges: τF·IF + emitter depletion on B–E, τR·IR + collector
+                            // depletion on B–C.
+                            let (qje, cje) = depletion_charge(
+                                vbe,
+                                model.emitter_junction_capacitance_f,
+                                model.emitter_junction_potential_v,
+                                model.junction_grading,
+                            );
+                            let (qjc, cjc) = depletion_charge(
+                                vbc,
+                                model.collector_junction_capacitance_f,
+                                model.collector_junction_potential_v,
+                                model.junction_grading,
+                            );
+                            let q_be = model.forward_transit_s * op.forward_current_a + qje;
+                            let c_be = model.forward_transit_s * op.forward_conductance_s + cje;
+                            let q_bc = model.reverse_transit_s * op.reverse_current_a + qjc;
+                            let c_bc = model.reverse_transit_s * op.reverse_conductance_s + cjc;
+                            if let Some((slot, _, _, evaluated)) = other {
+                                *evaluated += 1;
+                                *slot = Evaluation::Transistor { vbe, vbc, op, q_be, c_be, q_bc, c_bc };
+                            }
+                            (op, q_be, c_be, q_bc, c_bc)
+                        }
+                    };
                     // Real-frame branch voltages at the linearisation point.
                     let (vbe_real, vbc_real) = (s * vbe, s * vbc);
                     let ic = s * op.collector_current_a + GMIN_S * -vbc_real;
@@ -520,25 +705,6 @@ impl System {
                         assembly.matrix(row, *collector, -g_bc);
                         assembly.rhs(row, -(current - g_be * vbe_real - g_bc * vbc_real));
                     }
-                    // Charges: τF·IF + emitter depletion on B–E, τR·IR + collector depletion on B–C.
-                    let (i_forward, g_forward) = (op.forward_current_a, op.forward_conductance_s);
-                    let (i_reverse, g_reverse) = (op.reverse_current_a, op.reverse_conductance_s);
-                    let (qje, cje) = depletion_charge(
-                        vbe,
-                        model.emitter_junction_capacitance_f,
-                        model.emitter_junction_potential_v,
-                        model.junction_grading,
-                    );
-                    let (qjc, cjc) = depletion_charge(
-                        vbc,
-                        model.collector_junction_capacitance_f,
-                        model.collector_junction_potential_v,
-                        model.junction_grading,
-                    );
-                    let q_be = model.forward_transit_s * i_forward + qje;
-                    let c_be = model.forward_transit_s * g_forward + cje;
-                    let q_bc = model.reverse_transit_s * i_reverse + qjc;
-                    let c_bc = model.reverse_transit_s * g_reverse + cjc;
                     // Real frame: charge s·q at branch voltage s·v; the capacitance is unchanged.
                     charge_branch(&mut assembly, *base, *emitter, *qe, vbe_real, s * q_be, c_be);
                     charge_branch(&mut assembly, *base, *collector, *qc, vbc_real, s * q_bc, c_bc);
@@ -589,6 +755,27 @@ impl System {
         conditions: &Conditions,
         tolerances: NewtonTolerances,
     ) -> Result<Solved, Failure> {
+        self.newton_with(solver, start, junctions, conditions, tolerances, Reuse::nothing())
+    }
+
+    /// [`System::newton`] with device bypass and chord iterations as `reuse` allows.
+    ///
+    /// A chord iteration solves J·δ = b − A·x with the factors J of an earlier iteration,
+    /// where Newton solves A·x' = b; it converges linearly, at a rate ρ measured as the ratio
+    /// of successive updates, so the distance to the solution is at most ρ/(1 − ρ) times its
+    /// update. Its update test uses that bound, and a rate above [`CHORD_MAX_CONTRACTION`] or
+    /// a limited junction factorises afresh at the next iteration. The residual test is the
+    /// same for both, so what counts as converged does not change.
+    pub(crate) fn newton_with<S: LinearSolver>(
+        &self,
+        solver: &mut S,
+        start: &[f64],
+        junctions: &mut Vec<f64>,
+        conditions: &Conditions,
+        tolerances: NewtonTolerances,
+        reuse: Reuse,
+    ) -> Result<Solved, Failure> {
+        let Reuse { mut evaluations, chord } = reuse;
         let size = self.size();
         let node_count = self.node_count();
         let mut unknowns = start.to_vec();
@@ -606,10 +793,33 @@ impl System {
         let mut worst = (0, f64::INFINITY);
         self.junction_voltages_into(&unknowns, &mut proposed);
         let mut limited = self.limit_junctions(&proposed, junctions);
-        self.assemble(solver, &unknowns, junctions, conditions, &mut out);
+        self.assemble(solver, &unknowns, junctions, conditions, &mut out, evaluations.as_deref_mut());
+        // Whether the next iteration factorises, and whether `product` already holds the
+        // assembled matrix times `unknowns` (from the residual test).
+        let mut factorise = true;
+        let mut product_current = false;
+        let mut previous_ratio = f64::INFINITY;
         for iteration in 1..=tolerances.max_iterations {
-            next.clone_from(&out.rhs);
-            solver.solve_in_place(&mut next).map_err(|e| Failure::Singular { unknown: e.column })?;
+            let mut fresh = true;
+            if chord && !factorise {
+                if !product_current {
+                    solver.multiply(&unknowns, &mut product, &mut magnitude);
+                }
+                next.clear();
+                next.extend(out.rhs.iter().zip(&product).map(|(&b, &ax)| b - ax));
+                // Factors that give no finite answer are replaced by fresh ones.
+                if solver.solve_with_last_factors(&mut next) && next.iter().all(|v| v.is_finite()) {
+                    for (n, &x) in next.iter_mut().zip(&unknowns) {
+                        *n += x;
+                    }
+                    fresh = false;
+                }
+            }
+            if fresh {
+                next.clone_from(&out.rhs);
+                solver.solve_in_place(&mut next).map_err(|e| Failure::Singular { unknown: e.column })?;
+            }
+            product_current = false;
             // Largest update relative to its tolerance decides convergence and names the
             // culprit when the budget runs out.
             let mut worst_ratio = 0.0;
@@ -630,15 +840,24 @@ impl System {
                     iterations: iteration,
                 });
             }
-            let small_update = worst_ratio <= 1.0 && !limited;
+            let small_update = if fresh {
+                worst_ratio <= 1.0
+            } else {
+                let rate = worst_ratio / previous_ratio;
+                rate < 1.0 && worst_ratio <= 1.0 && worst_ratio * rate <= 1.0 - rate
+            } && !limited;
+            factorise = limited || (!fresh && !(worst_ratio <= CHORD_MAX_CONTRACTION * previous_ratio));
+            previous_ratio = worst_ratio;
             std::mem::swap(&mut unknowns, &mut next);
             self.junction_voltages_into(&unknowns, &mut proposed);
             limited = self.limit_junctions(&proposed, junctions);
+            factorise |= limited;
             // Linearised at the new point (at its exact junction voltages when none was
             // limited): the next iteration's system, and the charges of the solution.
-            self.assemble(solver, &unknowns, junctions, conditions, &mut out);
+            self.assemble(solver, &unknowns, junctions, conditions, &mut out, evaluations.as_deref_mut());
             if small_update && !limited {
                 solver.multiply(&unknowns, &mut product, &mut magnitude);
+                product_current = true;
                 let balanced = product.iter().zip(&magnitude).zip(&out.rhs).enumerate().all(
                     |(index, ((&ax, &terms), &b))| {
                         let absolute =
