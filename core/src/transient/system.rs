@@ -202,12 +202,16 @@ pub(crate) struct Reuse<'a> {
     pub evaluations: Option<&'a mut Evaluations>,
     /// Chord iterations: after the first iteration, keep the factors while they converge.
     pub chord: bool,
+    /// The constant matrix entries (conductances, gmin, source incidences) from the solver's
+    /// base ([`LinearSolver::save_base`]) after the first assembly; only for solves whose
+    /// conditions keep `extra_gmin_s`, as a transient run does.
+    pub constants: bool,
 }
 
 impl Reuse<'_> {
     /// Every device evaluated and every matrix factorised at every iteration.
     pub(crate) fn nothing() -> Reuse<'static> {
-        Reuse { evaluations: None, chord: false }
+        Reuse { evaluations: None, chord: false, constants: false }
     }
 }
 
@@ -258,24 +262,32 @@ struct Assembly<'s, S: LinearSolver> {
 }
 
 impl<S: LinearSolver> Assembly<'_, S> {
+    #[inline]
     fn matrix(&mut self, row: Pin, column: Pin, value: f64) {
         if let (Some(r), Some(c)) = (row, column) {
             self.solver.add(r, c, value);
         }
     }
+    #[inline]
     fn rhs(&mut self, row: Pin, value: f64) {
         if let Some(entry) = row.and_then(|r| self.rhs.get_mut(r)) {
             *entry += value;
         }
     }
     /// A branch current i = equivalent + g·(V(a) − V(b)) leaving node a for node b.
+    #[inline]
     fn branch(&mut self, a: Pin, b: Pin, conductance_s: f64, equivalent_a: f64) {
+        self.conductance(a, b, conductance_s);
+        self.rhs(a, -equivalent_a);
+        self.rhs(b, equivalent_a);
+    }
+    /// The matrix part of [`Assembly::branch`].
+    #[inline]
+    fn conductance(&mut self, a: Pin, b: Pin, conductance_s: f64) {
         self.matrix(a, a, conductance_s);
         self.matrix(b, b, conductance_s);
         self.matrix(a, b, -conductance_s);
         self.matrix(b, a, -conductance_s);
-        self.rhs(a, -equivalent_a);
-        self.rhs(b, equivalent_a);
     }
 }
 
@@ -516,22 +528,49 @@ impl System {
         junctions: &[f64],
         conditions: &Conditions,
         out: &mut Linearised,
-        mut evaluations: Option<&mut Evaluations>,
+        reuse: &mut Reuse,
     ) {
         let Linearised { rhs, charges, charge_currents } = out;
+        let constants_from_base = reuse.constants;
+        let mut evaluations = reuse.evaluations.as_deref_mut();
         if let Some(cache) = evaluations.as_deref_mut() {
             if cache.slots.len() != self.junction_count {
                 cache.slots = vec![Evaluation::None; self.junction_count];
             }
         }
         let size = self.size();
-        solver.reset(size);
+        let from_base = constants_from_base && solver.reset_to_base(size);
+        if !from_base {
+            solver.reset(size);
+        }
         rhs.clear();
         rhs.resize(size, 0.0);
         let mut assembly = Assembly { solver, rhs };
-        let node_gmin = GMIN_S + conditions.extra_gmin_s;
-        for node in 0..self.node_count() {
-            assembly.matrix(Some(node), Some(node), node_gmin);
+        // First the matrix entries that do not change during a run (no right-hand side):
+        // kept as the solver's base when asked, so later assemblies start from them.
+        if !from_base {
+            let node_gmin = GMIN_S + conditions.extra_gmin_s;
+            for node in 0..self.node_count() {
+                assembly.matrix(Some(node), Some(node), node_gmin);
+            }
+            for stamp in &self.stamps {
+                match stamp {
+                    Stamp::Conductance { a, b, conductance_s } => {
+                        assembly.conductance(*a, *b, *conductance_s)
+                    }
+                    Stamp::VoltageSource { positive, negative, row, .. } => {
+                        let r = Some(*row);
+                        assembly.matrix(*positive, r, 1.0);
+                        assembly.matrix(*negative, r, -1.0);
+                        assembly.matrix(r, *positive, 1.0);
+                        assembly.matrix(r, *negative, -1.0);
+                    }
+                    _ => {}
+                }
+            }
+            if constants_from_base {
+                assembly.solver.save_base();
+            }
         }
         for &(node, voltage_v, conductance_s) in conditions.pulls {
             assembly.matrix(Some(node), Some(node), conductance_s);
@@ -555,18 +594,13 @@ impl System {
             };
         for stamp in &self.stamps {
             match stamp {
-                Stamp::Conductance { a, b, conductance_s } => assembly.branch(*a, *b, *conductance_s, 0.0),
+                Stamp::Conductance { .. } => {}
                 Stamp::Capacitor { a, b, capacitance_f, charge } => {
                     let v = pin_voltage(unknowns, *a) - pin_voltage(unknowns, *b);
                     charge_branch(&mut assembly, *a, *b, *charge, v, capacitance_f * v, *capacitance_f);
                 }
-                Stamp::VoltageSource { positive, negative, row, waveform } => {
-                    let r = Some(*row);
-                    assembly.matrix(*positive, r, 1.0);
-                    assembly.matrix(*negative, r, -1.0);
-                    assembly.matrix(r, *positive, 1.0);
-                    assembly.matrix(r, *negative, -1.0);
-                    assembly.rhs(r, conditions.source_scale * waveform.value_at(conditions.time_s));
+                Stamp::VoltageSource { row, waveform, .. } => {
+                    assembly.rhs(Some(*row), conditions.source_scale * waveform.value_at(conditions.time_s));
                 }
                 Stamp::CurrentSource { from, to, waveform } => {
                     let current = conditions.source_scale * waveform.value_at(conditions.time_s);
@@ -775,7 +809,8 @@ impl System {
         tolerances: NewtonTolerances,
         reuse: Reuse,
     ) -> Result<Solved, Failure> {
-        let Reuse { mut evaluations, chord } = reuse;
+        let mut reuse = reuse;
+        let chord = reuse.chord;
         let size = self.size();
         let node_count = self.node_count();
         let mut unknowns = start.to_vec();
@@ -793,7 +828,7 @@ impl System {
         let mut worst = (0, f64::INFINITY);
         self.junction_voltages_into(&unknowns, &mut proposed);
         let mut limited = self.limit_junctions(&proposed, junctions);
-        self.assemble(solver, &unknowns, junctions, conditions, &mut out, evaluations.as_deref_mut());
+        self.assemble(solver, &unknowns, junctions, conditions, &mut out, &mut reuse);
         // Whether the next iteration factorises, and whether `product` already holds the
         // assembled matrix times `unknowns` (from the residual test).
         let mut factorise = true;
@@ -854,7 +889,7 @@ impl System {
             factorise |= limited;
             // Linearised at the new point (at its exact junction voltages when none was
             // limited): the next iteration's system, and the charges of the solution.
-            self.assemble(solver, &unknowns, junctions, conditions, &mut out, evaluations.as_deref_mut());
+            self.assemble(solver, &unknowns, junctions, conditions, &mut out, &mut reuse);
             if small_update && !limited {
                 solver.multiply(&unknowns, &mut product, &mut magnitude);
                 product_current = true;
@@ -878,3 +913,4 @@ impl System {
         })
     }
 }
+
