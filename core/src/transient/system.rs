@@ -914,3 +914,211 @@ impl System {
     }
 }
 
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::device::Polarity;
+    use crate::transient::circuit::DiodeModel;
+    use crate::transient::linear::{DenseSolver, SparseSolver};
+
+    /// A diode fed from 5 V through 1 kΩ, and a transistor switch with its base fed through
+    /// 100 kΩ, both with junction and diffusion charges.
+    fn test_system() -> Result<System, String> {
+        let resistor = |name: &str, a: &str, b: &str, resistance_ohm: f64| Element::Resistor {
+            name: name.into(),
+            positive_node: a.into(),
+            negative_node: b.into(),
+            resistance_ohm,
+        };
+        let diode = DiodeModel {
+            saturation_current_a: 1e-14,
+            emission_coefficient: 1.0,
+            series_resistance_ohm: 0.0,
+            junction_capacitance_f: 2e-12,
+            junction_potential_v: 0.7,
+            junction_grading: 0.5,
+            transit_time_s: 5e-9,
+        };
+        let transistor = EbersMoll {
+            polarity: Polarity::Npn,
+            temperature_c: 25.0,
+            saturation_current_a: 1e-14,
+            beta_forward: 100.0,
+            beta_reverse: 2.0,
+            forward_transit_s: 0.5e-9,
+            reverse_transit_s: 20e-9,
+            emitter_junction_capacitance_f: 3e-12,
+            collector_junction_capacitance_f: 2e-12,
+            emitter_junction_potential_v: 0.75,
+            collector_junction_potential_v: 0.75,
+            junction_grading: 0.33,
+            base_resistance_ohm: 0.0,
+            collector_resistance_ohm: 0.0,
+            leakage_a: 1e-9,
+            band_gap_ev: 1.11,
+        };
+        let circuit = Circuit {
+            elements: vec![
+                Element::VoltageSource {
+                    name: "VCC".into(),
+                    positive_node: "vcc".into(),
+                    negative_node: "0".into(),
+                    waveform: Waveform::Constant { value: 5.0 },
+                },
+                resistor("R1", "vcc", "a", 1e3),
+                Element::Diode { name: "D1".into(), anode: "a".into(), cathode: "0".into(), model: diode },
+                resistor("RB", "vcc", "b", 100e3),
+                resistor("RC", "vcc", "c", 1e3),
+                Element::Transistor {
+                    name: "Q1".into(),
+                    collector: "c".into(),
+                    base: "b".into(),
+                    emitter: "0".into(),
+                    model: transistor,
+                },
+                Element::Capacitor {
+                    name: "C1".into(),
+                    positive_node: "c".into(),
+                    negative_node: "0".into(),
+                    capacitance_f: 10e-12,
+                },
+            ],
+            temperature_c: 25.0,
+        };
+        System::compile(&circuit).map_err(|error| format!("the test circuit must compile: {error}"))
+    }
+
+    /// Every column of the assembled matrix, through `multiply` with unit vectors.
+    fn columns<S: LinearSolver>(solver: &S, size: usize) -> Vec<Vec<f64>> {
+        (0..size)
+            .map(|column| {
+                let unit: Vec<f64> = (0..size).map(|i| if i == column { 1.0 } else { 0.0 }).collect();
+                let (mut product, mut magnitude) = (Vec::new(), Vec::new());
+                solver.multiply(&unit, &mut product, &mut magnitude);
+                product
+            })
+            .collect()
+    }
+
+    fn close(a: &[f64], b: &[f64], relative: f64) -> bool {
+        let scale = b.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        a.len() == b.len() && a.iter().zip(b).all(|(x, y)| (x - y).abs() <= relative * scale)
+    }
+
+    /// The state at `a_v` on the diode node (other nodes fixed), and its linearisation.
+    fn assembled(
+        system: &System,
+        a_v: f64,
+        evaluations: Option<&mut Evaluations>,
+    ) -> (Vec<Vec<f64>>, Linearised, Vec<f64>) {
+        let unknowns = [5.0, a_v, 0.65, 0.2, 0.0];
+        let previous = vec![0.0; system.charge_count];
+        let conditions = Conditions {
+            time_s: 1e-9,
+            source_scale: 1.0,
+            extra_gmin_s: 0.0,
+            integration: Some(Integration { a: 2e9, b: -1.0 }),
+            previous_charges: &previous,
+            previous_charge_currents: &previous,
+            pulls: &[],
+        };
+        let junctions = system.junction_voltages(&unknowns);
+        let mut out = Linearised {
+            rhs: Vec::new(),
+            charges: vec![0.0; system.charge_count],
+            charge_currents: vec![0.0; system.charge_count],
+        };
+        let mut solver = DenseSolver::default();
+        let mut reuse = Reuse { evaluations, chord: false, constants: false };
+        system.assemble(&mut solver, &unknowns, &junctions, &conditions, &mut out, &mut reuse);
+        (columns(&solver, system.size()), out, junctions)
+    }
+
+    #[test]
+    fn bypass_reuses_an_evaluation_only_within_its_window_and_keeps_its_stamp() -> Result<(), String> {
+        let system = test_system()?;
+        assert_eq!(system.node("a"), Some(1));
+        let mut cache = Evaluations::new(1e-3);
+        let window = cache.window_share * thermal_voltage(25.0);
+        let (fresh_matrix, fresh, junctions) = assembled(&system, 0.6, Some(&mut cache));
+        assert_eq!((cache.evaluated, cache.reused), (2, 0));
+        // Inside the window both devices are reused (the transistor did not move at all):
+        // the linear system is the one of the evaluation at 0.6 V, and the diode's charge
+        // follows its capacitance.
+        let dv = 0.4 * window;
+        let (matrix, inside, _) = assembled(&system, 0.6 + dv, Some(&mut cache));
+        assert_eq!((cache.evaluated, cache.reused), (2, 2));
+        for (column, fresh_column) in matrix.iter().zip(&fresh_matrix) {
+            assert!(close(column, fresh_column, 1e-14), "{column:?} vs {fresh_column:?}");
+        }
+        assert!(close(&inside.rhs, &fresh.rhs, 1e-12), "{:?} vs {:?}", inside.rhs, fresh.rhs);
+        let (_, exact, _) = assembled(&system, 0.6 + dv, None);
+        let diode_charge = 0;
+        let (q0, q, q_exact) =
+            (fresh.charges[diode_charge], inside.charges[diode_charge], exact.charges[diode_charge]);
+        assert!(q != q0, "the reused charge must follow the voltage");
+        // Second-order remainder ½·q''·ΔV² with q'' ≈ q/(n·VT)² (diffusion-dominated).
+        assert!((q - q_exact).abs() <= 0.5 * (dv / thermal_voltage(25.0)).powi(2) * q_exact.abs() * 1.5);
+        assert!(junctions[0] == 0.6);
+        // Outside it the diode is evaluated afresh and the stamp is the exact one.
+        let (matrix, outside, _) = assembled(&system, 0.6 + 2.0 * window, Some(&mut cache));
+        assert_eq!((cache.evaluated, cache.reused), (3, 3));
+        let (exact_matrix, exact, _) = assembled(&system, 0.6 + 2.0 * window, None);
+        assert_eq!(matrix, exact_matrix);
+        assert_eq!(outside.rhs, exact.rhs);
+        Ok(())
+    }
+
+    #[test]
+    fn chord_iterations_with_bypass_converge_to_the_newton_answer() -> Result<(), String> {
+        let system = test_system()?;
+        let size = system.size();
+        let previous = vec![0.0; system.charge_count];
+        let conditions = Conditions {
+            time_s: 1e-9,
+            source_scale: 1.0,
+            extra_gmin_s: 0.0,
+            integration: Some(Integration { a: 1e8, b: 0.0 }),
+            previous_charges: &previous,
+            previous_charge_currents: &previous,
+            pulls: &[],
+        };
+        let tolerances =
+            NewtonTolerances { relative: 1e-3, voltage_v: 1e-6, current_a: 1e-12, max_iterations: 100 };
+        // A start far from the answer, so that the solve takes several iterations.
+        let start = vec![5.0, 0.0, 0.0, 5.0, 0.0];
+        let mut plain_solver = SparseSolver::default();
+        let mut plain_junctions = system.starting_junctions(&start);
+        let plain = system.newton(&mut plain_solver, &start, &mut plain_junctions, &conditions, tolerances);
+        let mut reusing_solver = SparseSolver::default();
+        let mut reusing_junctions = system.starting_junctions(&start);
+        let mut cache = Evaluations::new(tolerances.relative);
+        let reuse = Reuse { evaluations: Some(&mut cache), chord: true, constants: true };
+        let reusing = system.newton_with(
+            &mut reusing_solver,
+            &start,
+            &mut reusing_junctions,
+            &conditions,
+            tolerances,
+            reuse,
+        );
+        let (plain, reusing) = (plain.map_err(|e| format!("{e:?}"))?, reusing.map_err(|e| format!("{e:?}"))?);
+        // Each answer is within the Newton tolerance of the solution, so within twice of
+        // each other.
+        for (index, (x, y)) in plain.unknowns.iter().zip(&reusing.unknowns).enumerate() {
+            let absolute =
+                if index < system.node_count() { tolerances.voltage_v } else { tolerances.current_a };
+            assert!(
+                (x - y).abs() <= 2.0 * (tolerances.relative * x.abs().max(y.abs()) + absolute),
+                "{index}: {x} vs {y}"
+            );
+        }
+        assert_eq!(plain.unknowns.len(), size);
+        // The chord did replace factorisations (else this test would check plain Newton).
+        let statistics = reusing_solver.statistics();
+        let factorisations = statistics.pivoting_factorisations + statistics.frozen_refactorisations;
+        assert!(plain.iterations >= 4, "{}", plain.iterations);
+        assert!(factorisations < reusing.iterations, "{statistics:?} for {} iterations", reusing.iterations);
+        Ok(())
+    }
+}
