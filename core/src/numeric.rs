@@ -51,22 +51,17 @@ impl DenseMatrix {
 
     /// Solves `self · x = rhs` by Gaussian elimination with partial pivoting on a copy of the
     /// matrix. Returns `x`.
-    pub fn solve(&self, rhs: &[f64]) -> Result<Vec<f64>, SingularMatrix> {
-        self.factor()?.solve(rhs)
-    }
-
-    /// LU factors by Gaussian elimination with partial pivoting, kept to solve several
-    /// right-hand sides.
     // Indices stay below `size`, and `entries.len() == size²` by construction, so direct
     // indexing cannot go out of bounds; it keeps this innermost loop tight.
     #[allow(clippy::indexing_slicing)]
-    pub fn factor(&self) -> Result<DenseLu, SingularMatrix> {
+    pub fn solve(&self, rhs: &[f64]) -> Result<Vec<f64>, SingularMatrix> {
         let n = self.size;
         let mut a = self.entries.clone();
+        let mut b: Vec<f64> = rhs.to_vec();
+        b.resize(n, 0.0);
         if a.len() != n * n {
             return Err(SingularMatrix { column: 0 });
         }
-        let mut pivots = Vec::with_capacity(n);
         let scale = a.iter().fold(0.0f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
         for column in 0..n {
             let mut pivot_row = column;
@@ -81,62 +76,25 @@ impl DenseMatrix {
             if !(pivot_abs > scale * 1e-300) || !pivot_abs.is_finite() {
                 return Err(SingularMatrix { column });
             }
-            // Whole rows swap, the multipliers already stored below the diagonal with them,
-            // so applying every swap to a right-hand side first and then eliminating does the
-            // very operations, in the same order, that eliminating it alongside would.
             if pivot_row != column {
                 for k in 0..n {
                     a.swap(pivot_row * n + k, column * n + k);
                 }
+                b.swap(pivot_row, column);
             }
-            pivots.push(pivot_row);
             let pivot = a[column * n + column];
             let (done, rest) = a.split_at_mut((column + 1) * n);
-            let pivot_tail = &done[column * n + column + 1..(column + 1) * n];
-            for target in rest.chunks_exact_mut(n) {
+            let pivot_tail = &done[column * n + column..(column + 1) * n];
+            let b_pivot = b[column];
+            for (offset, target) in rest.chunks_exact_mut(n).enumerate() {
                 let factor = target[column] / pivot;
-                target[column] = factor;
                 if factor == 0.0 {
                     continue;
                 }
-                for (t, p) in target[column + 1..].iter_mut().zip(pivot_tail) {
+                for (t, p) in target[column..].iter_mut().zip(pivot_tail) {
                     *t -= factor * p;
                 }
-            }
-        }
-        Ok(DenseLu { size: n, factors: a, pivots })
-    }
-}
-
-/// The factors of [`DenseMatrix::factor`]: unit L below the diagonal, U on and above it, and
-/// the row swapped in at each column.
-#[derive(Debug, Clone, PartialEq)]
-pub struct DenseLu {
-    size: usize,
-    factors: Vec<f64>,
-    pivots: Vec<usize>,
-}
-
-impl DenseLu {
-    /// Solves with the factors; a right-hand side of the wrong length is padded or cut.
-    // `factors.len() == size²` and every pivot is below `size` by construction in
-    // [`DenseMatrix::factor`].
-    #[allow(clippy::indexing_slicing)]
-    pub fn solve(&self, rhs: &[f64]) -> Result<Vec<f64>, SingularMatrix> {
-        let n = self.size;
-        let a = &self.factors;
-        let mut b: Vec<f64> = rhs.to_vec();
-        b.resize(n, 0.0);
-        for (column, &pivot_row) in self.pivots.iter().enumerate() {
-            b.swap(pivot_row, column);
-        }
-        for column in 0..n {
-            let b_pivot = b[column];
-            for row in column + 1..n {
-                let factor = a[row * n + column];
-                if factor != 0.0 {
-                    b[row] -= factor * b_pivot;
-                }
+                b[column + 1 + offset] -= factor * b_pivot;
             }
         }
         let mut x = vec![0.0; n];

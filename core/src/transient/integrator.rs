@@ -281,7 +281,7 @@ pub fn simulate_with<S: LinearSolver>(
             }
         }
         let mut trial_junctions = junctions.clone();
-        let reuse = Reuse { evaluations: Some(&mut evaluations), chord: true, constants: true };
+        let reuse = Reuse { evaluations: Some(&mut evaluations), constants: true };
         let outcome =
             system.newton_with(solver, &start, &mut trial_junctions, &conditions, tolerances, reuse);
         result.statistics.device_evaluations = evaluations.evaluated;

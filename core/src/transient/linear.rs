@@ -8,7 +8,7 @@ use faer::sparse::linalg::{LuError, SupernodalThreshold};
 use faer::sparse::{SparseColMatRef, SymbolicSparseColMatRef};
 use faer::{Conj, MatMut, Par};
 
-use crate::numeric::{larger, DenseLu, DenseMatrix};
+use crate::numeric::{larger, DenseMatrix};
 
 /// Occurs when factorisation finds no usable pivot in `column` (an unknown's index).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -31,14 +31,6 @@ pub trait LinearSolver {
     /// terms of each row, Σ|a_ij·x_j|, into `magnitude` (the scale of a residual test). Both
     /// are resized to the size.
     fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>);
-    /// Solves against the factors of the last successful [`LinearSolver::solve_in_place`],
-    /// whatever has been accumulated since (the chord iterations of Newton, which keep one
-    /// Jacobian for several right-hand sides). Returns false, leaving `rhs` alone, when the
-    /// solver keeps no factors; true otherwise, even if the result is not finite (the caller
-    /// checks it).
-    fn solve_with_last_factors(&mut self, _rhs: &mut Vec<f64>) -> bool {
-        false
-    }
     /// Keeps the entries accumulated since the last reset as a base that
     /// [`LinearSolver::reset_to_base`] starts from (the stamps that never change during a
     /// run, so they are added once instead of at every assembly). [`LinearSolver::reset`]
@@ -67,15 +59,13 @@ const ZERO_PIVOT_SHARE: f64 = 1e-300;
 #[derive(Debug, Clone)]
 pub struct DenseSolver {
     matrix: DenseMatrix,
-    /// The factors of the last successful solve, for chord iterations.
-    factors: Option<DenseLu>,
     /// See [`LinearSolver::save_base`].
     base: Option<DenseMatrix>,
 }
 
 impl Default for DenseSolver {
     fn default() -> Self {
-        DenseSolver { matrix: DenseMatrix::zeros(0), factors: None, base: None }
+        DenseSolver { matrix: DenseMatrix::zeros(0), base: None }
     }
 }
 
@@ -86,7 +76,6 @@ impl LinearSolver for DenseSolver {
             self.matrix.clear();
         } else {
             self.matrix = DenseMatrix::zeros(size);
-            self.factors = None;
         }
     }
     fn save_base(&mut self) {
@@ -107,20 +96,8 @@ impl LinearSolver for DenseSolver {
         }
     }
     fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
-        self.factors = None;
-        let factors = self.matrix.factor().map_err(|e| SingularColumn { column: e.column })?;
-        *rhs = factors.solve(rhs).map_err(|e| SingularColumn { column: e.column })?;
-        self.factors = Some(factors);
+        *rhs = self.matrix.solve(rhs).map_err(|e| SingularColumn { column: e.column })?;
         Ok(())
-    }
-    fn solve_with_last_factors(&mut self, rhs: &mut Vec<f64>) -> bool {
-        let Some(factors) = &self.factors else { return false };
-        match factors.solve(rhs) {
-            Ok(x) => *rhs = x,
-            // Not finite: the caller sees it in the result.
-            Err(_) => rhs.iter_mut().for_each(|v| *v = f64::NAN),
-        }
-        true
     }
     fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
         let size = self.matrix.size();
@@ -252,9 +229,6 @@ pub struct SparseSolver {
     frozen: Option<FrozenFactors>,
     /// Pivot afresh at every solve (faer only), for comparison.
     always_pivot: bool,
-    /// True while the factors are those of the last successful solve, for
-    /// [`LinearSolver::solve_with_last_factors`].
-    factors_valid: bool,
     /// Values and call count of [`LinearSolver::save_base`]; empty when there is none (it
     /// names slots of the current pattern, so a new pattern drops it).
     base_values: Vec<f64>,
@@ -479,8 +453,6 @@ impl LinearSolver for SparseSolver {
     fn solve_in_place(&mut self, rhs: &mut Vec<f64>) -> Result<(), SingularColumn> {
         let size = self.pattern.size;
         rhs.resize(size, 0.0);
-        // A failed refactorisation leaves the factors half overwritten.
-        self.factors_valid = false;
         if size == 0 {
             return Ok(());
         }
@@ -526,19 +498,10 @@ impl LinearSolver for SparseSolver {
         if !self.solve_with_factors(rhs) {
             return Err(SingularColumn { column: 0 });
         }
-        self.factors_valid = true;
         match rhs.iter().position(|v| !v.is_finite()) {
             Some(column) => Err(SingularColumn { column }),
             None => Ok(()),
         }
-    }
-
-    fn solve_with_last_factors(&mut self, rhs: &mut Vec<f64>) -> bool {
-        if !self.factors_valid {
-            return false;
-        }
-        rhs.resize(self.pattern.size, 0.0);
-        self.solve_with_factors(rhs)
     }
 
     fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
@@ -817,13 +780,6 @@ impl LinearSolver for AutomaticSolver {
             self.sparse.multiply(x, product, magnitude);
         } else {
             self.dense.multiply(x, product, magnitude);
-        }
-    }
-    fn solve_with_last_factors(&mut self, rhs: &mut Vec<f64>) -> bool {
-        if self.use_sparse {
-            self.sparse.solve_with_last_factors(rhs)
-        } else {
-            self.dense.solve_with_last_factors(rhs)
         }
     }
     fn save_base(&mut self) {

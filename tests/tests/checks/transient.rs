@@ -562,8 +562,7 @@ proptest! {
 fn bistable_run_agrees_between_dense_and_sparse_solvers() {
     // Both solvers factor the same matrices by partial pivoting (the sparse one reuses its
     // pivots while they stay acceptable), so they differ only by rounding, about 1e-15 of
-    // each entry; Newton and step control then see the same numbers to that level (both keep
-    // their factors for the same chord iterations, which those numbers decide). Checked:
+    // each entry; Newton and step control then see the same numbers to that level. Checked:
     // the same accepted steps and every node voltage to 1 µV (the Newton voltage tolerance).
     let (circuit, hints, stop) = bistable(10, 2e-6, Polarity::Npn);
     let settings = TransientSettings::new(stop);
