@@ -4,7 +4,7 @@
 use std::collections::BTreeMap;
 
 use super::circuit::{is_ground, Circuit, Element};
-use super::devices::{critical_voltage, depletion_charge, junction_current, limit_junction_voltage};
+use super::devices::{critical_voltage, junction_current, limit_junction_voltage, DepletionLaw};
 use super::error::SimulationError;
 use super::linear::LinearSolver;
 use super::waveform::Waveform;
@@ -91,9 +91,7 @@ struct DiodeLaw {
     saturation_current_a: f64,
     n_vt: f64,
     critical_v: f64,
-    junction_capacitance_f: f64,
-    junction_potential_v: f64,
-    junction_grading: f64,
+    depletion: DepletionLaw,
     transit_time_s: f64,
 }
 
@@ -104,6 +102,8 @@ struct TransistorLaw {
     sign: f64,
     vt: f64,
     critical_v: f64,
+    emitter_depletion: DepletionLaw,
+    collector_depletion: DepletionLaw,
 }
 
 /// How charges turn into currents at this solve: i = a·(q − q_previous) + b·i_previous.
@@ -364,9 +364,11 @@ impl System {
                             saturation_current_a: model.saturation_current_a,
                             n_vt,
                             critical_v: critical_voltage(model.saturation_current_a, n_vt),
-                            junction_capacitance_f: model.junction_capacitance_f,
-                            junction_potential_v: model.junction_potential_v,
-                            junction_grading: model.junction_grading,
+                            depletion: DepletionLaw::new(
+                                model.junction_capacitance_f,
+                                model.junction_potential_v,
+                                model.junction_grading,
+                            ),
                             transit_time_s: model.transit_time_s,
                         },
                         charge: charge_count,
@@ -404,6 +406,16 @@ impl System {
                             sign: model.polarity.sign(),
                             vt,
                             critical_v: critical_voltage(model.saturation_current_a, vt),
+                            emitter_depletion: DepletionLaw::new(
+                                model.emitter_junction_capacitance_f,
+                                model.emitter_junction_potential_v,
+                                model.junction_grading,
+                            ),
+                            collector_depletion: DepletionLaw::new(
+                                model.collector_junction_capacitance_f,
+                                model.collector_junction_potential_v,
+                                model.junction_grading,
+                            ),
                         },
                         charges: [charge_count, charge_count + 1],
                         junctions: [junction_count, junction_count + 1],
@@ -634,12 +646,7 @@ impl System {
                         }
                         other => {
                             let (id, gd) = junction_current(v, law.saturation_current_a, law.n_vt);
-                            let (qj, cj) = depletion_charge(
-                                v,
-                                law.junction_capacitance_f,
-                                law.junction_potential_v,
-                                law.junction_grading,
-                            );
+                            let (qj, cj) = law.depletion.charge(v);
                             let q = qj + law.transit_time_s * id;
                             let c = cj + law.transit_time_s * gd;
                             if let Some((slot, _, _, evaluated)) = other {
@@ -693,18 +700,8 @@ impl System {
                             let op = model.evaluate(vbe, vbc);
                             // Charges: τF·IF + emitter depletion on B–E, τR·IR + collector
                             // depletion on B–C.
-                            let (qje, cje) = depletion_charge(
-                                vbe,
-                                model.emitter_junction_capacitance_f,
-                                model.emitter_junction_potential_v,
-                                model.junction_grading,
-                            );
-                            let (qjc, cjc) = depletion_charge(
-                                vbc,
-                                model.collector_junction_capacitance_f,
-                                model.collector_junction_potential_v,
-                                model.junction_grading,
-                            );
+                            let (qje, cje) = law.emitter_depletion.charge(vbe);
+                            let (qjc, cjc) = law.collector_depletion.charge(vbc);
                             let q_be = model.forward_transit_s * op.forward_current_a + qje;
                             let c_be = model.forward_transit_s * op.forward_conductance_s + cje;
                             let q_bc = model.reverse_transit_s * op.reverse_current_a + qjc;
