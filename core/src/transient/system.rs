@@ -233,6 +233,19 @@ pub(crate) enum Failure {
     NotConverged { unknown: usize, largest_update: f64, iterations: usize },
 }
 
+/// One junction's terminals and limiting constants, in junction-slot order: the Newton loop
+/// reads and limits every junction at every iteration, and walking this short table instead
+/// of every stamp (each as large as its biggest variant) is several times cheaper on wasm32.
+#[derive(Debug, Clone, Copy)]
+struct JunctionPins {
+    positive: Pin,
+    negative: Pin,
+    /// +1, or −1 for a PNP transistor's junctions (NPN-frame voltage = sign·real voltage).
+    sign: f64,
+    n_vt: f64,
+    critical_v: f64,
+}
+
 /// The compiled circuit.
 #[derive(Debug, Clone)]
 pub struct System {
@@ -241,6 +254,8 @@ pub struct System {
     /// Names of the voltage sources, one current unknown each after the nodes.
     pub source_names: Vec<String>,
     stamps: Vec<Stamp>,
+    /// `junction_count` entries, slot by slot.
+    junction_pins: Vec<JunctionPins>,
     pub(crate) charge_count: usize,
     pub(crate) junction_count: usize,
 }
@@ -430,7 +445,43 @@ impl System {
             stamps.push(Stamp::VoltageSource { positive, negative, row: node_count + index, waveform });
         }
         node_names.extend(internal);
-        Ok(System { node_names, source_names, stamps, charge_count, junction_count })
+        let mut junction_pins =
+            vec![
+                JunctionPins { positive: None, negative: None, sign: 1.0, n_vt: 1.0, critical_v: 0.0 };
+                junction_count
+            ];
+        for stamp in &stamps {
+            let mut set = |slot: usize, pins: JunctionPins| {
+                if let Some(entry) = junction_pins.get_mut(slot) {
+                    *entry = pins;
+                }
+            };
+            match stamp {
+                Stamp::Diode { anode, cathode, law, junction, .. } => set(
+                    *junction,
+                    JunctionPins {
+                        positive: *anode,
+                        negative: *cathode,
+                        sign: 1.0,
+                        n_vt: law.n_vt,
+                        critical_v: law.critical_v,
+                    },
+                ),
+                Stamp::Transistor { collector, base, emitter, law, junctions: [je, jc], .. } => {
+                    let pins = |negative: Pin| JunctionPins {
+                        positive: *base,
+                        negative,
+                        sign: law.sign,
+                        n_vt: law.vt,
+                        critical_v: law.critical_v,
+                    };
+                    set(*je, pins(*emitter));
+                    set(*jc, pins(*collector));
+                }
+                _ => {}
+            }
+        }
+        Ok(System { node_names, source_names, stamps, junction_pins, charge_count, junction_count })
     }
 
     pub fn node_count(&self) -> usize {
@@ -480,24 +531,8 @@ impl System {
 
     /// [`System::junction_voltages`] into a buffer of `junction_count` entries.
     fn junction_voltages_into(&self, unknowns: &[f64], junctions: &mut [f64]) {
-        for stamp in &self.stamps {
-            match stamp {
-                Stamp::Diode { anode, cathode, junction, .. } => {
-                    if let Some(slot) = junctions.get_mut(*junction) {
-                        *slot = pin_voltage(unknowns, *anode) - pin_voltage(unknowns, *cathode);
-                    }
-                }
-                Stamp::Transistor { collector, base, emitter, law, junctions: [je, jc], .. } => {
-                    let vb = pin_voltage(unknowns, *base);
-                    if let Some(slot) = junctions.get_mut(*je) {
-                        *slot = law.sign * (vb - pin_voltage(unknowns, *emitter));
-                    }
-                    if let Some(slot) = junctions.get_mut(*jc) {
-                        *slot = law.sign * (vb - pin_voltage(unknowns, *collector));
-                    }
-                }
-                _ => {}
-            }
+        for (slot, pins) in junctions.iter_mut().zip(&self.junction_pins) {
+            *slot = pins.sign * (pin_voltage(unknowns, pins.positive) - pin_voltage(unknowns, pins.negative));
         }
     }
 
@@ -738,25 +773,16 @@ impl System {
         }
     }
 
-    /// Limits every junction's proposed voltage against `junctions` (updated in place);
+    /// Limits every junction's voltage at `unknowns` against `junctions` (updated in place);
     /// true when any was limited.
-    fn limit_junctions(&self, proposed: &[f64], junctions: &mut [f64]) -> bool {
+    fn limit_junctions(&self, unknowns: &[f64], junctions: &mut [f64]) -> bool {
         let mut limited_any = false;
-        let mut limit = |slot: usize, n_vt: f64, critical_v: f64| {
-            let (Some(previous), Some(&new)) = (junctions.get_mut(slot), proposed.get(slot)) else { return };
-            let (value, limited) = limit_junction_voltage(new, *previous, n_vt, critical_v);
+        for (previous, pins) in junctions.iter_mut().zip(&self.junction_pins) {
+            let proposed =
+                pins.sign * (pin_voltage(unknowns, pins.positive) - pin_voltage(unknowns, pins.negative));
+            let (value, limited) = limit_junction_voltage(proposed, *previous, pins.n_vt, pins.critical_v);
             *previous = value;
             limited_any |= limited;
-        };
-        for stamp in &self.stamps {
-            match stamp {
-                Stamp::Diode { law, junction, .. } => limit(*junction, law.n_vt, law.critical_v),
-                Stamp::Transistor { law, junctions: [je, jc], .. } => {
-                    limit(*je, law.vt, law.critical_v);
-                    limit(*jc, law.vt, law.critical_v);
-                }
-                _ => {}
-            }
         }
         limited_any
     }
@@ -808,10 +834,8 @@ impl System {
         let mut next = Vec::with_capacity(size);
         let mut product = vec![0.0; size];
         let mut magnitude = vec![0.0; size];
-        let mut proposed = vec![0.0; self.junction_count];
         let mut worst = (0, f64::INFINITY);
-        self.junction_voltages_into(&unknowns, &mut proposed);
-        let mut limited = self.limit_junctions(&proposed, junctions);
+        let mut limited = self.limit_junctions(&unknowns, junctions);
         self.assemble(solver, &unknowns, junctions, conditions, &mut out, &mut reuse);
         for iteration in 1..=tolerances.max_iterations {
             next.clone_from(&out.rhs);
@@ -838,8 +862,7 @@ impl System {
             }
             let small_update = worst_ratio <= 1.0 && !limited;
             std::mem::swap(&mut unknowns, &mut next);
-            self.junction_voltages_into(&unknowns, &mut proposed);
-            limited = self.limit_junctions(&proposed, junctions);
+            limited = self.limit_junctions(&unknowns, junctions);
             // Linearised at the new point (at its exact junction voltages when none was
             // limited): the next iteration's system, and the charges of the solution.
             self.assemble(solver, &unknowns, junctions, conditions, &mut out, &mut reuse);
