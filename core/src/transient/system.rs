@@ -617,28 +617,29 @@ impl System {
             assembly.matrix(Some(node), Some(node), conductance_s);
             assembly.rhs(Some(node), conductance_s * voltage_v);
         }
-        // Charge branch: q(v), C(v) at branch voltage v → companion conductance and current.
-        let mut charge_branch =
-            |assembly: &mut Assembly<S>, a: Pin, b: Pin, slot: usize, v: f64, q: f64, c: f64| {
-                if let Some(entry) = charges.get_mut(slot) {
-                    *entry = q;
-                }
-                let Some(integration) = conditions.integration else { return };
-                let q_previous = conditions.previous_charges.get(slot).copied().unwrap_or(0.0);
-                let i_previous = conditions.previous_charge_currents.get(slot).copied().unwrap_or(0.0);
-                let current = integration.a * (q - q_previous) + integration.b * i_previous;
-                if let Some(entry) = charge_currents.get_mut(slot) {
-                    *entry = current;
-                }
-                let conductance = integration.a * c;
-                assembly.branch(a, b, conductance, current - conductance * v);
-            };
+        // Charge q(v) with capacitance C(v) in `slot` → its companion current and conductance
+        // (none in DC). The devices stamp them together with their own branches, so each
+        // junction adds its entries once.
+        let mut charge_companion = |slot: usize, q: f64, c: f64| -> (f64, f64) {
+            if let Some(entry) = charges.get_mut(slot) {
+                *entry = q;
+            }
+            let Some(integration) = conditions.integration else { return (0.0, 0.0) };
+            let q_previous = conditions.previous_charges.get(slot).copied().unwrap_or(0.0);
+            let i_previous = conditions.previous_charge_currents.get(slot).copied().unwrap_or(0.0);
+            let current = integration.a * (q - q_previous) + integration.b * i_previous;
+            if let Some(entry) = charge_currents.get_mut(slot) {
+                *entry = current;
+            }
+            (current, integration.a * c)
+        };
         for stamp in &self.stamps {
             match stamp {
                 Stamp::Conductance { .. } => {}
                 Stamp::Capacitor { a, b, capacitance_f, charge } => {
                     let v = pin_voltage(unknowns, *a) - pin_voltage(unknowns, *b);
-                    charge_branch(&mut assembly, *a, *b, *charge, v, capacitance_f * v, *capacitance_f);
+                    let (current, conductance) = charge_companion(*charge, capacitance_f * v, *capacitance_f);
+                    assembly.branch(*a, *b, conductance, current - conductance * v);
                 }
                 Stamp::VoltageSource { row, waveform, .. } => {
                     assembly.rhs(Some(*row), conditions.source_scale * waveform.value_at(conditions.time_s));
@@ -698,8 +699,8 @@ impl System {
                         }
                     };
                     let (i, g) = (id + GMIN_S * v, gd + GMIN_S);
-                    assembly.branch(*anode, *cathode, g, i - g * v);
-                    charge_branch(&mut assembly, *anode, *cathode, *charge, v, q, c);
+                    let (i_charge, g_charge) = charge_companion(*charge, q, c);
+                    assembly.branch(*anode, *cathode, g + g_charge, (i - g * v) + (i_charge - g_charge * v));
                 }
                 Stamp::Transistor {
                     collector,
@@ -754,10 +755,15 @@ impl System {
                     let ib = s * op.base_current_a + GMIN_S * (vbe_real + vbc_real);
                     let (gc_be, gc_bc) = (op.dic_dvbe, op.dic_dvbc - GMIN_S);
                     let (gb_be, gb_bc) = (op.dib_dvbe + GMIN_S, op.dib_dvbc + GMIN_S);
+                    // Real frame: charge s·q at branch voltage s·v; the capacitance is
+                    // unchanged. The B–E charge current leaves the base for the emitter, the
+                    // B–C one the base for the collector.
+                    let (i_qbe, g_qbe) = charge_companion(*qe, s * q_be, c_be);
+                    let (i_qbc, g_qbc) = charge_companion(*qc, s * q_bc, c_bc);
                     let rows = [
-                        (*collector, ic, gc_be, gc_bc),
-                        (*base, ib, gb_be, gb_bc),
-                        (*emitter, -(ic + ib), -(gc_be + gb_be), -(gc_bc + gb_bc)),
+                        (*collector, ic - i_qbc, gc_be, gc_bc - g_qbc),
+                        (*base, ib + i_qbe + i_qbc, gb_be + g_qbe, gb_bc + g_qbc),
+                        (*emitter, -(ic + ib) - i_qbe, -(gc_be + gb_be) - g_qbe, -(gc_bc + gb_bc)),
                     ];
                     for (row, current, g_be, g_bc) in rows {
                         assembly.matrix(row, *base, g_be + g_bc);
@@ -765,9 +771,6 @@ impl System {
                         assembly.matrix(row, *collector, -g_bc);
                         assembly.rhs(row, -(current - g_be * vbe_real - g_bc * vbc_real));
                     }
-                    // Real frame: charge s·q at branch voltage s·v; the capacitance is unchanged.
-                    charge_branch(&mut assembly, *base, *emitter, *qe, vbe_real, s * q_be, c_be);
-                    charge_branch(&mut assembly, *base, *collector, *qc, vbc_real, s * q_bc, c_bc);
                 }
             }
         }
