@@ -237,6 +237,8 @@ pub fn simulate_with<S: LinearSolver>(
     // Device evaluations are pure functions of the junction voltages, so they carry over
     // rejected steps as well as accepted ones.
     let mut evaluations = Evaluations::new(settings.relative_tolerance);
+    // The junction history a step's solve starts from and updates; kept only when accepted.
+    let mut trial_junctions = Vec::with_capacity(junctions.len());
     // Every accepted or rejected step counts, so the loop is bounded even if steps shrink.
     let attempt_limit = settings.max_steps.saturating_mul(20);
     for _ in 0..attempt_limit {
@@ -280,7 +282,7 @@ pub fn simulate_with<S: LinearSolver>(
                 }
             }
         }
-        let mut trial_junctions = junctions.clone();
+        trial_junctions.clone_from(&junctions);
         let reuse = Reuse { evaluations: Some(&mut evaluations), constants: true };
         let outcome =
             system.newton_with(solver, &start, &mut trial_junctions, &conditions, tolerances, reuse);
@@ -355,7 +357,7 @@ pub fn simulate_with<S: LinearSolver>(
         result.statistics.accepted_steps += 1;
         let time_before_step = time;
         time = new_time;
-        junctions = trial_junctions;
+        std::mem::swap(&mut junctions, &mut trial_junctions);
         let before = std::mem::replace(&mut unknowns, solved.unknowns);
         previous = Some((time_before_step, before));
         charges = solved.charges;
@@ -379,11 +381,14 @@ pub fn simulate_with<S: LinearSolver>(
             history.clear();
             previous = None;
             history.push((time, charges.clone()));
+        } else if history.len() >= 3 {
+            // The oldest point leaves; its buffer takes the new one (no allocation per step).
+            let mut oldest = history.remove(0);
+            oldest.0 = time;
+            oldest.1.clone_from(&charges);
+            history.push(oldest);
         } else {
             history.push((time, charges.clone()));
-            if history.len() > 3 {
-                history.remove(0);
-            }
         }
     }
     Err(SimulationError::StepLimit { time_s: time, max_steps: settings.max_steps })
