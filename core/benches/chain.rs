@@ -6,7 +6,8 @@
 //! (`chain-design.json`) so the figures do not move when synthesis changes; the circuit is
 //! built by `verify::chain_circuit`. Options after `--`: `quick` (fewer repetitions),
 //! `accuracy` (also the edge-time error against a run at relative tolerance 1e-5),
-//! `sparse-only` (skip the dense runs), `crossover` (only the dense/sparse crossover table),
+//! `sparse-only` (skip the dense runs), `stage-only` (skip the ten-stage chain, as the wasm
+//! benchmark's option of that name does), `crossover` (only the dense/sparse crossover table),
 //! `once dense|sparse|pivoting STAGES EDGES` (one run, for a profiler, with its steps by decade of
 //! size), `accuracy-only STAGES EDGES [CHARGE_TOLERANCE_C]` (only the edge-time error, every
 //! stage's edges, against relative 1e-5 and 1 fC).
@@ -278,6 +279,9 @@ fn main() {
         ("one stage, 1000 toggles", 1, 1000),
         ("ten-stage chain, 1024 input edges (divide by 1024)", 10, 1024),
     ] {
+        if stages > 1 && has("stage-only") {
+            continue;
+        }
         let built = built(&design, stages);
         println!("flipwright-core chain benchmark: {title}");
         let sparse = case("sparse", &built, edges, repetitions, SparseSolver::default);

@@ -10,28 +10,73 @@ pub const DEPLETION_LINEAR_FRACTION: f64 = 0.5;
 /// Depletion charge and capacitance (q, dq/dV) of Cj0/(1 − V/φ)^m, with the capacitance
 /// continued as its tangent line beyond V = ½φ (standard textbook continuation).
 pub fn depletion_charge(voltage_v: f64, zero_bias_f: f64, potential_v: f64, grading: f64) -> (f64, f64) {
-    if zero_bias_f == 0.0 {
-        return (0.0, 0.0);
+    DepletionLaw::new(zero_bias_f, potential_v, grading).charge(voltage_v)
+}
+
+/// One junction's depletion law with what does not depend on the voltage worked out once: a
+/// forward-biased junction (a saturated transistor's two, a conducting diode) is past the
+/// knee at every evaluation, where the power (1 − fc)^(−m) and the knee's charge are
+/// constants.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct DepletionLaw {
+    zero_bias_f: f64,
+    potential_v: f64,
+    grading: f64,
+    knee_v: f64,
+    knee_charge_c: f64,
+    /// Capacitance per unit of the linear continuation: Cj0·(1 − fc)^(−m)/(1 − fc).
+    scale_f: f64,
+}
+
+impl DepletionLaw {
+    pub fn new(zero_bias_f: f64, potential_v: f64, grading: f64) -> DepletionLaw {
+        let fc = DEPLETION_LINEAR_FRACTION;
+        let (m, phi) = (grading, potential_v);
+        // (1 − fc)^(1 + m) = (1 − fc)/(1 − fc)^(−m).
+        let inverse = inverse_power(1.0 - fc, m);
+        DepletionLaw {
+            zero_bias_f,
+            potential_v,
+            grading,
+            knee_v: fc * phi,
+            knee_charge_c: zero_bias_f * phi / (1.0 - m) * (1.0 - (1.0 - fc) * inverse),
+            scale_f: zero_bias_f * inverse / (1.0 - fc),
+        }
     }
-    let fc = DEPLETION_LINEAR_FRACTION;
-    let m = grading;
-    let phi = potential_v;
-    let knee_v = fc * phi;
-    // One power per call: x^(1 − m) = x·x^(−m) and (1 − fc)^(1 + m) = (1 − fc)/(1 − fc)^(−m)
-    // (a power is the costliest operation of a junction on wasm32).
-    if voltage_v < knee_v {
-        let x = 1.0 - voltage_v / phi;
-        let inverse = x.powf(-m);
-        let charge = zero_bias_f * phi / (1.0 - m) * (1.0 - x * inverse);
-        (charge, zero_bias_f * inverse)
+
+    /// (q, dq/dV) at `voltage_v`, as [`depletion_charge`].
+    pub fn charge(&self, voltage_v: f64) -> (f64, f64) {
+        if self.zero_bias_f == 0.0 {
+            return (0.0, 0.0);
+        }
+        let fc = DEPLETION_LINEAR_FRACTION;
+        let (m, phi, knee_v) = (self.grading, self.potential_v, self.knee_v);
+        // One power per call below the knee: x^(1 − m) = x·x^(−m) (a power is the costliest
+        // operation of a junction on wasm32).
+        if voltage_v < knee_v {
+            let x = 1.0 - voltage_v / phi;
+            let inverse = inverse_power(x, m);
+            let charge = self.zero_bias_f * phi / (1.0 - m) * (1.0 - x * inverse);
+            (charge, self.zero_bias_f * inverse)
+        } else {
+            let scale = self.scale_f;
+            let dv = voltage_v - knee_v;
+            let charge = self.knee_charge_c
+                + scale
+                    * ((1.0 - fc * (1.0 + m)) * dv + m / (2.0 * phi) * (voltage_v.powi(2) - knee_v.powi(2)));
+            (charge, scale * (1.0 - fc * (1.0 + m) + m * voltage_v / phi))
+        }
+    }
+}
+
+/// x^(−m) for x > 0: by a square root for the abrupt junction's m = ½ (the diodes the
+/// verification builds), which is one instruction on wasm32 where a power is a library call,
+/// and within an ulp of the power.
+fn inverse_power(x: f64, m: f64) -> f64 {
+    if m == 0.5 {
+        1.0 / x.sqrt()
     } else {
-        let inverse = (1.0 - fc).powf(-m);
-        let knee_charge = zero_bias_f * phi / (1.0 - m) * (1.0 - (1.0 - fc) * inverse);
-        let scale = zero_bias_f * inverse / (1.0 - fc);
-        let dv = voltage_v - knee_v;
-        let charge = knee_charge
-            + scale * ((1.0 - fc * (1.0 + m)) * dv + m / (2.0 * phi) * (voltage_v.powi(2) - knee_v.powi(2)));
-        (charge, scale * (1.0 - fc * (1.0 + m) + m * voltage_v / phi))
+        x.powf(-m)
     }
 }
 
@@ -91,6 +136,15 @@ mod tests {
         }
         // At zero bias the capacitance is Cj0 by definition.
         assert!((depletion_charge(0.0, cj0, phi, m).1 - cj0).abs() < 1e-24);
+        // The square-root path of m = ½ against the textbook formulas written with powers:
+        // C = Cj0·(1 − V/φ)^(−m), q = Cj0·φ/(1 − m)·(1 − (1 − V/φ)^(1 − m)) below the knee.
+        for v in [-5.0, -0.5, 0.0, 0.2, 0.3] {
+            let (q, c) = depletion_charge(v, cj0, phi, 0.5);
+            let x: f64 = 1.0 - v / phi;
+            let (c_power, q_power) = (cj0 * x.powf(-0.5), cj0 * phi / 0.5 * (1.0 - x.powf(0.5)));
+            assert!((c - c_power).abs() <= 1e-14 * c_power, "v = {v}: {c} vs {c_power}");
+            assert!((q - q_power).abs() <= 1e-13 * q_power.abs().max(cj0 * phi), "v = {v}: {q} vs {q_power}");
+        }
     }
 
     #[test]

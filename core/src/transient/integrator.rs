@@ -9,7 +9,7 @@ use super::linear::{AutomaticSolver, LinearSolver};
 use super::operating_point::{
     default_tolerances, solve_operating_point, OperatingPointHints, OperatingPointMethod,
 };
-use super::system::{Conditions, Failure, Integration, NewtonTolerances, System};
+use super::system::{Conditions, Evaluations, Failure, Integration, NewtonTolerances, Reuse, System};
 use crate::numeric::larger;
 
 /// Step reduction after a failed Newton solve.
@@ -120,6 +120,10 @@ pub struct RunStatistics {
     /// Those of the rejected steps whose Newton solve did not converge.
     pub newton_failures: usize,
     pub newton_iterations: usize,
+    /// Junction devices evaluated by their law during the steps, and those reused from an
+    /// earlier evaluation (bypass; see `system::Evaluations`).
+    pub device_evaluations: usize,
+    pub bypassed_evaluations: usize,
 }
 
 /// Waveforms of a run: one entry per accepted time point.
@@ -230,6 +234,11 @@ pub fn simulate_with<S: LinearSolver>(
     // Accepted (time, charges) since the last restart, oldest first, at most 3.
     let mut history: Vec<(f64, Vec<f64>)> = vec![(0.0, charges.clone())];
     let mut step = initial_step;
+    // Device evaluations are pure functions of the junction voltages, so they carry over
+    // rejected steps as well as accepted ones.
+    let mut evaluations = Evaluations::new(settings.relative_tolerance);
+    // The junction history a step's solve starts from and updates; kept only when accepted.
+    let mut trial_junctions = Vec::with_capacity(junctions.len());
     // Every accepted or rejected step counts, so the loop is bounded even if steps shrink.
     let attempt_limit = settings.max_steps.saturating_mul(20);
     for _ in 0..attempt_limit {
@@ -273,8 +282,13 @@ pub fn simulate_with<S: LinearSolver>(
                 }
             }
         }
-        let mut trial_junctions = junctions.clone();
-        let solved = match system.newton(solver, &start, &mut trial_junctions, &conditions, tolerances) {
+        trial_junctions.clone_from(&junctions);
+        let reuse = Reuse { evaluations: Some(&mut evaluations), constants: true };
+        let outcome =
+            system.newton_with(solver, &start, &mut trial_junctions, &conditions, tolerances, reuse);
+        result.statistics.device_evaluations = evaluations.evaluated;
+        result.statistics.bypassed_evaluations = evaluations.reused;
+        let solved = match outcome {
             Ok(solved) => solved,
             Err(Failure::Singular { unknown }) => {
                 return Err(SimulationError::Singular {
@@ -343,7 +357,7 @@ pub fn simulate_with<S: LinearSolver>(
         result.statistics.accepted_steps += 1;
         let time_before_step = time;
         time = new_time;
-        junctions = trial_junctions;
+        std::mem::swap(&mut junctions, &mut trial_junctions);
         let before = std::mem::replace(&mut unknowns, solved.unknowns);
         previous = Some((time_before_step, before));
         charges = solved.charges;
@@ -367,11 +381,14 @@ pub fn simulate_with<S: LinearSolver>(
             history.clear();
             previous = None;
             history.push((time, charges.clone()));
+        } else if history.len() >= 3 {
+            // The oldest point leaves; its buffer takes the new one (no allocation per step).
+            let mut oldest = history.remove(0);
+            oldest.0 = time;
+            oldest.1.clone_from(&charges);
+            history.push(oldest);
         } else {
             history.push((time, charges.clone()));
-            if history.len() > 3 {
-                history.remove(0);
-            }
         }
     }
     Err(SimulationError::StepLimit { time_s: time, max_steps: settings.max_steps })

@@ -31,6 +31,17 @@ pub trait LinearSolver {
     /// terms of each row, Σ|a_ij·x_j|, into `magnitude` (the scale of a residual test). Both
     /// are resized to the size.
     fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>);
+    /// Keeps the entries accumulated since the last reset as a base that
+    /// [`LinearSolver::reset_to_base`] starts from (the stamps that never change during a
+    /// run, so they are added once instead of at every assembly). [`LinearSolver::reset`]
+    /// drops it, so a base never outlives the assemblies that use it (a solver reused for
+    /// another circuit of the same size starts over).
+    fn save_base(&mut self) {}
+    /// Like [`LinearSolver::reset`], but every entry starts at the saved base. False, with
+    /// nothing done, when there is no base for this size (then reset and stamp as usual).
+    fn reset_to_base(&mut self, _size: usize) -> bool {
+        false
+    }
 }
 
 fn prepare(size: usize, product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
@@ -48,20 +59,35 @@ const ZERO_PIVOT_SHARE: f64 = 1e-300;
 #[derive(Debug, Clone)]
 pub struct DenseSolver {
     matrix: DenseMatrix,
+    /// See [`LinearSolver::save_base`].
+    base: Option<DenseMatrix>,
 }
 
 impl Default for DenseSolver {
     fn default() -> Self {
-        DenseSolver { matrix: DenseMatrix::zeros(0) }
+        DenseSolver { matrix: DenseMatrix::zeros(0), base: None }
     }
 }
 
 impl LinearSolver for DenseSolver {
     fn reset(&mut self, size: usize) {
+        self.base = None;
         if self.matrix.size() == size {
             self.matrix.clear();
         } else {
             self.matrix = DenseMatrix::zeros(size);
+        }
+    }
+    fn save_base(&mut self) {
+        self.base = Some(self.matrix.clone());
+    }
+    fn reset_to_base(&mut self, size: usize) -> bool {
+        match &self.base {
+            Some(base) if base.size() == size && self.matrix.size() == size => {
+                self.matrix.clone_from(base);
+                true
+            }
+            _ => false,
         }
     }
     fn add(&mut self, row: usize, column: usize, value: f64) {
@@ -203,6 +229,10 @@ pub struct SparseSolver {
     frozen: Option<FrozenFactors>,
     /// Pivot afresh at every solve (faer only), for comparison.
     always_pivot: bool,
+    /// Values and call count of [`LinearSolver::save_base`]; empty when there is none (it
+    /// names slots of the current pattern, so a new pattern drops it).
+    base_values: Vec<f64>,
+    base_calls: usize,
     statistics: SparseStatistics,
 }
 
@@ -260,6 +290,29 @@ impl SparseSolver {
         }
         let numeric = self.numeric.as_ref()?;
         Some(numeric.lu.l_factor_unsorted().compute_nnz() + numeric.lu.u_factor_unsorted().compute_nnz())
+    }
+
+    /// Solves with the factors in place (frozen, else faer's); false when there are none.
+    fn solve_with_factors(&mut self, rhs: &mut [f64]) -> bool {
+        let size = self.pattern.size;
+        if let Some(frozen) = self.frozen.as_mut() {
+            frozen.solve(rhs);
+            return true;
+        }
+        let (Some(symbolic), Some(numeric)) = (self.symbolic.as_mut(), self.numeric.as_ref()) else {
+            return false;
+        };
+        let row_order = PermRef::new_checked(&numeric.row_order, &numeric.row_order_inverse, size);
+        let column_order = PermRef::new_checked(&symbolic.column_order, &symbolic.column_order_inverse, size);
+        numeric.lu.solve_in_place_with_conj(
+            row_order,
+            column_order,
+            Conj::No,
+            MatMut::from_column_major_slice_mut(rhs, size, 1),
+            Par::Seq,
+            MemStack::new(&mut symbolic.workspace),
+        );
+        true
     }
 
     fn analyse(&mut self) -> Result<(), SingularColumn> {
@@ -355,6 +408,29 @@ impl LinearSolver for SparseSolver {
         self.pattern.values.iter_mut().for_each(|v| *v = 0.0);
         self.outside.clear();
         self.call_index = 0;
+        self.base_values.clear();
+    }
+
+    fn save_base(&mut self) {
+        self.base_values.clear();
+        // Entries outside the pattern have no slot yet; the next assembly saves again.
+        if self.outside.is_empty() {
+            self.base_values.extend_from_slice(&self.pattern.values);
+            self.base_calls = self.call_index;
+        }
+    }
+
+    fn reset_to_base(&mut self, size: usize) -> bool {
+        if size != self.pattern.size
+            || self.base_values.is_empty()
+            || self.base_values.len() != self.pattern.values.len()
+        {
+            return false;
+        }
+        self.pattern.values.copy_from_slice(&self.base_values);
+        self.outside.clear();
+        self.call_index = self.base_calls;
+        true
     }
 
     #[inline]
@@ -383,8 +459,10 @@ impl LinearSolver for SparseSolver {
         if !self.outside.is_empty() {
             self.pattern = self.pattern.merged(&self.outside);
             self.outside.clear();
-            // Slots moved: the call cache refills from the new pattern on the next assembly.
+            // Slots moved: the call cache refills from the new pattern on the next assembly,
+            // and the base must be stamped again.
             self.calls.clear();
+            self.base_values.clear();
             self.symbolic = None;
             self.numeric = None;
         }
@@ -417,23 +495,8 @@ impl LinearSolver for SparseSolver {
                 });
             }
         }
-        if let Some(frozen) = self.frozen.as_mut() {
-            frozen.solve(rhs);
-        } else {
-            let (Some(symbolic), Some(numeric)) = (self.symbolic.as_mut(), self.numeric.as_ref()) else {
-                return Err(SingularColumn { column: 0 });
-            };
-            let row_order = PermRef::new_checked(&numeric.row_order, &numeric.row_order_inverse, size);
-            let column_order =
-                PermRef::new_checked(&symbolic.column_order, &symbolic.column_order_inverse, size);
-            numeric.lu.solve_in_place_with_conj(
-                row_order,
-                column_order,
-                Conj::No,
-                MatMut::from_column_major_slice_mut(rhs.as_mut_slice(), size, 1),
-                Par::Seq,
-                MemStack::new(&mut symbolic.workspace),
-            );
+        if !self.solve_with_factors(rhs) {
+            return Err(SingularColumn { column: 0 });
         }
         match rhs.iter().position(|v| !v.is_finite()) {
             Some(column) => Err(SingularColumn { column }),
@@ -719,6 +782,21 @@ impl LinearSolver for AutomaticSolver {
             self.dense.multiply(x, product, magnitude);
         }
     }
+    fn save_base(&mut self) {
+        if self.use_sparse {
+            self.sparse.save_base();
+        } else {
+            self.dense.save_base();
+        }
+    }
+    fn reset_to_base(&mut self, size: usize) -> bool {
+        self.use_sparse = size >= SPARSE_FROM_UNKNOWNS;
+        if self.use_sparse {
+            self.sparse.reset_to_base(size)
+        } else {
+            self.dense.reset_to_base(size)
+        }
+    }
 }
 
 #[cfg(test)]
@@ -870,6 +948,51 @@ mod tests {
         let x = solve_with(&mut solver, &tiny, 1.0).unwrap_or_default();
         assert!(close(&x, &solve_with(&mut DenseSolver::default(), &tiny, 1.0).unwrap_or_default()), "{x:?}");
         assert_eq!(solver.statistics().fallbacks, 1);
+    }
+
+    /// A base is where [`LinearSolver::reset_to_base`] restarts from, bit for bit the same
+    /// as stamping it again, and any plain reset drops it.
+    fn base_round_trip<S: LinearSolver>(solver: &mut S) {
+        let constant = [(0, 0, 2.0), (0, 1, -1.0), (1, 0, -1.0), (1, 1, 2.0), (2, 2, 1.0)];
+        let varying = [(0, 0, 0.25), (2, 0, 0.5), (2, 2, 0.125)];
+        let stamp = |solver: &mut S, entries: &[(usize, usize, f64)]| {
+            for &(row, column, value) in entries {
+                solver.add(row, column, value);
+            }
+        };
+        assert!(!solver.reset_to_base(3), "no base before one is saved");
+        // As the assembly does it: from the base when there is one, else stamp the constant
+        // entries and save them (the sparse solver saves none while they are outside its
+        // pattern, i.e. until its first solve has learnt it).
+        let mut first: Option<Vec<f64>> = None;
+        let mut restored = Vec::new();
+        for _ in 0..3 {
+            let from_base = solver.reset_to_base(3);
+            if !from_base {
+                solver.reset(3);
+                stamp(solver, &constant);
+                solver.save_base();
+            }
+            restored.push(from_base);
+            stamp(solver, &varying);
+            let mut x = vec![1.0, 2.0, 3.0];
+            assert_eq!(solver.solve_in_place(&mut x), Ok(()));
+            match &first {
+                Some(first) => assert_eq!(&x, first),
+                None => first = Some(x),
+            }
+        }
+        assert_eq!(restored.last(), Some(&true), "{restored:?}");
+        assert!(!solver.reset_to_base(4), "a base is for its own size");
+        solver.reset(3);
+        assert!(!solver.reset_to_base(3), "a reset drops the base");
+    }
+
+    #[test]
+    fn a_base_restarts_assembly_and_a_reset_drops_it() {
+        base_round_trip(&mut DenseSolver::default());
+        base_round_trip(&mut SparseSolver::default());
+        base_round_trip(&mut AutomaticSolver::default());
     }
 
     #[test]

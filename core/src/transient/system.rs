@@ -4,11 +4,11 @@
 use std::collections::BTreeMap;
 
 use super::circuit::{is_ground, Circuit, Element};
-use super::devices::{critical_voltage, depletion_charge, junction_current, limit_junction_voltage};
+use super::devices::{critical_voltage, junction_current, limit_junction_voltage, DepletionLaw};
 use super::error::SimulationError;
 use super::linear::LinearSolver;
 use super::waveform::Waveform;
-use crate::device::ebers_moll::EbersMoll;
+use crate::device::ebers_moll::{BjtOperatingPoint, EbersMoll};
 use crate::numeric::larger;
 use crate::physics::thermal_voltage;
 
@@ -21,6 +21,26 @@ pub const MIN_INTERNAL_RESISTANCE_OHM: f64 = 1e-3;
 /// when a node is reached only through capacitors or cut-off junctions. 1 pS shifts a 10 V,
 /// 10 kΩ node by about 1 µV.
 pub const GMIN_S: f64 = 1e-12;
+
+/// Share of the Newton relative tolerance that reusing a junction's last evaluation may cost
+/// (bypass, see [`Evaluations`]). Continuing an exponential I(V) linearly from V0 errs by
+/// ½(ΔV/(n·VT))² of its current, so a device is reused while every junction voltage lies
+/// within n·VT·√(2·share·relative) of where it was last evaluated: at the default relative
+/// tolerance 1e-3, 0.01·n·VT (0.26 mV), an error of 5e-5 of the current — a twentieth of what
+/// the residual test accepts anyway.
+pub const BYPASS_SHARE_OF_TOLERANCE: f64 = 0.05;
+
+/// A transistor's operating point continued linearly by (ΔVBE, ΔVBC) from where it was
+/// evaluated; the derivatives stay those of the evaluation.
+fn continued(op: &BjtOperatingPoint, dvbe: f64, dvbc: f64) -> BjtOperatingPoint {
+    BjtOperatingPoint {
+        collector_current_a: op.collector_current_a + op.dic_dvbe * dvbe + op.dic_dvbc * dvbc,
+        base_current_a: op.base_current_a + op.dib_dvbe * dvbe + op.dib_dvbc * dvbc,
+        forward_current_a: op.forward_current_a + op.forward_conductance_s * dvbe,
+        reverse_current_a: op.reverse_current_a + op.reverse_conductance_s * dvbc,
+        ..*op
+    }
+}
 
 /// A terminal: an unknown's index, or `None` for ground.
 type Pin = Option<usize>;
@@ -71,9 +91,7 @@ struct DiodeLaw {
     saturation_current_a: f64,
     n_vt: f64,
     critical_v: f64,
-    junction_capacitance_f: f64,
-    junction_potential_v: f64,
-    junction_grading: f64,
+    depletion: DepletionLaw,
     transit_time_s: f64,
 }
 
@@ -84,6 +102,8 @@ struct TransistorLaw {
     sign: f64,
     vt: f64,
     critical_v: f64,
+    emitter_depletion: DepletionLaw,
+    collector_depletion: DepletionLaw,
 }
 
 /// How charges turn into currents at this solve: i = a·(q − q_previous) + b·i_previous.
@@ -119,6 +139,76 @@ pub(crate) struct NewtonTolerances {
     pub max_iterations: usize,
 }
 
+/// A junction device's last full evaluation: the junction voltages it was made at and what
+/// the stamp needs from the device law there.
+#[derive(Debug, Clone, Copy)]
+enum Evaluation {
+    None,
+    Diode {
+        v: f64,
+        current_a: f64,
+        conductance_s: f64,
+        charge_c: f64,
+        capacitance_f: f64,
+    },
+    Transistor {
+        vbe: f64,
+        vbc: f64,
+        op: BjtOperatingPoint,
+        /// Charge and capacitance of the B–E and B–C branches (NPN frame).
+        q_be: f64,
+        c_be: f64,
+        q_bc: f64,
+        c_bc: f64,
+    },
+}
+
+/// Device bypass across Newton iterations and time steps: each junction device's last full
+/// evaluation, reused, continued linearly to the present junction voltages, while those stay
+/// within `window_share · n·VT` of it (the device law is a pure function of its junction
+/// voltages, so an evaluation never goes stale otherwise). The continuation makes the
+/// stamp exactly the one of the reused evaluation, and the charges first-order right, so
+/// charge bookkeeping stays consistent; only the second-order remainder is lost (see
+/// [`BYPASS_SHARE_OF_TOLERANCE`]).
+#[derive(Debug, Clone)]
+pub(crate) struct Evaluations {
+    window_share: f64,
+    /// Indexed by the device's first junction.
+    slots: Vec<Evaluation>,
+    pub reused: usize,
+    pub evaluated: usize,
+}
+
+impl Evaluations {
+    /// For Newton solves at `relative` tolerance (the window shrinks with it).
+    pub(crate) fn new(relative: f64) -> Evaluations {
+        Evaluations {
+            window_share: (2.0 * BYPASS_SHARE_OF_TOLERANCE * relative).sqrt(),
+            slots: Vec::new(),
+            reused: 0,
+            evaluated: 0,
+        }
+    }
+}
+
+/// What a Newton solve may reuse from earlier work.
+#[derive(Debug)]
+pub(crate) struct Reuse<'a> {
+    /// Device bypass, when given.
+    pub evaluations: Option<&'a mut Evaluations>,
+    /// The constant matrix entries (conductances, gmin, source incidences) from the solver's
+    /// base ([`LinearSolver::save_base`]) after the first assembly; only for solves whose
+    /// conditions keep `extra_gmin_s`, as a transient run does.
+    pub constants: bool,
+}
+
+impl Reuse<'_> {
+    /// Every device evaluated and every matrix factorised at every iteration.
+    pub(crate) fn nothing() -> Reuse<'static> {
+        Reuse { evaluations: None, constants: false }
+    }
+}
+
 /// What one assembly produces besides the matrix: the right-hand side, and the charges and
 /// charge currents at the linearisation point.
 struct Linearised {
@@ -143,6 +233,19 @@ pub(crate) enum Failure {
     NotConverged { unknown: usize, largest_update: f64, iterations: usize },
 }
 
+/// One junction's terminals and limiting constants, in junction-slot order: the Newton loop
+/// reads and limits every junction at every iteration, and walking this short table instead
+/// of every stamp (each as large as its biggest variant) is several times cheaper on wasm32.
+#[derive(Debug, Clone, Copy)]
+struct JunctionPins {
+    positive: Pin,
+    negative: Pin,
+    /// +1, or −1 for a PNP transistor's junctions (NPN-frame voltage = sign·real voltage).
+    sign: f64,
+    n_vt: f64,
+    critical_v: f64,
+}
+
 /// The compiled circuit.
 #[derive(Debug, Clone)]
 pub struct System {
@@ -151,6 +254,8 @@ pub struct System {
     /// Names of the voltage sources, one current unknown each after the nodes.
     pub source_names: Vec<String>,
     stamps: Vec<Stamp>,
+    /// `junction_count` entries, slot by slot.
+    junction_pins: Vec<JunctionPins>,
     pub(crate) charge_count: usize,
     pub(crate) junction_count: usize,
 }
@@ -166,24 +271,32 @@ struct Assembly<'s, S: LinearSolver> {
 }
 
 impl<S: LinearSolver> Assembly<'_, S> {
+    #[inline]
     fn matrix(&mut self, row: Pin, column: Pin, value: f64) {
         if let (Some(r), Some(c)) = (row, column) {
             self.solver.add(r, c, value);
         }
     }
+    #[inline]
     fn rhs(&mut self, row: Pin, value: f64) {
         if let Some(entry) = row.and_then(|r| self.rhs.get_mut(r)) {
             *entry += value;
         }
     }
     /// A branch current i = equivalent + g·(V(a) − V(b)) leaving node a for node b.
+    #[inline]
     fn branch(&mut self, a: Pin, b: Pin, conductance_s: f64, equivalent_a: f64) {
+        self.conductance(a, b, conductance_s);
+        self.rhs(a, -equivalent_a);
+        self.rhs(b, equivalent_a);
+    }
+    /// The matrix part of [`Assembly::branch`].
+    #[inline]
+    fn conductance(&mut self, a: Pin, b: Pin, conductance_s: f64) {
         self.matrix(a, a, conductance_s);
         self.matrix(b, b, conductance_s);
         self.matrix(a, b, -conductance_s);
         self.matrix(b, a, -conductance_s);
-        self.rhs(a, -equivalent_a);
-        self.rhs(b, equivalent_a);
     }
 }
 
@@ -266,9 +379,11 @@ impl System {
                             saturation_current_a: model.saturation_current_a,
                             n_vt,
                             critical_v: critical_voltage(model.saturation_current_a, n_vt),
-                            junction_capacitance_f: model.junction_capacitance_f,
-                            junction_potential_v: model.junction_potential_v,
-                            junction_grading: model.junction_grading,
+                            depletion: DepletionLaw::new(
+                                model.junction_capacitance_f,
+                                model.junction_potential_v,
+                                model.junction_grading,
+                            ),
                             transit_time_s: model.transit_time_s,
                         },
                         charge: charge_count,
@@ -306,6 +421,16 @@ impl System {
                             sign: model.polarity.sign(),
                             vt,
                             critical_v: critical_voltage(model.saturation_current_a, vt),
+                            emitter_depletion: DepletionLaw::new(
+                                model.emitter_junction_capacitance_f,
+                                model.emitter_junction_potential_v,
+                                model.junction_grading,
+                            ),
+                            collector_depletion: DepletionLaw::new(
+                                model.collector_junction_capacitance_f,
+                                model.collector_junction_potential_v,
+                                model.junction_grading,
+                            ),
                         },
                         charges: [charge_count, charge_count + 1],
                         junctions: [junction_count, junction_count + 1],
@@ -320,7 +445,43 @@ impl System {
             stamps.push(Stamp::VoltageSource { positive, negative, row: node_count + index, waveform });
         }
         node_names.extend(internal);
-        Ok(System { node_names, source_names, stamps, charge_count, junction_count })
+        let mut junction_pins =
+            vec![
+                JunctionPins { positive: None, negative: None, sign: 1.0, n_vt: 1.0, critical_v: 0.0 };
+                junction_count
+            ];
+        for stamp in &stamps {
+            let mut set = |slot: usize, pins: JunctionPins| {
+                if let Some(entry) = junction_pins.get_mut(slot) {
+                    *entry = pins;
+                }
+            };
+            match stamp {
+                Stamp::Diode { anode, cathode, law, junction, .. } => set(
+                    *junction,
+                    JunctionPins {
+                        positive: *anode,
+                        negative: *cathode,
+                        sign: 1.0,
+                        n_vt: law.n_vt,
+                        critical_v: law.critical_v,
+                    },
+                ),
+                Stamp::Transistor { collector, base, emitter, law, junctions: [je, jc], .. } => {
+                    let pins = |negative: Pin| JunctionPins {
+                        positive: *base,
+                        negative,
+                        sign: law.sign,
+                        n_vt: law.vt,
+                        critical_v: law.critical_v,
+                    };
+                    set(*je, pins(*emitter));
+                    set(*jc, pins(*collector));
+                }
+                _ => {}
+            }
+        }
+        Ok(System { node_names, source_names, stamps, junction_pins, charge_count, junction_count })
     }
 
     pub fn node_count(&self) -> usize {
@@ -370,24 +531,8 @@ impl System {
 
     /// [`System::junction_voltages`] into a buffer of `junction_count` entries.
     fn junction_voltages_into(&self, unknowns: &[f64], junctions: &mut [f64]) {
-        for stamp in &self.stamps {
-            match stamp {
-                Stamp::Diode { anode, cathode, junction, .. } => {
-                    if let Some(slot) = junctions.get_mut(*junction) {
-                        *slot = pin_voltage(unknowns, *anode) - pin_voltage(unknowns, *cathode);
-                    }
-                }
-                Stamp::Transistor { collector, base, emitter, law, junctions: [je, jc], .. } => {
-                    let vb = pin_voltage(unknowns, *base);
-                    if let Some(slot) = junctions.get_mut(*je) {
-                        *slot = law.sign * (vb - pin_voltage(unknowns, *emitter));
-                    }
-                    if let Some(slot) = junctions.get_mut(*jc) {
-                        *slot = law.sign * (vb - pin_voltage(unknowns, *collector));
-                    }
-                }
-                _ => {}
-            }
+        for (slot, pins) in junctions.iter_mut().zip(&self.junction_pins) {
+            *slot = pins.sign * (pin_voltage(unknowns, pins.positive) - pin_voltage(unknowns, pins.negative));
         }
     }
 
@@ -424,51 +569,80 @@ impl System {
         junctions: &[f64],
         conditions: &Conditions,
         out: &mut Linearised,
+        reuse: &mut Reuse,
     ) {
         let Linearised { rhs, charges, charge_currents } = out;
+        let constants_from_base = reuse.constants;
+        let mut evaluations = reuse.evaluations.as_deref_mut();
+        if let Some(cache) = evaluations.as_deref_mut() {
+            if cache.slots.len() != self.junction_count {
+                cache.slots = vec![Evaluation::None; self.junction_count];
+            }
+        }
         let size = self.size();
-        solver.reset(size);
+        let from_base = constants_from_base && solver.reset_to_base(size);
+        if !from_base {
+            solver.reset(size);
+        }
         rhs.clear();
         rhs.resize(size, 0.0);
         let mut assembly = Assembly { solver, rhs };
-        let node_gmin = GMIN_S + conditions.extra_gmin_s;
-        for node in 0..self.node_count() {
-            assembly.matrix(Some(node), Some(node), node_gmin);
+        // First the matrix entries that do not change during a run (no right-hand side):
+        // kept as the solver's base when asked, so later assemblies start from them.
+        if !from_base {
+            let node_gmin = GMIN_S + conditions.extra_gmin_s;
+            for node in 0..self.node_count() {
+                assembly.matrix(Some(node), Some(node), node_gmin);
+            }
+            for stamp in &self.stamps {
+                match stamp {
+                    Stamp::Conductance { a, b, conductance_s } => {
+                        assembly.conductance(*a, *b, *conductance_s)
+                    }
+                    Stamp::VoltageSource { positive, negative, row, .. } => {
+                        let r = Some(*row);
+                        assembly.matrix(*positive, r, 1.0);
+                        assembly.matrix(*negative, r, -1.0);
+                        assembly.matrix(r, *positive, 1.0);
+                        assembly.matrix(r, *negative, -1.0);
+                    }
+                    _ => {}
+                }
+            }
+            if constants_from_base {
+                assembly.solver.save_base();
+            }
         }
         for &(node, voltage_v, conductance_s) in conditions.pulls {
             assembly.matrix(Some(node), Some(node), conductance_s);
             assembly.rhs(Some(node), conductance_s * voltage_v);
         }
-        // Charge branch: q(v), C(v) at branch voltage v → companion conductance and current.
-        let mut charge_branch =
-            |assembly: &mut Assembly<S>, a: Pin, b: Pin, slot: usize, v: f64, q: f64, c: f64| {
-                if let Some(entry) = charges.get_mut(slot) {
-                    *entry = q;
-                }
-                let Some(integration) = conditions.integration else { return };
-                let q_previous = conditions.previous_charges.get(slot).copied().unwrap_or(0.0);
-                let i_previous = conditions.previous_charge_currents.get(slot).copied().unwrap_or(0.0);
-                let current = integration.a * (q - q_previous) + integration.b * i_previous;
-                if let Some(entry) = charge_currents.get_mut(slot) {
-                    *entry = current;
-                }
-                let conductance = integration.a * c;
-                assembly.branch(a, b, conductance, current - conductance * v);
-            };
+        // Charge q(v) with capacitance C(v) in `slot` → its companion current and conductance
+        // (none in DC). The devices stamp them together with their own branches, so each
+        // junction adds its entries once.
+        let mut charge_companion = |slot: usize, q: f64, c: f64| -> (f64, f64) {
+            if let Some(entry) = charges.get_mut(slot) {
+                *entry = q;
+            }
+            let Some(integration) = conditions.integration else { return (0.0, 0.0) };
+            let q_previous = conditions.previous_charges.get(slot).copied().unwrap_or(0.0);
+            let i_previous = conditions.previous_charge_currents.get(slot).copied().unwrap_or(0.0);
+            let current = integration.a * (q - q_previous) + integration.b * i_previous;
+            if let Some(entry) = charge_currents.get_mut(slot) {
+                *entry = current;
+            }
+            (current, integration.a * c)
+        };
         for stamp in &self.stamps {
             match stamp {
-                Stamp::Conductance { a, b, conductance_s } => assembly.branch(*a, *b, *conductance_s, 0.0),
+                Stamp::Conductance { .. } => {}
                 Stamp::Capacitor { a, b, capacitance_f, charge } => {
                     let v = pin_voltage(unknowns, *a) - pin_voltage(unknowns, *b);
-                    charge_branch(&mut assembly, *a, *b, *charge, v, capacitance_f * v, *capacitance_f);
+                    let (current, conductance) = charge_companion(*charge, capacitance_f * v, *capacitance_f);
+                    assembly.branch(*a, *b, conductance, current - conductance * v);
                 }
-                Stamp::VoltageSource { positive, negative, row, waveform } => {
-                    let r = Some(*row);
-                    assembly.matrix(*positive, r, 1.0);
-                    assembly.matrix(*negative, r, -1.0);
-                    assembly.matrix(r, *positive, 1.0);
-                    assembly.matrix(r, *negative, -1.0);
-                    assembly.rhs(r, conditions.source_scale * waveform.value_at(conditions.time_s));
+                Stamp::VoltageSource { row, waveform, .. } => {
+                    assembly.rhs(Some(*row), conditions.source_scale * waveform.value_at(conditions.time_s));
                 }
                 Stamp::CurrentSource { from, to, waveform } => {
                     let current = conditions.source_scale * waveform.value_at(conditions.time_s);
@@ -477,18 +651,56 @@ impl System {
                 }
                 Stamp::Diode { anode, cathode, law, charge, junction } => {
                     let v = junctions.get(*junction).copied().unwrap_or(0.0);
-                    let (id, gd) = junction_current(v, law.saturation_current_a, law.n_vt);
+                    let slot = evaluations.as_deref_mut().and_then(|cache| {
+                        let window = cache.window_share * law.n_vt;
+                        cache
+                            .slots
+                            .get_mut(*junction)
+                            .map(|slot| (slot, window, &mut cache.reused, &mut cache.evaluated))
+                    });
+                    let (id, gd, q, c) = match slot {
+                        Some((
+                            &mut Evaluation::Diode {
+                                v: v0,
+                                current_a,
+                                conductance_s,
+                                charge_c,
+                                capacitance_f,
+                            },
+                            window,
+                            reused,
+                            _,
+                        )) if (v - v0).abs() <= window => {
+                            *reused += 1;
+                            let dv = v - v0;
+                            (
+                                current_a + conductance_s * dv,
+                                conductance_s,
+                                charge_c + capacitance_f * dv,
+                                capacitance_f,
+                            )
+                        }
+                        other => {
+                            let (id, gd) = junction_current(v, law.saturation_current_a, law.n_vt);
+                            let (qj, cj) = law.depletion.charge(v);
+                            let q = qj + law.transit_time_s * id;
+                            let c = cj + law.transit_time_s * gd;
+                            if let Some((slot, _, _, evaluated)) = other {
+                                *evaluated += 1;
+                                *slot = Evaluation::Diode {
+                                    v,
+                                    current_a: id,
+                                    conductance_s: gd,
+                                    charge_c: q,
+                                    capacitance_f: c,
+                                };
+                            }
+                            (id, gd, q, c)
+                        }
+                    };
                     let (i, g) = (id + GMIN_S * v, gd + GMIN_S);
-                    assembly.branch(*anode, *cathode, g, i - g * v);
-                    let (qj, cj) = depletion_charge(
-                        v,
-                        law.junction_capacitance_f,
-                        law.junction_potential_v,
-                        law.junction_grading,
-                    );
-                    let q = qj + law.transit_time_s * id;
-                    let c = cj + law.transit_time_s * gd;
-                    charge_branch(&mut assembly, *anode, *cathode, *charge, v, q, c);
+                    let (i_charge, g_charge) = charge_companion(*charge, q, c);
+                    assembly.branch(*anode, *cathode, g + g_charge, (i - g * v) + (i_charge - g_charge * v));
                 }
                 Stamp::Transistor {
                     collector,
@@ -502,17 +714,56 @@ impl System {
                     let model = &law.model;
                     let vbe = junctions.get(*je).copied().unwrap_or(0.0);
                     let vbc = junctions.get(*jc).copied().unwrap_or(0.0);
-                    let op = model.evaluate(vbe, vbc);
+                    let slot = evaluations.as_deref_mut().and_then(|cache| {
+                        let window = cache.window_share * law.vt;
+                        cache
+                            .slots
+                            .get_mut(*je)
+                            .map(|slot| (slot, window, &mut cache.reused, &mut cache.evaluated))
+                    });
+                    let (op, q_be, c_be, q_bc, c_bc) = match slot {
+                        Some((
+                            &mut Evaluation::Transistor { vbe: vbe0, vbc: vbc0, op, q_be, c_be, q_bc, c_bc },
+                            window,
+                            reused,
+                            _,
+                        )) if (vbe - vbe0).abs() <= window && (vbc - vbc0).abs() <= window => {
+                            *reused += 1;
+                            let (dbe, dbc) = (vbe - vbe0, vbc - vbc0);
+                            (continued(&op, dbe, dbc), q_be + c_be * dbe, c_be, q_bc + c_bc * dbc, c_bc)
+                        }
+                        other => {
+                            let op = model.evaluate(vbe, vbc);
+                            // Charges: τF·IF + emitter depletion on B–E, τR·IR + collector
+                            // depletion on B–C.
+                            let (qje, cje) = law.emitter_depletion.charge(vbe);
+                            let (qjc, cjc) = law.collector_depletion.charge(vbc);
+                            let q_be = model.forward_transit_s * op.forward_current_a + qje;
+                            let c_be = model.forward_transit_s * op.forward_conductance_s + cje;
+                            let q_bc = model.reverse_transit_s * op.reverse_current_a + qjc;
+                            let c_bc = model.reverse_transit_s * op.reverse_conductance_s + cjc;
+                            if let Some((slot, _, _, evaluated)) = other {
+                                *evaluated += 1;
+                                *slot = Evaluation::Transistor { vbe, vbc, op, q_be, c_be, q_bc, c_bc };
+                            }
+                            (op, q_be, c_be, q_bc, c_bc)
+                        }
+                    };
                     // Real-frame branch voltages at the linearisation point.
                     let (vbe_real, vbc_real) = (s * vbe, s * vbc);
                     let ic = s * op.collector_current_a + GMIN_S * -vbc_real;
                     let ib = s * op.base_current_a + GMIN_S * (vbe_real + vbc_real);
                     let (gc_be, gc_bc) = (op.dic_dvbe, op.dic_dvbc - GMIN_S);
                     let (gb_be, gb_bc) = (op.dib_dvbe + GMIN_S, op.dib_dvbc + GMIN_S);
+                    // Real frame: charge s·q at branch voltage s·v; the capacitance is
+                    // unchanged. The B–E charge current leaves the base for the emitter, the
+                    // B–C one the base for the collector.
+                    let (i_qbe, g_qbe) = charge_companion(*qe, s * q_be, c_be);
+                    let (i_qbc, g_qbc) = charge_companion(*qc, s * q_bc, c_bc);
                     let rows = [
-                        (*collector, ic, gc_be, gc_bc),
-                        (*base, ib, gb_be, gb_bc),
-                        (*emitter, -(ic + ib), -(gc_be + gb_be), -(gc_bc + gb_bc)),
+                        (*collector, ic - i_qbc, gc_be, gc_bc - g_qbc),
+                        (*base, ib + i_qbe + i_qbc, gb_be + g_qbe, gb_bc + g_qbc),
+                        (*emitter, -(ic + ib) - i_qbe, -(gc_be + gb_be) - g_qbe, -(gc_bc + gb_bc)),
                     ];
                     for (row, current, g_be, g_bc) in rows {
                         assembly.matrix(row, *base, g_be + g_bc);
@@ -520,52 +771,21 @@ impl System {
                         assembly.matrix(row, *collector, -g_bc);
                         assembly.rhs(row, -(current - g_be * vbe_real - g_bc * vbc_real));
                     }
-                    // Charges: τF·IF + emitter depletion on B–E, τR·IR + collector depletion on B–C.
-                    let (i_forward, g_forward) = (op.forward_current_a, op.forward_conductance_s);
-                    let (i_reverse, g_reverse) = (op.reverse_current_a, op.reverse_conductance_s);
-                    let (qje, cje) = depletion_charge(
-                        vbe,
-                        model.emitter_junction_capacitance_f,
-                        model.emitter_junction_potential_v,
-                        model.junction_grading,
-                    );
-                    let (qjc, cjc) = depletion_charge(
-                        vbc,
-                        model.collector_junction_capacitance_f,
-                        model.collector_junction_potential_v,
-                        model.junction_grading,
-                    );
-                    let q_be = model.forward_transit_s * i_forward + qje;
-                    let c_be = model.forward_transit_s * g_forward + cje;
-                    let q_bc = model.reverse_transit_s * i_reverse + qjc;
-                    let c_bc = model.reverse_transit_s * g_reverse + cjc;
-                    // Real frame: charge s·q at branch voltage s·v; the capacitance is unchanged.
-                    charge_branch(&mut assembly, *base, *emitter, *qe, vbe_real, s * q_be, c_be);
-                    charge_branch(&mut assembly, *base, *collector, *qc, vbc_real, s * q_bc, c_bc);
                 }
             }
         }
     }
 
-    /// Limits every junction's proposed voltage against `junctions` (updated in place);
+    /// Limits every junction's voltage at `unknowns` against `junctions` (updated in place);
     /// true when any was limited.
-    fn limit_junctions(&self, proposed: &[f64], junctions: &mut [f64]) -> bool {
+    fn limit_junctions(&self, unknowns: &[f64], junctions: &mut [f64]) -> bool {
         let mut limited_any = false;
-        let mut limit = |slot: usize, n_vt: f64, critical_v: f64| {
-            let (Some(previous), Some(&new)) = (junctions.get_mut(slot), proposed.get(slot)) else { return };
-            let (value, limited) = limit_junction_voltage(new, *previous, n_vt, critical_v);
+        for (previous, pins) in junctions.iter_mut().zip(&self.junction_pins) {
+            let proposed =
+                pins.sign * (pin_voltage(unknowns, pins.positive) - pin_voltage(unknowns, pins.negative));
+            let (value, limited) = limit_junction_voltage(proposed, *previous, pins.n_vt, pins.critical_v);
             *previous = value;
             limited_any |= limited;
-        };
-        for stamp in &self.stamps {
-            match stamp {
-                Stamp::Diode { law, junction, .. } => limit(*junction, law.n_vt, law.critical_v),
-                Stamp::Transistor { law, junctions: [je, jc], .. } => {
-                    limit(*je, law.vt, law.critical_v);
-                    limit(*jc, law.vt, law.critical_v);
-                }
-                _ => {}
-            }
         }
         limited_any
     }
@@ -589,6 +809,21 @@ impl System {
         conditions: &Conditions,
         tolerances: NewtonTolerances,
     ) -> Result<Solved, Failure> {
+        self.newton_with(solver, start, junctions, conditions, tolerances, Reuse::nothing())
+    }
+
+    /// [`System::newton`] with device bypass and the solver's base of constant entries as
+    /// `reuse` allows; the convergence tests are the same.
+    pub(crate) fn newton_with<S: LinearSolver>(
+        &self,
+        solver: &mut S,
+        start: &[f64],
+        junctions: &mut Vec<f64>,
+        conditions: &Conditions,
+        tolerances: NewtonTolerances,
+        reuse: Reuse,
+    ) -> Result<Solved, Failure> {
+        let mut reuse = reuse;
         let size = self.size();
         let node_count = self.node_count();
         let mut unknowns = start.to_vec();
@@ -602,11 +837,9 @@ impl System {
         let mut next = Vec::with_capacity(size);
         let mut product = vec![0.0; size];
         let mut magnitude = vec![0.0; size];
-        let mut proposed = vec![0.0; self.junction_count];
         let mut worst = (0, f64::INFINITY);
-        self.junction_voltages_into(&unknowns, &mut proposed);
-        let mut limited = self.limit_junctions(&proposed, junctions);
-        self.assemble(solver, &unknowns, junctions, conditions, &mut out);
+        let mut limited = self.limit_junctions(&unknowns, junctions);
+        self.assemble(solver, &unknowns, junctions, conditions, &mut out, &mut reuse);
         for iteration in 1..=tolerances.max_iterations {
             next.clone_from(&out.rhs);
             solver.solve_in_place(&mut next).map_err(|e| Failure::Singular { unknown: e.column })?;
@@ -632,11 +865,10 @@ impl System {
             }
             let small_update = worst_ratio <= 1.0 && !limited;
             std::mem::swap(&mut unknowns, &mut next);
-            self.junction_voltages_into(&unknowns, &mut proposed);
-            limited = self.limit_junctions(&proposed, junctions);
+            limited = self.limit_junctions(&unknowns, junctions);
             // Linearised at the new point (at its exact junction voltages when none was
             // limited): the next iteration's system, and the charges of the solution.
-            self.assemble(solver, &unknowns, junctions, conditions, &mut out);
+            self.assemble(solver, &unknowns, junctions, conditions, &mut out, &mut reuse);
             if small_update && !limited {
                 solver.multiply(&unknowns, &mut product, &mut magnitude);
                 let balanced = product.iter().zip(&magnitude).zip(&out.rhs).enumerate().all(
@@ -657,5 +889,218 @@ impl System {
             largest_update: worst.1,
             iterations: tolerances.max_iterations,
         })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::device::Polarity;
+    use crate::transient::circuit::DiodeModel;
+    use crate::transient::linear::{DenseSolver, SparseSolver};
+
+    /// A diode fed from 5 V through 1 kΩ, and a transistor switch with its base fed through
+    /// 100 kΩ, both with junction and diffusion charges.
+    fn test_system() -> Result<System, String> {
+        let resistor = |name: &str, a: &str, b: &str, resistance_ohm: f64| Element::Resistor {
+            name: name.into(),
+            positive_node: a.into(),
+            negative_node: b.into(),
+            resistance_ohm,
+        };
+        let diode = DiodeModel {
+            saturation_current_a: 1e-14,
+            emission_coefficient: 1.0,
+            series_resistance_ohm: 0.0,
+            junction_capacitance_f: 2e-12,
+            junction_potential_v: 0.7,
+            junction_grading: 0.5,
+            transit_time_s: 5e-9,
+        };
+        let transistor = EbersMoll {
+            polarity: Polarity::Npn,
+            temperature_c: 25.0,
+            saturation_current_a: 1e-14,
+            beta_forward: 100.0,
+            beta_reverse: 2.0,
+            forward_transit_s: 0.5e-9,
+            reverse_transit_s: 20e-9,
+            emitter_junction_capacitance_f: 3e-12,
+            collector_junction_capacitance_f: 2e-12,
+            emitter_junction_potential_v: 0.75,
+            collector_junction_potential_v: 0.75,
+            junction_grading: 0.33,
+            base_resistance_ohm: 0.0,
+            collector_resistance_ohm: 0.0,
+            leakage_a: 1e-9,
+            band_gap_ev: 1.11,
+        };
+        let circuit = Circuit {
+            elements: vec![
+                Element::VoltageSource {
+                    name: "VCC".into(),
+                    positive_node: "vcc".into(),
+                    negative_node: "0".into(),
+                    waveform: Waveform::Constant { value: 5.0 },
+                },
+                resistor("R1", "vcc", "a", 1e3),
+                Element::Diode { name: "D1".into(), anode: "a".into(), cathode: "0".into(), model: diode },
+                resistor("RB", "vcc", "b", 100e3),
+                resistor("RC", "vcc", "c", 1e3),
+                Element::Transistor {
+                    name: "Q1".into(),
+                    collector: "c".into(),
+                    base: "b".into(),
+                    emitter: "0".into(),
+                    model: transistor,
+                },
+                Element::Capacitor {
+                    name: "C1".into(),
+                    positive_node: "c".into(),
+                    negative_node: "0".into(),
+                    capacitance_f: 10e-12,
+                },
+            ],
+            temperature_c: 25.0,
+        };
+        System::compile(&circuit).map_err(|error| format!("the test circuit must compile: {error}"))
+    }
+
+    /// Every column of the assembled matrix, through `multiply` with unit vectors.
+    fn columns<S: LinearSolver>(solver: &S, size: usize) -> Vec<Vec<f64>> {
+        (0..size)
+            .map(|column| {
+                let unit: Vec<f64> = (0..size).map(|i| if i == column { 1.0 } else { 0.0 }).collect();
+                let (mut product, mut magnitude) = (Vec::new(), Vec::new());
+                solver.multiply(&unit, &mut product, &mut magnitude);
+                product
+            })
+            .collect()
+    }
+
+    fn close(a: &[f64], b: &[f64], relative: f64) -> bool {
+        let scale = b.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        a.len() == b.len() && a.iter().zip(b).all(|(x, y)| (x - y).abs() <= relative * scale)
+    }
+
+    /// The state at `a_v` on the diode node (other nodes fixed), and its linearisation.
+    fn assembled(
+        system: &System,
+        a_v: f64,
+        evaluations: Option<&mut Evaluations>,
+    ) -> (Vec<Vec<f64>>, Linearised, Vec<f64>) {
+        let unknowns = [5.0, a_v, 0.65, 0.2, 0.0];
+        let previous = vec![0.0; system.charge_count];
+        let conditions = Conditions {
+            time_s: 1e-9,
+            source_scale: 1.0,
+            extra_gmin_s: 0.0,
+            integration: Some(Integration { a: 2e9, b: -1.0 }),
+            previous_charges: &previous,
+            previous_charge_currents: &previous,
+            pulls: &[],
+        };
+        let junctions = system.junction_voltages(&unknowns);
+        let mut out = Linearised {
+            rhs: Vec::new(),
+            charges: vec![0.0; system.charge_count],
+            charge_currents: vec![0.0; system.charge_count],
+        };
+        let mut solver = DenseSolver::default();
+        let mut reuse = Reuse { evaluations, constants: false };
+        system.assemble(&mut solver, &unknowns, &junctions, &conditions, &mut out, &mut reuse);
+        (columns(&solver, system.size()), out, junctions)
+    }
+
+    #[test]
+    fn bypass_reuses_an_evaluation_only_within_its_window_and_keeps_its_stamp() -> Result<(), String> {
+        let system = test_system()?;
+        assert_eq!(system.node("a"), Some(1));
+        let mut cache = Evaluations::new(1e-3);
+        let window = cache.window_share * thermal_voltage(25.0);
+        let (fresh_matrix, fresh, junctions) = assembled(&system, 0.6, Some(&mut cache));
+        assert_eq!((cache.evaluated, cache.reused), (2, 0));
+        // Inside the window both devices are reused (the transistor did not move at all):
+        // the linear system is the one of the evaluation at 0.6 V, and the diode's charge
+        // follows its capacitance.
+        let dv = 0.4 * window;
+        let (matrix, inside, _) = assembled(&system, 0.6 + dv, Some(&mut cache));
+        assert_eq!((cache.evaluated, cache.reused), (2, 2));
+        for (column, fresh_column) in matrix.iter().zip(&fresh_matrix) {
+            assert!(close(column, fresh_column, 1e-14), "{column:?} vs {fresh_column:?}");
+        }
+        assert!(close(&inside.rhs, &fresh.rhs, 1e-12), "{:?} vs {:?}", inside.rhs, fresh.rhs);
+        let (_, exact, _) = assembled(&system, 0.6 + dv, None);
+        let diode_charge = 0;
+        let (q0, q, q_exact) =
+            (fresh.charges[diode_charge], inside.charges[diode_charge], exact.charges[diode_charge]);
+        assert!(q != q0, "the reused charge must follow the voltage");
+        // Second-order remainder ½·q''·ΔV² with q'' ≈ q/(n·VT)² (diffusion-dominated).
+        assert!((q - q_exact).abs() <= 0.5 * (dv / thermal_voltage(25.0)).powi(2) * q_exact.abs() * 1.5);
+        assert!(junctions[0] == 0.6);
+        // Outside it the diode is evaluated afresh and the stamp is the exact one.
+        let (matrix, outside, _) = assembled(&system, 0.6 + 2.0 * window, Some(&mut cache));
+        assert_eq!((cache.evaluated, cache.reused), (3, 3));
+        let (exact_matrix, exact, _) = assembled(&system, 0.6 + 2.0 * window, None);
+        assert_eq!(matrix, exact_matrix);
+        assert_eq!(outside.rhs, exact.rhs);
+        Ok(())
+    }
+
+    #[test]
+    fn bypass_and_the_constant_base_converge_to_the_newton_answer() -> Result<(), String> {
+        let system = test_system()?;
+        let size = system.size();
+        let previous = vec![0.0; system.charge_count];
+        let conditions = Conditions {
+            time_s: 1e-9,
+            source_scale: 1.0,
+            extra_gmin_s: 0.0,
+            integration: Some(Integration { a: 1e8, b: 0.0 }),
+            previous_charges: &previous,
+            previous_charge_currents: &previous,
+            pulls: &[],
+        };
+        let tolerances =
+            NewtonTolerances { relative: 1e-3, voltage_v: 1e-6, current_a: 1e-12, max_iterations: 100 };
+        // A start far from the answer, so that the solve takes several iterations.
+        let start = vec![5.0, 0.0, 0.0, 5.0, 0.0];
+        let mut plain_solver = SparseSolver::default();
+        let mut plain_junctions = system.starting_junctions(&start);
+        let plain = system.newton(&mut plain_solver, &start, &mut plain_junctions, &conditions, tolerances);
+        let mut reusing_solver = SparseSolver::default();
+        let mut reusing_junctions = system.starting_junctions(&start);
+        let mut cache = Evaluations::new(tolerances.relative);
+        let reuse = Reuse { evaluations: Some(&mut cache), constants: true };
+        let reusing = system.newton_with(
+            &mut reusing_solver,
+            &start,
+            &mut reusing_junctions,
+            &conditions,
+            tolerances,
+            reuse,
+        );
+        let (plain, reusing) = (plain.map_err(|e| format!("{e:?}"))?, reusing.map_err(|e| format!("{e:?}"))?);
+        // Each answer is within the Newton tolerance of the solution, so within twice of
+        // each other.
+        for (index, (x, y)) in plain.unknowns.iter().zip(&reusing.unknowns).enumerate() {
+            let absolute =
+                if index < system.node_count() { tolerances.voltage_v } else { tolerances.current_a };
+            assert!(
+                (x - y).abs() <= 2.0 * (tolerances.relative * x.abs().max(y.abs()) + absolute),
+                "{index}: {x} vs {y}"
+            );
+        }
+        assert_eq!(plain.unknowns.len(), size);
+        // Several iterations, some of them reusing devices (else this would check plain
+        // Newton).
+        assert!(
+            plain.iterations >= 4 && reusing.iterations >= 4,
+            "{} {}",
+            plain.iterations,
+            reusing.iterations
+        );
+        assert!(cache.reused > 0 && cache.evaluated > 0, "{cache:?}");
+        Ok(())
     }
 }
