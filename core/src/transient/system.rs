@@ -179,7 +179,18 @@ pub(crate) struct Evaluations {
     pub evaluated: usize,
 }
 
+/// A device's cached evaluation, its bypass window in volts, and the reuse and evaluation
+/// counters, for the stamping loop.
+type Slot<'a> = (&'a mut Evaluation, f64, &'a mut usize, &'a mut usize);
+
 impl Evaluations {
+    /// The cached evaluation of the device whose first junction is `junction`, with the window
+    /// for a junction law of thermal scale `scale_v` (n·VT of a diode, VT of a transistor).
+    fn slot(&mut self, junction: usize, scale_v: f64) -> Option<Slot<'_>> {
+        let window = self.window_share * scale_v;
+        self.slots.get_mut(junction).map(|slot| (slot, window, &mut self.reused, &mut self.evaluated))
+    }
+
     /// For Newton solves at `relative` tolerance (the window shrinks with it).
     pub(crate) fn new(relative: f64) -> Evaluations {
         Evaluations {
@@ -651,13 +662,7 @@ impl System {
                 }
                 Stamp::Diode { anode, cathode, law, charge, junction } => {
                     let v = junctions.get(*junction).copied().unwrap_or(0.0);
-                    let slot = evaluations.as_deref_mut().and_then(|cache| {
-                        let window = cache.window_share * law.n_vt;
-                        cache
-                            .slots
-                            .get_mut(*junction)
-                            .map(|slot| (slot, window, &mut cache.reused, &mut cache.evaluated))
-                    });
+                    let slot = evaluations.as_deref_mut().and_then(|cache| cache.slot(*junction, law.n_vt));
                     let (id, gd, q, c) = match slot {
                         Some((
                             &mut Evaluation::Diode {
@@ -714,13 +719,7 @@ impl System {
                     let model = &law.model;
                     let vbe = junctions.get(*je).copied().unwrap_or(0.0);
                     let vbc = junctions.get(*jc).copied().unwrap_or(0.0);
-                    let slot = evaluations.as_deref_mut().and_then(|cache| {
-                        let window = cache.window_share * law.vt;
-                        cache
-                            .slots
-                            .get_mut(*je)
-                            .map(|slot| (slot, window, &mut cache.reused, &mut cache.evaluated))
-                    });
+                    let slot = evaluations.as_deref_mut().and_then(|cache| cache.slot(*je, law.vt));
                     let (op, q_be, c_be, q_bc, c_bc) = match slot {
                         Some((
                             &mut Evaluation::Transistor { vbe: vbe0, vbc: vbc0, op, q_be, c_be, q_bc, c_bc },
