@@ -497,6 +497,37 @@ fn planned_chain_verification_refuses_bad_requests_with_typed_errors() {
     ));
 }
 
+/// The demo's requirements with another transistor (a germanium one with its diode and a
+/// 20 kHz rate), steering, collector supply (bias rail at half of it) and ON current, values
+/// synthesised: the stages the estimate checks below are held to.
+fn synthesised_stage(
+    transistor: &str,
+    steering: flipwright::stage::Steering,
+    vcc: f64,
+    current: f64,
+) -> (flipwright::stage::StageDesign, flipwright::stage::synthesis::SynthesisOutcome) {
+    use flipwright::design_file::{DesignFile, DeviceChoice};
+    let mut file = DesignFile::demo();
+    file.transistor = DeviceChoice::Archetype(transistor.to_string());
+    file.requirements.steering = steering;
+    file.supplies.collector_supply_v = vcc;
+    file.supplies.bias_supply_v = vcc / 2.0;
+    file.requirements.collector_current_a = Some(current);
+    if transistor.starts_with("ge") {
+        file.diode = DeviceChoice::Archetype("ge-point-contact-diode".to_string());
+        file.requirements.toggle_rate_hz = 20e3;
+    }
+    let what = format!("{transistor} {steering:?} {vcc} V {current} A");
+    let input = file.synthesis_input().unwrap_or_else(|e| panic!("{what}: {e:?}"));
+    let outcome = flipwright::stage::synthesis::synthesise(&input).unwrap_or_else(|e| panic!("{what}: {e}"));
+    let design = flipwright::stage::StageDesign::new(flipwright::stage::StageInput {
+        values: outcome.values,
+        ..input
+    })
+    .unwrap_or_else(|e| panic!("{what}: {e:?}"));
+    (design, outcome)
+}
+
 /// The trigger-amplitude estimate (charge control: stored and active charge, the emitter
 /// junction from VBE(sat) and the Miller charge of Cob to the middle of the swing, through Ct)
 /// against the sensitivity the transient engine measures on the same synthesised stages: base
@@ -507,7 +538,6 @@ fn planned_chain_verification_refuses_bad_requests_with_typed_errors() {
 /// 0.85–0.92 with collector steering; without them 0.45–0.91, optimistic on every design.
 #[test]
 fn trigger_estimate_follows_the_measured_sensitivity() {
-    use flipwright::design_file::{DesignFile, DeviceChoice};
     use flipwright::stage::Steering;
     let corner = SimulationCorner::nominal();
     let cases = [
@@ -520,25 +550,8 @@ fn trigger_estimate_follows_the_measured_sensitivity() {
         ("si-npn-fast-15v", Steering::Collector, 9.0, 4e-3, 0.8..1.2),
     ];
     for (transistor, steering, vcc, current, band) in cases {
-        let mut file = DesignFile::demo();
-        file.transistor = DeviceChoice::Archetype(transistor.to_string());
-        file.requirements.steering = steering;
-        file.supplies.collector_supply_v = vcc;
-        file.supplies.bias_supply_v = vcc / 2.0;
-        file.requirements.collector_current_a = Some(current);
-        if transistor.starts_with("ge") {
-            file.diode = DeviceChoice::Archetype("ge-point-contact-diode".to_string());
-            file.requirements.toggle_rate_hz = 20e3;
-        }
         let what = format!("{transistor} {steering:?} {vcc} V {current} A");
-        let input = file.synthesis_input().unwrap_or_else(|e| panic!("{what}: {e:?}"));
-        let outcome =
-            flipwright::stage::synthesis::synthesise(&input).unwrap_or_else(|e| panic!("{what}: {e}"));
-        let design = flipwright::stage::StageDesign::new(flipwright::stage::StageInput {
-            values: outcome.values,
-            ..input
-        })
-        .unwrap_or_else(|e| panic!("{what}: {e:?}"));
+        let (design, outcome) = synthesised_stage(transistor, steering, vcc, current);
         let estimate =
             outcome.report.switching.min_trigger_amplitude_v.unwrap_or_else(|| panic!("{what}: no estimate"));
         let rate = design.input().requirements.toggle_rate_hz;
@@ -562,7 +575,6 @@ fn trigger_estimate_follows_the_measured_sensitivity() {
 /// fall that the table showed there before is 7 to 450 times shorter than the voltage edge.
 #[test]
 fn collector_rise_estimate_follows_the_measured_edge() {
-    use flipwright::design_file::{DesignFile, DeviceChoice};
     use flipwright::stage::Steering;
     let cases = [
         ("si-npn-switch-40v", Steering::Base, 9.0, 4e-3),
@@ -575,25 +587,8 @@ fn collector_rise_estimate_follows_the_measured_edge() {
         ("si-npn-fast-15v", Steering::Collector, 9.0, 4e-3),
     ];
     for (transistor, steering, vcc, current) in cases {
-        let mut file = DesignFile::demo();
-        file.transistor = DeviceChoice::Archetype(transistor.to_string());
-        file.requirements.steering = steering;
-        file.supplies.collector_supply_v = vcc;
-        file.supplies.bias_supply_v = vcc / 2.0;
-        file.requirements.collector_current_a = Some(current);
-        if transistor.starts_with("ge") {
-            file.diode = DeviceChoice::Archetype("ge-point-contact-diode".to_string());
-            file.requirements.toggle_rate_hz = 20e3;
-        }
         let what = format!("{transistor} {steering:?} {vcc} V {current} A");
-        let input = file.synthesis_input().unwrap_or_else(|e| panic!("{what}: {e:?}"));
-        let outcome =
-            flipwright::stage::synthesis::synthesise(&input).unwrap_or_else(|e| panic!("{what}: {e}"));
-        let design = flipwright::stage::StageDesign::new(flipwright::stage::StageInput {
-            values: outcome.values,
-            ..input
-        })
-        .unwrap_or_else(|e| panic!("{what}: {e:?}"));
+        let (design, _) = synthesised_stage(transistor, steering, vcc, current);
         let options = flipwright::verify::VerifyOptions { measure: false, ..Default::default() };
         let (verification, _) = flipwright::verify::verify_stage(&design, &options, &mut |_| true)
             .unwrap_or_else(|e| panic!("{what}: {e}"));
