@@ -209,7 +209,7 @@ pub fn simulate_design_file(
         // swing of an identical driving stage.
         let pulse =
             verify::service_pulse(&design, SearchSettings::default().edge_s).map_err(verify_failure)?;
-        let accuracy = RunAccuracy::default();
+        let accuracy = RunAccuracy::for_counting();
         match request.divide {
             None => {
                 let edges = request.edges.unwrap_or(2usize << request.stages);

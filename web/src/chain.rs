@@ -403,7 +403,7 @@ fn verify_planned_text(design_json: &str, edges: Option<usize>) -> Outcome<Plann
         edges,
         &pulse,
         &corner,
-        &RunAccuracy::default(),
+        &RunAccuracy::for_counting(),
     ) {
         Ok(triple) => triple,
         Err(e) => return failed(e.to_string()),

@@ -282,7 +282,7 @@ fn verify_chain_text(design_json: &str, stages: usize, edges: usize) -> Outcome<
     };
     let corner = SimulationCorner::nominal();
     let (check, result, built) =
-        match verify::verify_chain(&design, stages, edges, &pulse, &corner, &RunAccuracy::default()) {
+        match verify::verify_chain(&design, stages, edges, &pulse, &corner, &RunAccuracy::for_counting()) {
             Ok(triple) => triple,
             Err(e) => return failed(e),
         };

@@ -29,6 +29,24 @@ impl Default for RunAccuracy {
     }
 }
 
+/// The charge tolerance of runs that check a chain's count ([`RunAccuracy::for_counting`]).
+/// A count needs each stage's state before the next edge, not its edges to picoseconds:
+/// measured on the ten-stage benchmark chain (`cargo bench -p flipwright-core --bench chain
+/// -- accuracy-only 10 128 1e-13`, 2026-12-03), every stage's 255 edges stay within 0.16 ns
+/// (median) and 0.76 ns (largest) of a run at relative tolerance 1e-5 and 1 fC, against 0.010
+/// and 0.137 ns at the default 1 fC, in half the steps (17 566 against 35 343). The edges of
+/// these chains take tens of nanoseconds and their periods microseconds.
+pub const COUNTING_CHARGE_TOLERANCE_C: f64 = 1e-13;
+
+impl RunAccuracy {
+    /// For runs that check a chain's count: the default with
+    /// [`COUNTING_CHARGE_TOLERANCE_C`]. Measurements of a stage's trigger sensitivity and
+    /// toggle rate keep the default.
+    pub fn for_counting() -> Self {
+        RunAccuracy { charge_tolerance_c: COUNTING_CHARGE_TOLERANCE_C, ..RunAccuracy::default() }
+    }
+}
+
 /// The count checked after each input edge.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct CountCheck {
