@@ -440,7 +440,16 @@ function cell(row, text, className) {
   return td;
 }
 
+/** What each table last showed (its cells as JSON) and the body holding it: an edit that
+ *  leaves a table's cells as they were (the count table, the plan's methods) keeps its
+ *  DOM instead of rebuilding it; a table cleared elsewhere has lost that body, so it is
+ *  built again. */
+const shownTables = new WeakMap();
+
 function table(el, headers, rows) {
+  const key = JSON.stringify([headers, rows]);
+  const shown = shownTables.get(el);
+  if (shown && shown.key === key && el.tBodies[0] === shown.body) return;
   el.textContent = "";
   const head = el.createTHead().insertRow();
   for (const h of headers) { const th = document.createElement("th"); th.textContent = h; head.appendChild(th); }
@@ -458,6 +467,7 @@ function table(el, headers, rows) {
       else td.textContent = c;
     }
   }
+  shownTables.set(el, { key, body });
 }
 
 function marginText(value, unit) {
@@ -465,12 +475,18 @@ function marginText(value, unit) {
   return unit ? si(value, unit) : value.toFixed(2);
 }
 
+/** The schematic's SVG as last shown (only `render` writes that element). */
+let shownSchematic = null;
+
 function render(view, synthesis) {
   const report = view.report;
   const verdict = $("verdict");
   verdict.className = "verdict " + (report.all_pass ? "pass" : "fail");
   verdict.textContent = report.all_pass ? "Every margin passes at worst case." : "Some margin fails at worst case — see below for what to change.";
-  $("schematic").innerHTML = view.schematic_svg;
+  if (shownSchematic !== view.schematic_svg) {
+    $("schematic").innerHTML = view.schematic_svg;
+    shownSchematic = view.schematic_svg;
+  }
   table($("margins"), ["Margin (headroom to the limit)", "At nominal", "At worst", "Required", "Result", "Limited by / what to change"],
     report.margins.map(m => [
       m.title,

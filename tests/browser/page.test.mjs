@@ -116,6 +116,41 @@ test("editing a requirement updates the margins; a bad entry is flagged at the f
   await context.close();
 });
 
+test("an edit that leaves a table's cells alone keeps its rows; one that changes them, or a cleared table, rebuilds it", async () => {
+  const { page, problems, context } = await open();
+  await page.fill("#f-chain-divide_by", "1024");
+  await page.waitForFunction(() => /divide by 1024/.test(document.querySelector("#plan-title").textContent), null, { timeout: 60000 });
+  await waitCompute(page);
+  await page.evaluate(() => { window.countBody = document.querySelector("#plan-count tbody"); window.partsText = document.querySelector("#parts").textContent; });
+  // The toggle rate changes the values, not the count sequence.
+  await setField(page, "requirements.toggle_rate_hz", "61k");
+  await page.waitForFunction(() => document.querySelector("#parts").textContent !== window.partsText, null, { timeout: 30000 });
+  await waitCompute(page);
+  assert.ok(await page.evaluate(() => document.querySelector("#plan-count tbody") === window.countBody), "the count table's rows were kept");
+  // A new divide ratio rebuilds it with the new sequence.
+  await page.fill("#f-chain-divide_by", "16");
+  await page.waitForFunction(() => /divide by 16\b/.test(document.querySelector("#plan-title").textContent), null, { timeout: 60000 });
+  const rebuilt = await page.evaluate(() => ({ same: document.querySelector("#plan-count tbody") === window.countBody, rows: document.querySelectorAll("#plan-count tbody tr").length }));
+  assert.equal(rebuilt.same, false);
+  assert.equal(rebuilt.rows, 16, "one row per count of the new cycle");
+  // The helper itself: the same cells keep the body, a cleared table is built again.
+  const helper = await page.evaluate(() => {
+    const el = document.createElement("table");
+    table(el, ["A"], [["1"], ["2"]]);
+    const first = el.tBodies[0];
+    table(el, ["A"], [["1"], ["2"]]);
+    const kept = el.tBodies[0] === first;
+    el.textContent = "";
+    table(el, ["A"], [["1"], ["2"]]);
+    const afterClear = el.tBodies[0] ? el.tBodies[0].rows.length : 0;
+    table(el, ["A"], [["1"], ["3"]]);
+    return { kept, afterClear, changed: el.textContent };
+  });
+  assert.deepEqual(helper, { kept: true, afterClear: 2, changed: "A13" });
+  assert.deepEqual(problems, []);
+  await context.close();
+});
+
 test("printing gives A4 and Letter pages with the component table and cautions", async () => {
   const { page, problems, context } = await open();
   await page.emulateMedia({ media: "print" });
