@@ -49,16 +49,6 @@ fn built(design: &StageDesign, stages: usize) -> BuiltCircuit {
         .unwrap_or_else(|e| fail(format!("cannot build the chain: {e}")))
 }
 
-/// What verification uses: a stage alone is measured at the default accuracy, a chain's count
-/// is checked at [`RunAccuracy::for_counting`].
-fn accuracy_for(built: &BuiltCircuit) -> RunAccuracy {
-    if built.stages.len() > 1 {
-        RunAccuracy::for_counting()
-    } else {
-        RunAccuracy::default()
-    }
-}
-
 fn run<S: LinearSolver>(
     built: &BuiltCircuit,
     edges: usize,
@@ -132,7 +122,7 @@ fn case<S: LinearSolver>(
     repetitions: usize,
     make: impl Fn() -> S,
 ) -> f64 {
-    let accuracy = accuracy_for(built);
+    let accuracy = RunAccuracy::for_stages(built.stages.len());
     let result = run(built, edges, &accuracy, &mut make());
     let check = check_counts(built, &result, edges);
     let stats = result.statistics;
@@ -251,11 +241,18 @@ fn main() {
         let edges = get(3).parse().unwrap_or(32);
         let built = built(&design, stages);
         let result = match get(1) {
-            "dense" => run(&built, edges, &accuracy_for(&built), &mut DenseSolver::default()),
-            "pivoting" => run(&built, edges, &accuracy_for(&built), &mut SparseSolver::always_pivoting()),
+            "dense" => {
+                run(&built, edges, &RunAccuracy::for_stages(built.stages.len()), &mut DenseSolver::default())
+            }
+            "pivoting" => run(
+                &built,
+                edges,
+                &RunAccuracy::for_stages(built.stages.len()),
+                &mut SparseSolver::always_pivoting(),
+            ),
             _ => {
                 let mut solver = SparseSolver::default();
-                let result = run(&built, edges, &accuracy_for(&built), &mut solver);
+                let result = run(&built, edges, &RunAccuracy::for_stages(built.stages.len()), &mut solver);
                 println!(
                     "{:?}; pattern {} entries, factors {:?}",
                     solver.statistics(),
@@ -301,7 +298,7 @@ fn main() {
             println!("  dense/sparse median ratio {:.2}", dense / sparse);
         }
         if has("accuracy") {
-            accuracy(&built, edges, &accuracy_for(&built));
+            accuracy(&built, edges, &RunAccuracy::for_stages(built.stages.len()));
         }
     }
 }

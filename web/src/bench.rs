@@ -46,11 +46,7 @@ impl ChainBench {
     /// run's statistics and whether the count was right after every edge.
     pub fn run(&self, edges: usize, solver: &str) -> Result<JsValue, JsError> {
         let built = &self.built;
-        // As verification runs them: a stage alone at the default accuracy, a chain's count
-        // at the counting accuracy (the native benchmark makes the same choice).
-        let accuracy =
-            if built.stages.len() > 1 { RunAccuracy::for_counting() } else { RunAccuracy::default() };
-        let settings = run_settings(built, edges, &accuracy);
+        let settings = run_settings(built, edges, &RunAccuracy::for_stages(built.stages.len()));
         let result = match solver {
             "dense" => simulate_with(&built.circuit, &settings, &built.hints, &mut DenseSolver::default()),
             "sparse" => simulate_with(&built.circuit, &settings, &built.hints, &mut SparseSolver::default()),

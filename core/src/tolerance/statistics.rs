@@ -120,6 +120,7 @@ pub fn histogram(values: &[f64], bins: usize) -> Histogram {
 
 #[cfg(test)]
 mod tests {
+    use super::*;
 
     /// The interval holds the observed fraction at both ends of the range, for every trial
     /// count up to 2000 and levels across (0, 1): the Wilson interval contains p by its
@@ -136,8 +137,6 @@ mod tests {
             }
         }
     }
-
-    use super::*;
 
     #[test]
     fn normal_quantiles_match_the_usual_table() {

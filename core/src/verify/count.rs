@@ -45,6 +45,17 @@ impl RunAccuracy {
     pub fn for_counting() -> Self {
         RunAccuracy { charge_tolerance_c: COUNTING_CHARGE_TOLERANCE_C, ..RunAccuracy::default() }
     }
+
+    /// What verification runs a circuit of `stages` stages at: a stage alone at the default
+    /// (its runs time edges for the searches), a chain at [`RunAccuracy::for_counting`]. The
+    /// native and wasm chain benchmarks both time their runs at this accuracy.
+    pub fn for_stages(stages: usize) -> Self {
+        if stages > 1 {
+            RunAccuracy::for_counting()
+        } else {
+            RunAccuracy::default()
+        }
+    }
 }
 
 /// The count checked after each input edge.

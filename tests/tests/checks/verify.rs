@@ -612,7 +612,7 @@ fn collector_rise_estimate_follows_the_measured_edge() {
 }
 
 /// Convergence check (the engine against itself at a hundred times tighter tolerances, the
-/// usual way to bound an integrator's error when no closed form exists): the counting
+/// usual way to bound an integrator's error when no closed form exists; common practice): the counting
 /// accuracy the chain verifications use moves no collector edge of a four-stage chain by more
 /// than 2 ns from a run at relative tolerance 1e-5 and 1 fC. Our bound: the edges take tens
 /// of nanoseconds and the period is 10 µs; the benchmark chain measured 0.76 ns at most.
