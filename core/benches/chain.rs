@@ -8,7 +8,7 @@
 //! `accuracy` (also the edge-time error against a run at relative tolerance 1e-5),
 //! `sparse-only` (skip the dense runs), `stage-only` (skip the ten-stage chain, as the wasm
 //! benchmark's option of that name does), `crossover` (only the dense/sparse crossover table),
-//! `once dense|sparse|pivoting STAGES EDGES` (one run, for a profiler, with its steps by decade of
+//! `once dense|sparse|column|pivoting STAGES EDGES` (one run, for a profiler, with its steps by decade of
 //! size), `accuracy-only STAGES EDGES [CHARGE_TOLERANCE_C [RELATIVE_TOLERANCE]]` (only the edge-time
 //! error, every stage's edges, against relative 1e-5 and 1 fC).
 
@@ -22,7 +22,7 @@ use flipwright::design_file::DesignFile;
 use flipwright::stage::StageDesign;
 use flipwright::transient::system::System;
 use flipwright::transient::{
-    simulate_with, AutomaticSolver, DenseSolver, LinearSolver, SparseSolver, TransientResult,
+    simulate_with, AutomaticSolver, DenseSolver, FillOrdering, LinearSolver, SparseSolver, TransientResult,
 };
 use flipwright::verify::count::{check_counts, run_settings};
 use flipwright::verify::{chain_circuit, service_pulse, BuiltCircuit, RunAccuracy, SimulationCorner};
@@ -243,6 +243,12 @@ fn main() {
         let result = match get(1) {
             "dense" => {
                 run(&built, edges, &RunAccuracy::for_stages(built.stages.len()), &mut DenseSolver::default())
+            }
+            "column" => {
+                let mut solver = SparseSolver::with_ordering(FillOrdering::Column);
+                let result = run(&built, edges, &RunAccuracy::for_stages(built.stages.len()), &mut solver);
+                println!("{:?}; factors {:?}", solver.statistics(), solver.factor_entries());
+                result
             }
             "pivoting" => run(
                 &built,

@@ -33,6 +33,6 @@ pub use circuit_file::{CircuitFile, Probes};
 pub use error::SimulationError;
 pub use export::{ExportError, Probe};
 pub use integrator::{simulate, simulate_with, RunStatistics, TransientResult, TransientSettings};
-pub use linear::{AutomaticSolver, DenseSolver, LinearSolver, SingularColumn, SparseSolver};
+pub use linear::{AutomaticSolver, DenseSolver, FillOrdering, LinearSolver, SingularColumn, SparseSolver};
 pub use operating_point::{operating_point, OperatingPoint, OperatingPointHints, OperatingPointMethod};
 pub use waveform::Waveform;
