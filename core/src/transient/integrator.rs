@@ -173,21 +173,27 @@ fn step_factor(ratio: f64, order: f64) -> f64 {
     }
 }
 
-/// Third (or second) divided difference of a charge over the last points, for the error
-/// estimate. `points` holds (time, charge), oldest first; at most four are used.
-fn divided_difference(points: &[(f64, f64)]) -> f64 {
-    let count = points.len().min(4);
-    let mut values = [0.0; 4];
-    for (value, point) in values.iter_mut().zip(points) {
-        *value = point.1;
-    }
-    for level in 1..count {
-        for i in 0..count - level {
-            let span = points[i + level].0 - points[i].0;
-            values[i] = if span > 0.0 { (values[i + 1] - values[i]) / span } else { 0.0 };
+/// Weights of the divided difference over `times` (2 to 4 of them, oldest first): the
+/// divided difference of values q_k is Σ w_k·q_k with w_k = 1 / Π_{j≠k} (t_k − t_j) (the
+/// Lagrange form; any numerical-analysis text, e.g. Burden & Faires, *Numerical Analysis*,
+/// §3.3). They depend on the times alone, so one step computes them once for all its charges.
+/// `None` when two times coincide.
+fn divided_difference_weights(times: &[f64]) -> Option<[f64; 4]> {
+    let count = times.len().min(4);
+    let mut weights = [0.0; 4];
+    for (k, weight) in weights.iter_mut().enumerate().take(count) {
+        let mut product = 1.0;
+        for (j, &t) in times.iter().enumerate().take(count) {
+            if j != k {
+                product *= times.get(k).copied().unwrap_or(0.0) - t;
+            }
+        }
+        *weight = 1.0 / product;
+        if !weight.is_finite() {
+            return None;
         }
     }
-    values[0]
+    Some(weights)
 }
 
 /// Transient run with any [`LinearSolver`].
@@ -321,20 +327,27 @@ pub fn simulate_with<S: LinearSolver>(
             order = if use_third { 2.0 } else { 1.0 };
             let first = if use_third { history.len() - 3 } else { history.len() - 2 };
             let past = history.get(first..).unwrap_or(&[]);
-            for slot in 0..solved.charges.len() {
-                let mut points = [(0.0, 0.0); 4];
-                let mut count = 0;
-                for ((t, q), point) in past.iter().zip(points.iter_mut()) {
-                    *point = (*t, q.get(slot).copied().unwrap_or(0.0));
-                    count += 1;
+            let mut times = [0.0; 4];
+            for (t, (time, _)) in times.iter_mut().zip(past) {
+                *t = *time;
+            }
+            let count = (past.len() + 1).min(4);
+            if let Some(t) = times.get_mut(count - 1) {
+                *t = new_time;
+            }
+            // Two coincident times leave no estimate (steps are never that short).
+            let weights = divided_difference_weights(&times[..count]).unwrap_or([0.0; 4]);
+            let error_scale = if use_third { h.powi(3) / 2.0 } else { h.powi(2) };
+            for (slot, &new_charge) in solved.charges.iter().enumerate() {
+                // Σ w_k = 0, so the oldest charge comes off every term first: the sum then
+                // adds changes, not whole charges.
+                let base = past.first().and_then(|(_, q)| q.get(slot)).copied().unwrap_or(new_charge);
+                let mut dd = 0.0;
+                for (weight, (_, q)) in weights.iter().zip(past) {
+                    dd += weight * (q.get(slot).copied().unwrap_or(0.0) - base);
                 }
-                let new_charge = solved.charges.get(slot).copied().unwrap_or(0.0);
-                if let Some(point) = points.get_mut(count) {
-                    *point = (new_time, new_charge);
-                    count += 1;
-                }
-                let dd = divided_difference(&points[..count]);
-                let error = if use_third { h.powi(3) * dd.abs() / 2.0 } else { h.powi(2) * dd.abs() };
+                dd += weights.get(count - 1).copied().unwrap_or(0.0) * (new_charge - base);
+                let error = error_scale * dd.abs();
                 let old_charge = charges.get(slot).copied().unwrap_or(0.0);
                 let allowed = settings.relative_tolerance * larger(old_charge.abs(), new_charge.abs())
                     + settings.charge_tolerance_c;

@@ -45,6 +45,24 @@ pub trait LinearSolver {
     }
 }
 
+/// The largest |v| of `values` (NaNs ignored), folded in four independent lanes: a single
+/// running maximum makes every comparison wait for the one before, and this runs at every
+/// factorisation.
+fn largest_magnitude(values: &[f64]) -> f64 {
+    let mut lanes = [0.0f64; 4];
+    let chunks = values.chunks_exact(4);
+    let rest = chunks.remainder();
+    for chunk in chunks {
+        for (lane, &v) in lanes.iter_mut().zip(chunk) {
+            *lane = larger(*lane, v.abs());
+        }
+    }
+    for &v in rest {
+        lanes[0] = larger(lanes[0], v.abs());
+    }
+    larger(larger(lanes[0], lanes[1]), larger(lanes[2], lanes[3]))
+}
+
 fn prepare(size: usize, product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
     product.clear();
     product.resize(size, 0.0);
@@ -383,8 +401,7 @@ impl SparseSolver {
         })?;
         // Partial pivoting takes the largest candidate even when it is zero: check each pivot
         // (the last entry of each column of U) the way the dense elimination does.
-        let scale =
-            larger(self.pattern.values.iter().fold(0.0f64, |m, v| larger(m, v.abs())), f64::MIN_POSITIVE);
+        let scale = larger(largest_magnitude(&self.pattern.values), f64::MIN_POSITIVE);
         let u = numeric.lu.u_factor_unsorted();
         for column in 0..size {
             let pivot = u.val_of_col(column).last().copied().unwrap_or(0.0).abs();
@@ -518,8 +535,7 @@ impl LinearSolver for SparseSolver {
             self.frozen = None;
             self.analyse()?;
         }
-        let scale =
-            larger(self.pattern.values.iter().fold(0.0f64, |m, v| larger(m, v.abs())), f64::MIN_POSITIVE);
+        let scale = larger(largest_magnitude(&self.pattern.values), f64::MIN_POSITIVE);
         let refactored = match self.frozen.as_mut() {
             Some(frozen) => {
                 let done = frozen.refactor(&self.pattern, scale).is_ok();
@@ -600,11 +616,14 @@ struct FrozenFactors {
     l_starts: Vec<usize>,
     l_rows: Vec<usize>,
     l_values: Vec<f64>,
-    /// Strictly upper part of U by columns, rows as ascending pivot steps, and the diagonal.
+    /// Strictly upper part of U by columns, rows as ascending pivot steps, and the inverse of
+    /// its diagonal.
     u_starts: Vec<usize>,
     u_rows: Vec<usize>,
     u_values: Vec<f64>,
-    u_diagonal: Vec<f64>,
+    /// 1 / each diagonal entry: the back substitution multiplies (a division's latency is
+    /// several multiplications', and each step of the substitution waits for the one before).
+    u_inverse: Vec<f64>,
     /// Pivot step of the row of each stored entry of the pattern.
     entry_steps: Vec<usize>,
     work: Vec<f64>,
@@ -627,7 +646,7 @@ impl FrozenFactors {
             u_starts: Vec::with_capacity(size + 1),
             u_rows: Vec::new(),
             u_values: Vec::new(),
-            u_diagonal: vec![0.0; size],
+            u_inverse: vec![0.0; size],
             entry_steps: Vec::with_capacity(pattern.row_indices.len()),
             work: vec![0.0; size],
             row_step,
@@ -655,7 +674,7 @@ impl FrozenFactors {
                 if row < j {
                     column.push((row, value));
                 } else if row == j {
-                    *frozen.u_diagonal.get_mut(j)? = value;
+                    *frozen.u_inverse.get_mut(j)? = 1.0 / value;
                 } else {
                     return None;
                 }
@@ -732,8 +751,8 @@ impl FrozenFactors {
                 work.iter_mut().for_each(|v| *v = 0.0);
                 return Err(j);
             }
-            self.u_diagonal[j] = pivot;
             let inverse = 1.0 / pivot;
+            self.u_inverse[j] = inverse;
             for (&i, l) in l_rows[column.clone()].iter().zip(&mut l_values[column]) {
                 *l = work[i] * inverse;
                 work[i] = 0.0;
@@ -759,7 +778,7 @@ impl FrozenFactors {
             }
         }
         for j in (0..self.size).rev() {
-            let zj = work[j] / self.u_diagonal[j];
+            let zj = work[j] * self.u_inverse[j];
             work[j] = zj;
             if zj != 0.0 {
                 let column = self.u_starts[j]..self.u_starts[j + 1];

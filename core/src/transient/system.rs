@@ -86,6 +86,20 @@ enum Stamp {
     },
 }
 
+impl Stamp {
+    /// The order of kinds in a compiled system.
+    fn kind_rank(&self) -> u8 {
+        match self {
+            Stamp::Conductance { .. } => 0,
+            Stamp::VoltageSource { .. } => 1,
+            Stamp::CurrentSource { .. } => 2,
+            Stamp::Capacitor { .. } => 3,
+            Stamp::Diode { .. } => 4,
+            Stamp::Transistor { .. } => 5,
+        }
+    }
+}
+
 #[derive(Debug, Clone, Copy)]
 struct DiodeLaw {
     saturation_current_a: f64,
@@ -264,7 +278,10 @@ pub struct System {
     pub node_names: Vec<String>,
     /// Names of the voltage sources, one current unknown each after the nodes.
     pub source_names: Vec<String>,
+    /// Grouped by kind, conductances first.
     stamps: Vec<Stamp>,
+    /// Index of the first stamp that is not a conductance.
+    varying_from: usize,
     /// `junction_count` entries, slot by slot.
     junction_pins: Vec<JunctionPins>,
     pub(crate) charge_count: usize,
@@ -456,6 +473,12 @@ impl System {
             stamps.push(Stamp::VoltageSource { positive, negative, row: node_count + index, waveform });
         }
         node_names.extend(internal);
+        // Grouped by kind, so the assembly's dispatch on the kind runs in long predictable
+        // stretches, and the conductances, which only the constant part stamps, come first
+        // for the rest of each assembly to skip (the slots they carry keep their meaning).
+        stamps.sort_by_key(Stamp::kind_rank);
+        let varying_from =
+            stamps.iter().take_while(|stamp| matches!(stamp, Stamp::Conductance { .. })).count();
         let mut junction_pins =
             vec![
                 JunctionPins { positive: None, negative: None, sign: 1.0, n_vt: 1.0, critical_v: 0.0 };
@@ -492,7 +515,15 @@ impl System {
                 _ => {}
             }
         }
-        Ok(System { node_names, source_names, stamps, junction_pins, charge_count, junction_count })
+        Ok(System {
+            node_names,
+            source_names,
+            stamps,
+            varying_from,
+            junction_pins,
+            charge_count,
+            junction_count,
+        })
     }
 
     pub fn node_count(&self) -> usize {
@@ -644,7 +675,7 @@ impl System {
             }
             (current, integration.a * c)
         };
-        for stamp in &self.stamps {
+        for stamp in self.stamps.get(self.varying_from..).unwrap_or(&[]) {
             match stamp {
                 Stamp::Conductance { .. } => {}
                 Stamp::Capacitor { a, b, capacitance_f, charge } => {
