@@ -9,7 +9,9 @@ use super::linear::{AutomaticSolver, LinearSolver};
 use super::operating_point::{
     default_tolerances, solve_operating_point, OperatingPointHints, OperatingPointMethod,
 };
-use super::system::{Conditions, Evaluations, Failure, Integration, NewtonTolerances, Reuse, System};
+use super::system::{
+    Conditions, Evaluations, Failure, Integration, NewtonBuffers, NewtonTolerances, Reuse, System,
+};
 use crate::numeric::larger;
 
 /// Step reduction after a failed Newton solve.
@@ -243,6 +245,7 @@ pub fn simulate_with<S: LinearSolver>(
     // Device evaluations are pure functions of the junction voltages, so they carry over
     // rejected steps as well as accepted ones.
     let mut evaluations = Evaluations::new(settings.relative_tolerance);
+    let mut buffers = NewtonBuffers::default();
     // The junction history a step's solve starts from and updates; kept only when accepted.
     let mut trial_junctions = Vec::with_capacity(junctions.len());
     // Every accepted or rejected step counts, so the loop is bounded even if steps shrink.
@@ -289,7 +292,8 @@ pub fn simulate_with<S: LinearSolver>(
             }
         }
         trial_junctions.clone_from(&junctions);
-        let reuse = Reuse { evaluations: Some(&mut evaluations), constants: true };
+        let reuse =
+            Reuse { evaluations: Some(&mut evaluations), constants: true, buffers: Some(&mut buffers) };
         let outcome =
             system.newton_with(solver, &start, &mut trial_junctions, &conditions, tolerances, reuse);
         result.statistics.device_evaluations = evaluations.evaluated;
@@ -363,6 +367,7 @@ pub fn simulate_with<S: LinearSolver>(
                 if step < min_step {
                     return Err(SimulationError::TimestepTooSmall { time_s: time, step_s: step });
                 }
+                buffers.recycle(solved);
                 continue;
             }
         }
@@ -372,9 +377,13 @@ pub fn simulate_with<S: LinearSolver>(
         time = new_time;
         std::mem::swap(&mut junctions, &mut trial_junctions);
         let before = std::mem::replace(&mut unknowns, solved.unknowns);
-        previous = Some((time_before_step, before));
-        charges = solved.charges;
-        charge_currents = solved.charge_currents;
+        if let Some((_, older)) = previous.replace((time_before_step, before)) {
+            buffers.recycle_unknowns(older);
+        }
+        buffers.recycle_charges(
+            std::mem::replace(&mut charges, solved.charges),
+            std::mem::replace(&mut charge_currents, solved.charge_currents),
+        );
         result.time_s.push(time);
         for (index, series) in result.node_voltages_v.iter_mut().enumerate() {
             series.push(unknowns.get(index).copied().unwrap_or(0.0));
@@ -382,7 +391,12 @@ pub fn simulate_with<S: LinearSolver>(
         for (index, series) in result.source_currents_a.iter_mut().enumerate() {
             series.push(unknowns.get(node_count + index).copied().unwrap_or(0.0));
         }
-        let growth = if worst_ratio > 0.0 {
+        // Below (safety/growth)^(order + 1) the factor would exceed the largest growth
+        // anyway, so no root is taken (a cube root is a library call, on wasm32 especially;
+        // most accepted steps land here). The bound is shaded so rounding cannot matter.
+        let capped_below =
+            (STEP_SAFETY / MAX_STEP_GROWTH).powi(if order >= 2.0 { 3 } else { 2 }) * (1.0 - 1e-9);
+        let growth = if worst_ratio > capped_below {
             (STEP_SAFETY * step_factor(worst_ratio, order)).min(MAX_STEP_GROWTH)
         } else {
             MAX_STEP_GROWTH

@@ -225,13 +225,55 @@ pub(crate) struct Reuse<'a> {
     /// base ([`LinearSolver::save_base`]) after the first assembly; only for solves whose
     /// conditions keep `extra_gmin_s`, as a transient run does.
     pub constants: bool,
+    /// Vectors to work in instead of allocating them, when given.
+    pub buffers: Option<&'a mut NewtonBuffers>,
 }
 
 impl Reuse<'_> {
     /// Every device evaluated and every matrix factorised at every iteration.
     pub(crate) fn nothing() -> Reuse<'static> {
-        Reuse { evaluations: None, constants: false }
+        Reuse { evaluations: None, constants: false, buffers: None }
     }
+}
+
+/// The vectors a Newton solve works in, kept across the solves of a run so that a step
+/// allocates none (allocation showed in profiles of a stage run, under Node especially): a
+/// solve takes them and gives back those it does not return, and the run hands back the
+/// returned ones once it no longer needs them ([`NewtonBuffers::recycle`]).
+#[derive(Debug, Default)]
+pub(crate) struct NewtonBuffers {
+    unknowns: Vec<f64>,
+    next: Vec<f64>,
+    product: Vec<f64>,
+    magnitude: Vec<f64>,
+    rhs: Vec<f64>,
+    charges: Vec<f64>,
+    charge_currents: Vec<f64>,
+}
+
+impl NewtonBuffers {
+    /// Takes back the vectors of a solve whose result is no longer needed.
+    pub(crate) fn recycle(&mut self, solved: Solved) {
+        self.unknowns = solved.unknowns;
+        self.charges = solved.charges;
+        self.charge_currents = solved.charge_currents;
+    }
+    /// Takes back one unknowns vector (the point before the last, once it moves on).
+    pub(crate) fn recycle_unknowns(&mut self, unknowns: Vec<f64>) {
+        self.unknowns = unknowns;
+    }
+    /// Takes back a charge and a charge-current vector replaced by a newer solve's.
+    pub(crate) fn recycle_charges(&mut self, charges: Vec<f64>, charge_currents: Vec<f64>) {
+        self.charges = charges;
+        self.charge_currents = charge_currents;
+    }
+}
+
+/// `buffer` emptied and filled with `length` zeros, keeping its allocation.
+fn zeroed(mut buffer: Vec<f64>, length: usize) -> Vec<f64> {
+    buffer.clear();
+    buffer.resize(length, 0.0);
+    buffer
 }
 
 /// What one assembly produces besides the matrix: the right-hand side, and the charges and
@@ -856,17 +898,21 @@ impl System {
         let mut reuse = reuse;
         let size = self.size();
         let node_count = self.node_count();
-        let mut unknowns = start.to_vec();
+        let mut own = NewtonBuffers::default();
+        let buffers = reuse.buffers.take().unwrap_or(&mut own);
+        let mut unknowns = std::mem::take(&mut buffers.unknowns);
+        unknowns.clear();
+        unknowns.extend_from_slice(start);
         unknowns.resize(size, 0.0);
         junctions.resize(self.junction_count, 0.0);
         let mut out = Linearised {
-            rhs: Vec::with_capacity(size),
-            charges: vec![0.0; self.charge_count],
-            charge_currents: vec![0.0; self.charge_count],
+            rhs: std::mem::take(&mut buffers.rhs),
+            charges: zeroed(std::mem::take(&mut buffers.charges), self.charge_count),
+            charge_currents: zeroed(std::mem::take(&mut buffers.charge_currents), self.charge_count),
         };
-        let mut next = Vec::with_capacity(size);
-        let mut product = vec![0.0; size];
-        let mut magnitude = vec![0.0; size];
+        let mut next = std::mem::take(&mut buffers.next);
+        let mut product = zeroed(std::mem::take(&mut buffers.product), size);
+        let mut magnitude = zeroed(std::mem::take(&mut buffers.magnitude), size);
         let mut worst = (0, f64::INFINITY);
         let mut limited = self.limit_junctions(&unknowns, junctions);
         self.assemble(solver, &unknowns, junctions, conditions, &mut out, &mut reuse);
@@ -909,7 +955,11 @@ impl System {
                     },
                 );
                 if balanced {
-                    let Linearised { charges, charge_currents, .. } = out;
+                    let Linearised { rhs, charges, charge_currents } = out;
+                    // Failed solves keep nothing: they are rare, and their vectors are
+                    // simply allocated again.
+                    (buffers.next, buffers.product, buffers.magnitude, buffers.rhs) =
+                        (next, product, magnitude, rhs);
                     return Ok(Solved { unknowns, charges, charge_currents, iterations: iteration });
                 }
             }
@@ -1037,7 +1087,7 @@ mod tests {
             charge_currents: vec![0.0; system.charge_count],
         };
         let mut solver = DenseSolver::default();
-        let mut reuse = Reuse { evaluations, constants: false };
+        let mut reuse = Reuse { evaluations, constants: false, buffers: None };
         system.assemble(&mut solver, &unknowns, &junctions, &conditions, &mut out, &mut reuse);
         (columns(&solver, system.size()), out, junctions)
     }
@@ -1101,7 +1151,7 @@ mod tests {
         let mut reusing_solver = SparseSolver::default();
         let mut reusing_junctions = system.starting_junctions(&start);
         let mut cache = Evaluations::new(tolerances.relative);
-        let reuse = Reuse { evaluations: Some(&mut cache), constants: true };
+        let reuse = Reuse { evaluations: Some(&mut cache), constants: true, buffers: None };
         let reusing = system.newton_with(
             &mut reusing_solver,
             &start,
