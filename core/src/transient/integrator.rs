@@ -246,6 +246,8 @@ pub fn simulate_with<S: LinearSolver>(
     // rejected steps as well as accepted ones.
     let mut evaluations = Evaluations::new(settings.relative_tolerance);
     let mut buffers = NewtonBuffers::default();
+    // The next source corner, once looked up (`Some(None)`: there is none).
+    let mut upcoming: Option<Option<f64>> = None;
     // The junction history a step's solve starts from and updates; kept only when accepted.
     let mut trial_junctions = Vec::with_capacity(junctions.len());
     // Every accepted or rejected step counts, so the loop is bounded even if steps shrink.
@@ -257,7 +259,18 @@ pub fn simulate_with<S: LinearSolver>(
         if result.statistics.accepted_steps >= settings.max_steps {
             return Err(SimulationError::StepLimit { time_s: time, max_steps: settings.max_steps });
         }
-        let target = system.next_corner_after(time).map_or(stop, |corner| corner.min(stop));
+        // The earliest corner after the time it was found at stays the earliest until the
+        // run reaches it, so it is looked up again only then.
+        let corner = match upcoming {
+            Some(Some(corner)) if corner > time => Some(corner),
+            Some(None) => None,
+            _ => {
+                let corner = system.next_corner_after(time);
+                upcoming = Some(corner);
+                corner
+            }
+        };
+        let target = corner.map_or(stop, |corner| corner.min(stop));
         let restarting = history.len() < 2;
         if restarting {
             step = step.min(initial_step).min(0.1 * (target - time));
