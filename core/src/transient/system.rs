@@ -866,7 +866,7 @@ impl System {
     /// Newton–Raphson from `start`; `junctions` holds the limiting history and is left at the
     /// last evaluated junction voltages.
     ///
-    /// Converged means both: the last update is within tolerance of every unknown (and no
+    /// Converged means both: the last update is within tolerance of every node voltage (and no
     /// junction was limited), and the equations hold at the new point — each row's residual
     /// within the relative tolerance of the sum of the magnitudes of its terms plus the
     /// absolute current (node rows) or voltage (source rows) tolerance. The update alone can
@@ -874,6 +874,14 @@ impl System {
     /// tell a flat valley from a solution. The residual comes from the assembly at the new
     /// point, which the next iteration uses if the test fails, so it costs no extra solve, and
     /// a good start may converge after one iteration.
+    ///
+    /// The update test covers the node voltages only. A voltage source's current drives no
+    /// element and appears only in the current balances of its terminals, so the residual
+    /// test bounds it as it bounds every device current (to the relative tolerance of the
+    /// currents meeting there, plus the absolute current tolerance). Testing its update as
+    /// well cost iterations for nothing: an input source carrying almost no current between
+    /// edges moved by more than 1 pA from one iterate to the next on most steps (11 % fewer
+    /// iterations on one stage, 3.5 % on the ten-stage chain, with the same steps and edges).
     pub(crate) fn newton<S: LinearSolver>(
         &self,
         solver: &mut S,
@@ -920,13 +928,12 @@ impl System {
         for iteration in 1..=tolerances.max_iterations {
             next.clone_from(&out.rhs);
             solver.solve_in_place(&mut next).map_err(|e| Failure::Singular { unknown: e.column })?;
-            // Largest update relative to its tolerance decides convergence and names the
-            // culprit when the budget runs out.
+            // Largest node-voltage update relative to its tolerance decides convergence and
+            // names the culprit when the budget runs out (source currents: see above).
             let mut worst_ratio = 0.0;
             worst = (0, 0.0);
-            for (index, (&new, &old)) in next.iter().zip(&unknowns).enumerate() {
-                let absolute = if index < node_count { tolerances.voltage_v } else { tolerances.current_a };
-                let allowed = tolerances.relative * larger(old.abs(), new.abs()) + absolute;
+            for (index, (&new, &old)) in next.iter().zip(&unknowns).enumerate().take(node_count) {
+                let allowed = tolerances.relative * larger(old.abs(), new.abs()) + tolerances.voltage_v;
                 let ratio = (new - old).abs() / allowed;
                 if !(ratio <= worst_ratio) {
                     worst_ratio = ratio;
