@@ -237,9 +237,9 @@ pub struct SparseStatistics {
 /// Sparse LU. The pattern is learnt from the stamps: entries outside it are collected and
 /// merged at the next solve, and only then is the fill-reducing ordering ([`FillOrdering`])
 /// computed again, so a circuit pays for it once or twice per run (the operating point adds
-/// hint entries), not once per Newton iteration. The first factorisation of a pattern pivots (faer's simplicial
-/// kernel); later ones reuse its pivots and fill pattern ([`FrozenFactors`]) until a pivot
-/// becomes too small, when they pivot afresh.
+/// hint entries), not once per Newton iteration. The first factorisation of a pattern pivots
+/// (faer's simplicial kernel); later ones reuse its pivots and fill pattern
+/// ([`FrozenFactors`]) until a pivot becomes too small, when they pivot afresh.
 #[derive(Default)]
 pub struct SparseSolver {
     pattern: Pattern,
@@ -635,9 +635,9 @@ struct FrozenFactors {
     /// Pivot step of the row of each stored entry of the pattern.
     entry_steps: Vec<usize>,
     work: Vec<f64>,
-    /// The pattern's values the factors are of, empty when unknown (after a failed
-    /// refactorisation): a column of the factors whose entries of A and whose updating
-    /// columns are all unchanged is left as it is.
+    /// The pattern's values the factors are of: a column of the factors whose entries of A
+    /// and whose updating columns are all unchanged is left as it is. (A refused pivot makes
+    /// the solver drop these factors, so they never outlive a failed refactorisation.)
     factored_values: Vec<f64>,
     /// Per pivot step: recomputed at the last refactorisation.
     recomputed: Vec<bool>,
@@ -737,6 +737,7 @@ impl FrozenFactors {
     fn refactor(&mut self, pattern: &Pattern, scale: f64) -> Result<usize, usize> {
         let work = &mut self.work;
         let (l_rows, l_values, l_starts) = (&self.l_rows, &mut self.l_values, &self.l_starts);
+        // Always true (a new pattern brings new factors); it keeps the slices below in range.
         let known = self.factored_values.len() == pattern.values.len();
         let mut kept = 0;
         for j in 0..self.size {
@@ -778,7 +779,6 @@ impl FrozenFactors {
                 && largest.is_finite();
             if !acceptable {
                 work.iter_mut().for_each(|v| *v = 0.0);
-                self.factored_values.clear();
                 return Err(j);
             }
             let inverse = 1.0 / pivot;

@@ -254,9 +254,8 @@ pub(crate) struct NewtonBuffers {
 impl NewtonBuffers {
     /// Takes back the vectors of a solve whose result is no longer needed.
     pub(crate) fn recycle(&mut self, solved: Solved) {
-        self.unknowns = solved.unknowns;
-        self.charges = solved.charges;
-        self.charge_currents = solved.charge_currents;
+        self.recycle_unknowns(solved.unknowns);
+        self.recycle_charges(solved.charges, solved.charge_currents);
     }
     /// Takes back one unknowns vector (the point before the last, once it moves on).
     pub(crate) fn recycle_unknowns(&mut self, unknowns: Vec<f64>) {
