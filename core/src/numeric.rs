@@ -1,4 +1,7 @@
-//! Small dense linear algebra and scalar root finding used by the stage analyses.
+//! Small dense linear algebra and scalar root finding used by the stage analyses, and the
+//! elementary functions of the transient engine's junction laws ([`elementary`]).
+
+pub mod elementary;
 
 /// The larger of `a` and `b`, written as a comparison: on wasm32 `f64::max` is a call to a
 /// library function (its NaN rule is not the instruction's), which the engine's inner loops

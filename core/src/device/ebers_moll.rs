@@ -18,6 +18,7 @@
 use serde::{Deserialize, Serialize};
 
 use super::{Polarity, TransistorDatasheet};
+use crate::numeric::elementary;
 use crate::physics::{kelvin, thermal_voltage, REFERENCE_TEMPERATURE_C};
 
 /// Range βR is held to when derived from VCE(sat).
@@ -73,12 +74,13 @@ pub struct BjtOperatingPoint {
 }
 
 /// Exponential with a linear continuation beyond [`EXP_LIMIT`]; returns (value, derivative).
+/// The exponential is [`elementary::exp`] (table-driven on wasm32, where the library's is slow).
 pub fn limited_exp(x: f64) -> (f64, f64) {
     if x > EXP_LIMIT {
-        let at_limit = EXP_LIMIT.exp();
+        let at_limit = elementary::exp(EXP_LIMIT);
         (at_limit * (1.0 + x - EXP_LIMIT), at_limit)
     } else {
-        let value = x.exp();
+        let value = elementary::exp(x);
         (value, value)
     }
 }
@@ -243,7 +245,7 @@ impl EbersMoll {
         // Leakage from collector to base: saturating in reverse bias, smooth through zero.
         let vcb = -vbc;
         let leak_arg = vcb / (2.0 * vt);
-        let leak_tanh = leak_arg.tanh();
+        let leak_tanh = elementary::tanh(leak_arg);
         let leakage = self.leakage_a * leak_tanh;
         let d_leakage_dvbc = -self.leakage_a / (2.0 * vt) * (1.0 - leak_tanh * leak_tanh);
         let inv_beta_r = 1.0 / self.beta_reverse;

@@ -2,6 +2,7 @@
 //! current, and the Newton junction-voltage limit.
 
 use crate::device::ebers_moll::limited_exp;
+use crate::numeric::elementary::pow_positive;
 
 /// Fraction of the junction potential beyond which Cj0/(1 − V/φ)^m is continued linearly
 /// (the domain brief: "linearised past about half of φ"); keeps charge finite at V ≥ φ.
@@ -70,13 +71,14 @@ impl DepletionLaw {
 }
 
 /// x^(−m) for x > 0: by a square root for the abrupt junction's m = ½ (the diodes the
-/// verification builds), which is one instruction on wasm32 where a power is a library call,
-/// and within an ulp of the power.
+/// verification builds), which is one instruction on wasm32 and within an ulp of the power;
+/// otherwise by [`pow_positive`] (table-driven on wasm32, where a library power is a costly
+/// call).
 fn inverse_power(x: f64, m: f64) -> f64 {
     if m == 0.5 {
         1.0 / x.sqrt()
     } else {
-        x.powf(-m)
+        pow_positive(x, -m)
     }
 }
 

@@ -12,6 +12,7 @@ use super::operating_point::{
 use super::system::{
     Conditions, Evaluations, Failure, Integration, NewtonBuffers, NewtonTolerances, Reuse, System,
 };
+use crate::numeric::elementary::cbrt;
 use crate::numeric::larger;
 
 /// Step reduction after a failed Newton solve.
@@ -45,7 +46,7 @@ fn predictive_growth(h: f64, error_ratio: f64, previous: (f64, f64), plain: f64)
     if !(rise > bound * bound * bound) || !trend.is_finite() {
         return plain;
     }
-    larger(STEP_SAFETY * trend / rise.cbrt(), MIN_STEP_SHRINK)
+    larger(STEP_SAFETY * trend / cbrt(rise), MIN_STEP_SHRINK)
 }
 
 /// Settings of one transient run.
@@ -194,7 +195,7 @@ pub fn simulate(
 /// general power, on wasm32 especially).
 fn step_factor(ratio: f64, order: f64) -> f64 {
     if order >= 2.0 {
-        1.0 / ratio.cbrt()
+        1.0 / cbrt(ratio)
     } else {
         1.0 / ratio.sqrt()
     }

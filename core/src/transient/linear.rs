@@ -579,25 +579,29 @@ impl LinearSolver for SparseSolver {
     fn multiply(&self, x: &[f64], product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
         let pattern = &self.pattern;
         prepare(pattern.size, product, magnitude);
-        let mut add = |row: usize, column: usize, value: f64| {
-            let term = value * x.get(column).copied().unwrap_or(0.0);
+        let mut add = |row: usize, term: f64| {
             if let (Some(p), Some(m)) = (product.get_mut(row), magnitude.get_mut(row)) {
                 *p += term;
                 *m += term.abs();
             }
         };
-        for column in 0..pattern.size {
-            let start = pattern.column_starts.get(column).copied().unwrap_or(0);
-            let end = pattern.column_starts.get(column + 1).copied().unwrap_or(start);
-            for slot in start..end {
-                if let (Some(&row), Some(&value)) = (pattern.row_indices.get(slot), pattern.values.get(slot))
-                {
-                    add(row, column, value);
-                }
+        // Column by column with x's entry read once and the column's slices taken once (the
+        // residual test runs this every iteration; per-entry lookups made it 3 times slower
+        // under Node than natively).
+        for (column, bounds) in pattern.column_starts.windows(2).enumerate().take(pattern.size) {
+            let xc = x.get(column).copied().unwrap_or(0.0);
+            let range = bounds[0]..bounds[1];
+            let (Some(rows), Some(values)) =
+                (pattern.row_indices.get(range.clone()), pattern.values.get(range))
+            else {
+                continue;
+            };
+            for (&row, &value) in rows.iter().zip(values) {
+                add(row, value * xc);
             }
         }
         for &(row, column, value) in &self.outside {
-            add(row, column, value);
+            add(row, value * x.get(column).copied().unwrap_or(0.0));
         }
     }
 }
