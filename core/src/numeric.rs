@@ -1,5 +1,5 @@
 //! Small dense linear algebra and scalar root finding used by the stage analyses, and the
-//! elementary functions of the transient engine's junction laws ([`elementary`]).
+//! elementary functions of the junction laws ([`elementary`]).
 
 pub mod elementary;
 

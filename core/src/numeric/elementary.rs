@@ -1,18 +1,21 @@
-//! The exponential, powers, cube root and tanh of the transient engine's inner loops.
+//! The exponential, powers, cube root and tanh of the junction laws, in their inner loops.
 //!
 //! On wasm32, `f64::exp`, `powf`, `cbrt` and `tanh` are calls into a portable library written
 //! for accuracy everywhere rather than speed: under Node they took 20 % of a stage run, where
 //! the FMA-tuned C library took 6 % natively (`node --cpu-prof` against `perf`). On wasm32
 //! these functions are therefore table-driven (the method of Tang, ACM TOMS 15, 1989, for the
-//! exponential, and its usual companion for the logarithm): a table lookup, a short
-//! polynomial and no division. Natively the platform's own functions stay: they are as
-//! accurate and, with FMA, faster than these (a stage run took 2–5 % longer with these).
-//! The table-driven versions are compiled and tested on every target; the tests below check
-//! them against the `libm` crate.
+//! exponential, and its usual companion for the logarithm): a table lookup and a short
+//! polynomial, with no division but tanh's one. Natively the platform's own functions stay:
+//! they are as accurate and, with FMA, faster than these (a stage run took 2–5 % longer with
+//! these). The junction laws that use them (`limited_exp`, `EbersMoll::evaluate`) also serve
+//! the stage's DC analyses, so on wasm32 those differ from native by the same few ulp. The
+//! table-driven versions are compiled and tested on every target; the tests below check them
+//! against the `libm` crate.
 //!
 //! The tables are 2^(j/64), 1/cᵢ for the centres cᵢ = 1 + (i + ½)/128, and −ln of those
 //! reciprocals as stored, each correctly rounded from 60-digit decimal arithmetic (Python's
-//! `decimal`, whose powers and logarithms are correctly rounded); the tests check every entry.
+//! `decimal`, whose powers and logarithms are correctly rounded); the tests check every entry
+//! against the `libm` crate to an ulp.
 
 /// 1.5·2⁵²: adding it to an |x| < 2⁵¹ rounds x to an integer (ties to even) in the low bits
 /// of the sum, without a rounding instruction (which x86-64's baseline lacks).
@@ -21,8 +24,8 @@ const ROUND_SHIFT: f64 = 6_755_399_441_055_744.0;
 /// |k| < 2¹⁷ that occur (Cody–Waite reduction); the tests check the sum and the zero bits.
 const LN2_BY_64_HIGH: f64 = 0.010830424696223417;
 const LN2_BY_64_LOW: f64 = 2.572804622327669e-14;
-/// ln 2 in two parts for the logarithm's k·ln 2 (fdlibm's `ln2_hi` and `ln2_lo`, from
-/// memory; the tests check them): the high part has 11 trailing zero bits.
+/// ln 2 in two parts for the logarithm's k·ln 2 (the `ln2_hi` and `ln2_lo` of fdlibm's
+/// `e_log.c`, from memory; the tests check them): the high part has 21 trailing zero bits.
 const LN2_HIGH: f64 = 0.6931471803691238;
 const LN2_LOW: f64 = 1.9082149292705877e-10;
 /// Below this e^x is subnormal, above the next it overflows; outside them (and for NaN) the
@@ -51,16 +54,16 @@ pub fn pow_positive(x: f64, y: f64) -> f64 {
     }
 }
 
-/// ∛x for x ≥ 0 (the step-size rule's): by [`table_pow`] on wasm32, within
-/// (0.46·|ln x| + 2) ulp, as the library cube root there calls a software fused
-/// multiply-add; the platform's own elsewhere.
+/// ∛x (the step-size rule's): for x > 0 by [`table_pow`] on wasm32, within
+/// (0.55·|ln x| + 2.5)·ε relative, as the library cube root there calls a software fused
+/// multiply-add; the platform's own elsewhere and for x ≤ 0.
 #[inline]
 pub fn cbrt(x: f64) -> f64 {
     if cfg!(target_arch = "wasm32") {
         if x > 0.0 {
             table_pow(x, 1.0 / 3.0)
         } else {
-            x
+            x.cbrt()
         }
     } else {
         x.cbrt()
@@ -136,8 +139,10 @@ fn ln_for_power(x: f64) -> f64 {
     (exponent * LN2_HIGH + LOG_CENTRES[i]) + (series + exponent * LN2_LOW)
 }
 
-/// x^y = e^(y·ln x) for normal positive x: within (|y·ln x| + 2) ulp of the power, so for
-/// the depletion law's x in (0.5, 100) and grading below 1, within 1.4e-15.
+/// x^y = e^(y·ln x) for normal positive x: within (1.25·|y·ln x| + 2.5)·ε relative of the
+/// power (the logarithm's absolute error times |y|, the rounding of y·ln x, and the
+/// exponential's own), so for the depletion law's x in (0.5, 100) and grading below 1,
+/// within 1.7e-15.
 #[inline]
 pub fn table_pow(x: f64, y: f64) -> f64 {
     table_exp(y * ln_for_power(x))
@@ -255,9 +260,15 @@ mod tests {
     #[test]
     fn the_split_constants_add_up_and_leave_room_for_their_multiples() {
         // Against std's constants (correctly rounded) and the zero bits the reductions need.
-        assert!((LN2_HIGH + LN2_LOW - std::f64::consts::LN_2).abs() < 1e-17);
-        assert_eq!(LN2_HIGH.to_bits() & ((1 << 11) - 1), 0);
-        assert!((LN2_BY_64_HIGH + LN2_BY_64_LOW - std::f64::consts::LN_2 / 64.0).abs() < 1e-18);
+        // Each low part against the tail of ln 2 (and ln 2/64) past its double, from 60-digit
+        // decimal arithmetic: the high part's difference from the double is exact, so this
+        // checks the low part to about its sixteenth digit (the pairs leave 1.2e-26 and
+        // 1.6e-30 of ln 2 and ln 2/64 unrepresented, the best their low parts can do).
+        let (tail, tail_by_64) = (2.3190468138462996e-17, 3.623510646634843e-19);
+        let ln2 = std::f64::consts::LN_2;
+        assert!(((LN2_HIGH - ln2) + LN2_LOW - tail).abs() < 2e-26);
+        assert!(((LN2_BY_64_HIGH - ln2 / 64.0) + LN2_BY_64_LOW - tail_by_64).abs() < 3e-30);
+        assert_eq!(LN2_HIGH.to_bits() & ((1 << 21) - 1), 0);
         assert_eq!(LN2_BY_64_HIGH.to_bits() & ((1 << 17) - 1), 0);
     }
 
@@ -317,27 +328,43 @@ mod tests {
 
     #[test]
     fn powers_for_the_depletion_law_are_within_the_stated_bound_of_the_libm_crate() {
-        // The bound of the doc comment, (|y·ln x| + 2) ulp, at every point; and its largest
-        // value over the range, 1.4e-15.
+        // The bound of the doc comment, (1.25·|y·ln x| + 2.5)·ε, against the `libm` crate (its
+        // own error, within an ulp, is inside the bound's margin): on a grid, on a million
+        // scattered points (x, y) in (0.5, 100) × (−1, 1) (a Weyl sequence), and at a point a
+        // review found above an earlier, tighter bound; and its largest value, 1.7e-15.
+        let check = |x: f64, y: f64| {
+            let error = relative(table_pow(x, y), libm::pow(x, y));
+            let bound = (1.25 * (y * libm::log(x)).abs() + 2.5) * f64::EPSILON;
+            assert!(error <= bound, "{x}^{y}: relative error {error:e} above {bound:e}");
+            error
+        };
         let mut worst: f64 = 0.0;
         for x in spread(0.5, 100.0, 50_001) {
             for y in [-0.9, -0.5, -0.33, -0.2, 0.33, 0.5] {
-                let error = relative(table_pow(x, y), libm::pow(x, y));
-                let bound = ((y * libm::log(x)).abs() + 2.0) * f64::EPSILON;
-                assert!(error <= bound, "{x}^{y}: relative error {error:e} above {bound:e}");
-                worst = worst.max(error);
+                worst = worst.max(check(x, y));
             }
         }
-        assert!(worst <= 1.4e-15, "worst relative error {worst:e}");
+        let (mut u, mut v) = (0.0f64, 0.0f64);
+        for _ in 0..1_000_000 {
+            // Fractional parts of multiples of 1/φ and 1/φ²: evenly scattered, reproducible.
+            u = (u + 0.618_033_988_749_894_9) % 1.0;
+            v = (v + 0.381_966_011_250_105_1) % 1.0;
+            let (x, y) = (0.5 + 99.5 * u, -1.0 + 2.0 * v);
+            if x < 100.0 {
+                worst = worst.max(check(x, y));
+            }
+        }
+        worst = worst.max(check(96.83127166872833, -0.9));
+        assert!(worst <= 1.7e-15, "worst relative error {worst:e}");
     }
 
     #[test]
     fn the_cube_root_and_tanh_are_within_their_stated_errors() {
-        // The cube root as the power 1/3, whose exponent is itself rounded by ε/8:
-        // (|ln x|/3 + |ln x|/8 + 2) ulp, against the `libm` crate.
-        for e in spread(-30.0, 30.0, 60_001) {
-            let x = libm::pow(10.0, e);
-            let bound = (libm::log(x).abs() * (1.0 / 3.0 + 1.0 / 8.0) + 2.0) * f64::EPSILON;
+        // The cube root as the power 1/3, whose exponent is itself rounded by ε/8: the power's
+        // bound with |ln x|/8 more, (0.55·|ln x| + 2.5)·ε, against the `libm` crate; also at a
+        // point a review found at an earlier bound's edge.
+        for x in spread(-30.0, 30.0, 60_001).map(|e| libm::pow(10.0, e)).chain([2.0888813900087484e28]) {
+            let bound = (0.55 * libm::log(x).abs() + 2.5) * f64::EPSILON;
             assert!(relative(table_pow(x, 1.0 / 3.0), libm::cbrt(x)) <= bound, "cbrt {x}");
         }
         for x in spread(-25.0, 25.0, 100_001).chain(spread(-1e-3, 1e-3, 10_001)) {
@@ -359,8 +386,8 @@ mod tests {
             assert!(relative(exp(x), libm::exp(x)) <= 2.0 * f64::EPSILON);
             assert!((tanh(x) - libm::tanh(x)).abs() <= 5e-16);
             let y = libm::exp(x / 10.0);
-            assert!(relative(pow_positive(y, -0.33), libm::pow(y, -0.33)) <= 3.0 * f64::EPSILON);
-            assert!(relative(cbrt(y), libm::cbrt(y)) <= 3.0 * f64::EPSILON);
+            assert!(relative(pow_positive(y, -0.33), libm::pow(y, -0.33)) <= 4.0 * f64::EPSILON);
+            assert!(relative(cbrt(y), libm::cbrt(y)) <= 4.0 * f64::EPSILON);
         }
     }
 }

@@ -43,7 +43,8 @@ fn predictive_growth(h: f64, error_ratio: f64, previous: (f64, f64), plain: f64)
     // e²/e_prev > (STEP_SAFETY·trend/plain)³.
     let bound = STEP_SAFETY * trend / plain;
     let rise = error_ratio * error_ratio / previous_error;
-    if !(rise > bound * bound * bound) || !trend.is_finite() {
+    // Also true when the trend or the rise is not finite or not a number: then the plain rule.
+    if !(rise > bound * bound * bound) {
         return plain;
     }
     larger(STEP_SAFETY * trend / cbrt(rise), MIN_STEP_SHRINK)

@@ -34,16 +34,20 @@ pub enum Waveform {
 /// is an instruction on wasm32, where `%` is a library call that took 2 % of a stage run
 /// under Node. It differs from `%` only by the rounding of the product (an ulp of `elapsed`,
 /// as the subtraction that gave `elapsed` already does); a result that rounding puts just
-/// outside [0, period) is brought back in.
+/// outside [0, period) is brought back in, and one further out (a quotient past 2⁵² or
+/// overflowing, with an absurdly short period) is replaced by `%`'s.
 #[inline]
 fn phase(elapsed: f64, period: f64) -> f64 {
-    let local = elapsed - (elapsed / period).floor() * period;
+    let mut local = elapsed - (elapsed / period).floor() * period;
     if local < 0.0 {
-        (local + period).min(period * (1.0 - f64::EPSILON))
+        local = (local + period).min(period * (1.0 - f64::EPSILON));
     } else if local >= period {
-        (local - period).max(0.0)
-    } else {
+        local = (local - period).max(0.0);
+    }
+    if local >= 0.0 && local < period {
         local
+    } else {
+        elapsed % period
     }
 }
 
@@ -242,6 +246,9 @@ mod tests {
             let local = phase(elapsed, period);
             assert!(local.min(period - local) <= 2.0 * f64::EPSILON * elapsed, "{elapsed}: {local}");
         }
+        // A period so short that the quotient overflows: `%`'s answer, not −∞.
+        assert_eq!(phase(1.0, 1e-310), 1.0 % 1e-310);
+        assert!((0.0..1e-300).contains(&phase(1.0, 1e-300)));
     }
 
     #[test]
