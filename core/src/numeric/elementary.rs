@@ -6,7 +6,7 @@
 //! these functions are therefore table-driven (the method of Tang, ACM TOMS 15, 1989, for the
 //! exponential, and its usual companion for the logarithm): a table lookup and a short
 //! polynomial, with no division but tanh's one. Natively the platform's own functions stay:
-//! they are as accurate and, with FMA, faster than these (a stage run took 2–5 % longer with
+//! they are as accurate and, with FMA, faster than these (a stage run took 2–10 % longer with
 //! these). The junction laws that use them (`limited_exp`, `EbersMoll::evaluate`) also serve
 //! the stage's DC analyses, so on wasm32 those differ from native by the same few ulp. The
 //! table-driven versions are compiled and tested on every target; the tests below check them
