@@ -21,7 +21,8 @@
 /// of the sum, without a rounding instruction (which x86-64's baseline lacks).
 const ROUND_SHIFT: f64 = 6_755_399_441_055_744.0;
 /// ln 2 / 64 in two parts: the high part has 36 significant bits, so k·high is exact for the
-/// |k| < 2¹⁷ that occur (Cody–Waite reduction); the tests check the sum and the zero bits.
+/// |k| < 2¹⁷ that occur (Cody–Waite reduction); the tests check the low part against the
+/// tail of ln 2/64 and the high part's zero bits.
 const LN2_BY_64_HIGH: f64 = 0.010830424696223417;
 const LN2_BY_64_LOW: f64 = 2.572804622327669e-14;
 /// ln 2 in two parts for the logarithm's k·ln 2 (the `ln2_hi` and `ln2_lo` of fdlibm's
@@ -59,12 +60,8 @@ pub fn pow_positive(x: f64, y: f64) -> f64 {
 /// multiply-add; the platform's own elsewhere and for x ≤ 0.
 #[inline]
 pub fn cbrt(x: f64) -> f64 {
-    if cfg!(target_arch = "wasm32") {
-        if x > 0.0 {
-            table_pow(x, 1.0 / 3.0)
-        } else {
-            x.cbrt()
-        }
+    if cfg!(target_arch = "wasm32") && x > 0.0 {
+        table_pow(x, 1.0 / 3.0)
     } else {
         x.cbrt()
     }

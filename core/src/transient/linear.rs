@@ -63,11 +63,15 @@ fn largest_magnitude(values: &[f64]) -> f64 {
     larger(larger(lanes[0], lanes[1]), larger(lanes[2], lanes[3]))
 }
 
+/// `buffer` emptied and filled with `length` zeros, keeping its allocation.
+pub(crate) fn fill_with_zeros(buffer: &mut Vec<f64>, length: usize) {
+    buffer.clear();
+    buffer.resize(length, 0.0);
+}
+
 fn prepare(size: usize, product: &mut Vec<f64>, magnitude: &mut Vec<f64>) {
-    product.clear();
-    product.resize(size, 0.0);
-    magnitude.clear();
-    magnitude.resize(size, 0.0);
+    fill_with_zeros(product, size);
+    fill_with_zeros(magnitude, size);
 }
 
 /// A pivot counts as zero below this share of the largest matrix entry (the same rule as the

@@ -6,7 +6,7 @@ use std::collections::BTreeMap;
 use super::circuit::{is_ground, Circuit, Element};
 use super::devices::{critical_voltage, junction_current, limit_junction_voltage, DepletionLaw};
 use super::error::SimulationError;
-use super::linear::LinearSolver;
+use super::linear::{fill_with_zeros, LinearSolver};
 use super::waveform::Waveform;
 use crate::device::ebers_moll::{BjtOperatingPoint, EbersMoll};
 use crate::numeric::larger;
@@ -266,13 +266,6 @@ impl NewtonBuffers {
         self.charges = charges;
         self.charge_currents = charge_currents;
     }
-}
-
-/// `buffer` emptied and filled with `length` zeros, keeping its allocation.
-fn zeroed(mut buffer: Vec<f64>, length: usize) -> Vec<f64> {
-    buffer.clear();
-    buffer.resize(length, 0.0);
-    buffer
 }
 
 /// What one assembly produces besides the matrix: the right-hand side, and the charges and
@@ -915,12 +908,15 @@ impl System {
         junctions.resize(self.junction_count, 0.0);
         let mut out = Linearised {
             rhs: std::mem::take(&mut buffers.rhs),
-            charges: zeroed(std::mem::take(&mut buffers.charges), self.charge_count),
-            charge_currents: zeroed(std::mem::take(&mut buffers.charge_currents), self.charge_count),
+            charges: std::mem::take(&mut buffers.charges),
+            charge_currents: std::mem::take(&mut buffers.charge_currents),
         };
+        fill_with_zeros(&mut out.charges, self.charge_count);
+        fill_with_zeros(&mut out.charge_currents, self.charge_count);
         let mut next = std::mem::take(&mut buffers.next);
-        let mut product = zeroed(std::mem::take(&mut buffers.product), size);
-        let mut magnitude = zeroed(std::mem::take(&mut buffers.magnitude), size);
+        // Sized and overwritten by `LinearSolver::multiply` before they are read.
+        let mut product = std::mem::take(&mut buffers.product);
+        let mut magnitude = std::mem::take(&mut buffers.magnitude);
         let mut worst = (0, f64::INFINITY);
         let mut limited = self.limit_junctions(&unknowns, junctions);
         self.assemble(solver, &unknowns, junctions, conditions, &mut out, &mut reuse);
